@@ -1,0 +1,1 @@
+//! Kepler's equation.

@@ -1,0 +1,9 @@
+//! eccaudit-core: the science of eccaudit.
+//!
+//! Everything that decides a number lives here: the Kepler solver, the
+//! radial-velocity model, the velocity-table reader. The crate performs no
+//! file or network I/O, knows nothing of WebAssembly, starts no threads and
+//! reads no clock, so the native command line and the browser page compute
+//! identical bits from identical inputs.
+
+pub mod kepler;

@@ -1,0 +1,1 @@
+//! eccaudit-web: the thin wasm-bindgen adapter between the page and eccaudit-core.

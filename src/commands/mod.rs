@@ -1,0 +1,5 @@
+//! One module per subcommand. Each has an `Args` (clap) and a `run`.
+
+pub mod bench;
+pub mod curve;
+pub mod table;

@@ -1,0 +1,46 @@
+//! The eccaudit command line: a thin driver over `eccaudit-core`.
+//!
+//! Each subcommand lives in `src/commands/`; this file only parses the
+//! command line and turns any error into one readable line and a non-zero
+//! exit status.
+
+mod commands;
+
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+/// Audit an orbital eccentricity before you quote it.
+#[derive(Debug, Parser)]
+#[command(name = "eccaudit", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Read a velocity table and print its summary.
+    Table(commands::table::Args),
+    /// Evaluate a radial-velocity model from orbital elements and write CSV.
+    Curve(commands::curve::Args),
+    /// Time the hot loops (Kepler solve) natively.
+    Bench(commands::bench::Args),
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Table(args) => commands::table::run(args),
+        Command::Curve(args) => commands::curve::run(args),
+        Command::Bench(args) => commands::bench::run(args),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(err) => {
+            // One readable line: the whole context chain joined by ": ".
+            eprintln!("eccaudit: error: {err:#}");
+            ExitCode::FAILURE
+        }
+    }
+}
