@@ -1,0 +1,64 @@
+//! eccaudit's figures, drawn once and generic over the plotters backend.
+//!
+//! The page draws them on a `<canvas>` through plotters-canvas and the
+//! command line writes them as SVG; both call the same functions here, so a
+//! figure looks the same wherever it is made. This crate only draws: it
+//! takes plain numbers and computes nothing scientific.
+
+mod palette;
+mod velocity;
+
+pub use palette::{instrument_colour, INK, MUTED};
+pub use velocity::{draw_velocities, ModelCurve, VelocityFigure, VelocitySeries};
+
+/// The error every drawing function returns: the backend's own error type,
+/// wrapped by plotters.
+pub type DrawResult<DB> =
+    Result<(), plotters::drawing::DrawingAreaErrorKind<<DB as plotters::prelude::DrawingBackend>::ErrorType>>;
+
+/// A readable axis offset for large time values: times such as
+/// 2 460 123.4 are drawn as 123.4 with the offset named in the axis label.
+///
+/// Returns 0 when the times are already small. The offset is a round
+/// multiple of 1000 days below the first time.
+pub fn time_axis_offset(t_min: f64) -> f64 {
+    if t_min.abs() < 10_000.0 || !t_min.is_finite() {
+        0.0
+    } else {
+        (t_min / 1000.0).floor() * 1000.0
+    }
+}
+
+/// Range `[lo, hi]` of the finite values, padded by `pad` of its width on
+/// each side (a zero-width range is widened by one unit).
+pub fn padded_range(values: impl IntoIterator<Item = f64>, pad: f64) -> (f64, f64) {
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for v in values.into_iter().filter(|v| v.is_finite()) {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if !lo.is_finite() {
+        return (0.0, 1.0);
+    }
+    let width = if hi > lo { hi - lo } else { 1.0 };
+    (lo - pad * width, hi + pad * width)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn time_offset_is_round_and_below_first_time() {
+        assert_eq!(time_axis_offset(2_460_123.4), 2_460_000.0);
+        assert_eq!(time_axis_offset(55_321.0), 55_000.0);
+        assert_eq!(time_axis_offset(123.4), 0.0);
+    }
+
+    #[test]
+    fn padded_range_handles_flat_and_empty_input() {
+        assert_eq!(padded_range([2.0, 2.0], 0.5), (1.5, 2.5));
+        assert_eq!(padded_range([], 0.1), (0.0, 1.0));
+        assert_eq!(padded_range([0.0, 10.0, f64::NAN], 0.1), (-1.0, 11.0));
+    }
+}

@@ -1,0 +1,26 @@
+#!/usr/bin/env bash
+# Every test eccaudit has, in the order that fails fastest:
+#   1. native: unit, reference-value, property and CLI tests (cargo test);
+#   2. wasm: build the adapter, run its tests in headless Chromium;
+#   3. page: drive the built page in headless Chromium (tests/browser).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash scripts/setup.sh
+
+echo "== native tests"
+cargo test --workspace --release
+
+echo "== wasm build"
+bash scripts/build-wasm.sh
+
+echo "== wasm tests in headless Chromium"
+(
+  # shellcheck disable=SC1091
+  . target/wasm-env.sh
+  export CARGO_TARGET_DIR=target/wasm
+  # shellcheck disable=SC2086
+  "$WASM_CARGO" test --quiet --release --target wasm32-unknown-unknown -p eccaudit-web $WASM_BUILD_STD
+)
+
+echo "== page tests in headless Chromium"
+(cd tests/browser && node --test --test-concurrency=1 --test-reporter=spec)
