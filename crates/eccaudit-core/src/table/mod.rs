@@ -581,6 +581,7 @@ impl VelocityTable {
             rows.push(Row {
                 line,
                 time: times[row_index],
+                time_text: times[row_index].to_string(),
                 velocity: velocities[row_index],
                 uncertainty: uncertainties[row_index],
                 instrument: label.to_string(),
@@ -660,6 +661,8 @@ impl VelocityTable {
 struct Row {
     line: usize,
     time: f64,
+    /// The time as written, for messages.
+    time_text: String,
     velocity: f64,
     uncertainty: f64,
     instrument: String,
@@ -920,18 +923,22 @@ fn read_records(
     Ok(records)
 }
 
-/// A first record is a header if any cell is a known column name, or if none
-/// of its first three cells is a number.
+/// A first record is a header if some of its first three cells are not
+/// numbers and either none of them is or some cell is a known column name.
+/// (A data row always starts with three numbers, so an instrument label that
+/// happens to be a column name, like `site`, does not make it a header.)
 fn looks_like_header(record: &Record) -> bool {
-    record
-        .fields
+    let leading = &record.fields[..record.fields.len().min(3)];
+    let n_numbers = leading
         .iter()
-        .any(|cell| classify_header_cell(cell).is_ok())
-        || record
-            .fields
-            .iter()
-            .take(3)
-            .all(|cell| cell.parse::<f64>().is_err())
+        .filter(|cell| cell.parse::<f64>().is_ok())
+        .count();
+    n_numbers < leading.len()
+        && (n_numbers == 0
+            || record
+                .fields
+                .iter()
+                .any(|cell| classify_header_cell(cell).is_ok()))
 }
 
 fn layout_from_header(record: &Record, source_name: &str) -> Result<Layout, TableError> {
@@ -1109,14 +1116,15 @@ fn resolve_time_convention(
             rows.len() - n_full,
             rows.len()
         )),
-        Some(offset) if offset >= FULL_JULIAN_DATE_THRESHOLD && n_full > 0 => notices
-            .push(format!(
+        Some(offset) if offset >= FULL_JULIAN_DATE_THRESHOLD && n_full > 0 => {
+            notices.push(format!(
             "times are labelled {} but {} of {} are at or above 2400000, like full Julian dates; \
                  check the time convention",
             convention.label(),
             n_full,
             rows.len()
-        )),
+        ))
+        }
         _ => {}
     }
     Ok(convention)
@@ -1223,7 +1231,7 @@ fn assemble(
                 source_name: source_name.to_string(),
                 line: row.line,
                 first_line,
-                time: row.time.to_string(),
+                time: row.time_text.clone(),
                 instrument: row.instrument.clone(),
             });
         }
@@ -1268,6 +1276,7 @@ fn empty_row() -> Row {
     Row {
         line: 0,
         time: 0.0,
+        time_text: String::new(),
         velocity: 0.0,
         uncertainty: 0.0,
         instrument: String::new(),
@@ -1323,7 +1332,8 @@ pub fn parse_table(text: &str, options: &ReadOptions) -> Result<VelocityTable, T
                 reference_line: layout.reference_line,
             });
         }
-        let time = Field::of(source_name, record, layout.time.0, &layout.time.1).number()?;
+        let time_field = Field::of(source_name, record, layout.time.0, &layout.time.1);
+        let time = time_field.number()?;
         let velocity =
             Field::of(source_name, record, layout.velocity.0, &layout.velocity.1).number()?;
         let uncertainty_field = Field::of(
@@ -1343,6 +1353,7 @@ pub fn parse_table(text: &str, options: &ReadOptions) -> Result<VelocityTable, T
         rows.push(Row {
             line: record.line,
             time,
+            time_text: time_field.text.to_string(),
             velocity: velocity * velocity_unit.to_metres_per_second(),
             uncertainty: uncertainty * uncertainty_unit.to_metres_per_second(),
             instrument,

@@ -169,7 +169,7 @@ impl fmt::Display for TableSummary {
         )?;
         writeln!(
             f,
-            "time           {} ({}), days",
+            "time           {}, {}, in days",
             self.time_convention_label, self.time_convention.stated_by
         )?;
         writeln!(
