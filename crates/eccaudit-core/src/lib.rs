@@ -7,4 +7,5 @@
 //! identical bits from identical inputs.
 
 pub mod kepler;
+pub mod periodogram;
 pub mod table;
