@@ -6,4 +6,7 @@
 //! reads no clock, so the native command line and the browser page compute
 //! identical bits from identical inputs.
 
+pub mod constants;
 pub mod kepler;
+pub mod model;
+pub mod orbit;
