@@ -329,11 +329,22 @@ pub fn true_anomaly(eccentric_anomaly: f64, eccentricity: Eccentricity) -> f64 {
 #[inline]
 pub fn true_anomaly_cos_sin(anomaly: &EccentricAnomaly, eccentricity: Eccentricity) -> (f64, f64) {
     let e = eccentricity.0;
+    true_anomaly_cos_sin_prepared(anomaly, e, libm::sqrt((1.0 - e) * (1.0 + e)))
+}
+
+/// [`true_anomaly_cos_sin`] with √((1−e)(1+e)) precomputed by the caller (the model does this
+/// once per companion).
+#[inline(always)]
+pub(crate) fn true_anomaly_cos_sin_prepared(
+    anomaly: &EccentricAnomaly,
+    e: f64,
+    sqrt_one_minus_e2: f64,
+) -> (f64, f64) {
     let one_minus_e = 1.0 - e;
     let two_sin2_half = one_minus_cos(anomaly.sin, anomaly.cos);
     let inv_denominator = 1.0 / (one_minus_e + e * two_sin2_half);
     let cos_nu = (one_minus_e - two_sin2_half) * inv_denominator;
-    let sin_nu = libm::sqrt(one_minus_e * (1.0 + e)) * anomaly.sin * inv_denominator;
+    let sin_nu = sqrt_one_minus_e2 * anomaly.sin * inv_denominator;
     (cos_nu, sin_nu)
 }
 

@@ -1,8 +1,10 @@
 //! The radial-velocity model: v(t) = Σ_companions K [cos(ν + ω) + e cos ω] + γ_instrument +
 //! trend · (t − t_ref), evaluated at one time or over slices without allocating.
 
-use crate::kepler::{eccentric_anomaly_reduced, true_anomaly_cos_sin, Eccentricity, TWO_PI};
-use crate::orbit::{phase_cycles, OrbitalElements};
+use crate::kepler::{
+    eccentric_anomaly_reduced, true_anomaly_cos_sin_prepared, Eccentricity, TWO_PI,
+};
+use crate::orbit::{phase_cycles_with_frequency, OrbitalElements};
 
 /// Errors of model construction and evaluation.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -43,9 +45,10 @@ pub enum ModelError {
 /// One companion with the constants of its velocity term precomputed.
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct PreparedCompanion {
-    period: f64,
+    frequency: f64,
     time_of_periastron: f64,
     eccentricity: Eccentricity,
+    sqrt_one_minus_e2: f64,
     k_cos_omega: f64,
     k_sin_omega: f64,
     k_e_cos_omega: f64,
@@ -55,22 +58,29 @@ impl PreparedCompanion {
     fn new(elements: &OrbitalElements) -> Self {
         let k = elements.semi_amplitude();
         let (sin_w, cos_w) = libm::sincos(elements.omega());
+        let e = elements.eccentricity().value();
         PreparedCompanion {
-            period: elements.period(),
+            frequency: 1.0 / elements.period(),
             time_of_periastron: elements.time_of_periastron(),
             eccentricity: elements.eccentricity(),
+            sqrt_one_minus_e2: libm::sqrt((1.0 - e) * (1.0 + e)),
             k_cos_omega: k * cos_w,
             k_sin_omega: k * sin_w,
-            k_e_cos_omega: k * elements.eccentricity().value() * cos_w,
+            k_e_cos_omega: k * e * cos_w,
         }
     }
 
     /// K [cos(ν + ω) + e cos ω] = K cos ω cos ν − K sin ω sin ν + K e cos ω.
     #[inline(always)]
     fn velocity(&self, time: f64) -> f64 {
-        let mean_anomaly = TWO_PI * phase_cycles(time, self.period, self.time_of_periastron);
+        let mean_anomaly =
+            TWO_PI * phase_cycles_with_frequency(time, self.frequency, self.time_of_periastron);
         let anomaly = eccentric_anomaly_reduced(mean_anomaly, self.eccentricity);
-        let (cos_nu, sin_nu) = true_anomaly_cos_sin(&anomaly, self.eccentricity);
+        let (cos_nu, sin_nu) = true_anomaly_cos_sin_prepared(
+            &anomaly,
+            self.eccentricity.value(),
+            self.sqrt_one_minus_e2,
+        );
         self.k_cos_omega * cos_nu - self.k_sin_omega * sin_nu + self.k_e_cos_omega
     }
 }
