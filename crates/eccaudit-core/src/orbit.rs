@@ -375,8 +375,8 @@ impl OrbitalElements {
 
     /// Semi-major axis [m] of the *relative* orbit (companion about star, a = a₁ + a₂) for an
     /// edge-on orbit, i.e. with the companion mass m = m_min: a = (G (M + m_min) P² / 4π²)^{1/3}
-    /// (Kepler's third law). For inclination i the true value is larger by
-    /// ((M + m)/(M + m_min))^{1/3} with m = m_min/sin i only to first order.
+    /// (Kepler's third law). At inclination i < 90° the true companion mass exceeds m_min, and
+    /// a grows with it as (M + m)^{1/3}.
     pub fn relative_semi_major_axis_edge_on(&self, stellar_mass: f64) -> Result<f64, OrbitError> {
         let minimum_mass = self.minimum_companion_mass(stellar_mass)?;
         let period_s = self.period * SECONDS_PER_DAY;
