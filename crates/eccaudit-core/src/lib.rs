@@ -6,6 +6,9 @@
 //! reads no clock, so the native command line and the browser page compute
 //! identical bits from identical inputs.
 
+pub mod constants;
 pub mod kepler;
+pub mod model;
+pub mod orbit;
 pub mod periodogram;
 pub mod table;
