@@ -11,4 +11,5 @@ pub mod kepler;
 pub mod model;
 pub mod orbit;
 pub mod periodogram;
+pub mod random;
 pub mod table;
