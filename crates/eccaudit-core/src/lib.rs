@@ -7,3 +7,4 @@
 //! identical bits from identical inputs.
 
 pub mod kepler;
+pub mod lsq;
