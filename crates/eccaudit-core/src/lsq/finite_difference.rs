@@ -7,12 +7,19 @@ use super::{Bounds, LeastSquaresProblem};
 
 /// Finite-difference rule and its step.
 ///
-/// With ε the double-precision machine epsilon and `x_j` the parameter:
-/// * `Forward`: `h_j = sqrt(ε)·|x_j|` (`sqrt(ε)` when `x_j = 0`), error O(h) —
-///   the rule of MINPACK `fdjac2` (Moré, Garbow & Hillstrom 1980, ANL-80-74);
-/// * `Central`: `h_j = cbrt(ε)·|x_j|` (`cbrt(ε)` when `x_j = 0`), error O(h²) —
-///   the step balancing truncation and rounding for central differences
-///   (Press et al. 2007, Numerical Recipes 3rd ed., §5.7, eq. 5.7.8).
+/// With ε the double-precision machine epsilon and `x_j` the parameter, the
+/// step is `h_j = c·max(|x_j|, 1)`, the rule of `scipy.optimize.least_squares`
+/// (Virtanen et al. 2020, Nature Methods 17, 261; documentation of `diff_step`),
+/// which keeps the step from vanishing for parameters near zero (a purely
+/// relative step `c·|x_j|` would make rounding dominate there):
+/// * `Forward`: `c = sqrt(ε)`, error O(h);
+/// * `Central`: `c = cbrt(ε)`, error O(h²) — the steps balancing truncation
+///   and rounding (Press et al. 2007, Numerical Recipes 3rd ed., §5.7,
+///   eqs. 5.7.5 and 5.7.8).
+///
+/// Parameters much smaller than 1 in magnitude therefore get an absolute step
+/// of about 1.5e-8 (forward) or 6e-6 (central); scale such parameters to order
+/// unity, or supply an analytic Jacobian.
 ///
 /// Steps are rounded so that `x_j + h_j` is exactly representable. Near a
 /// bound the rule falls back to a one-sided difference on the feasible side.
@@ -63,11 +70,7 @@ pub fn finite_difference_jacobian<P: LeastSquaresProblem + ?Sized>(
         let (lower, upper) = bounds
             .map(|b| (b.lower[j], b.upper[j]))
             .unwrap_or((f64::NEG_INFINITY, f64::INFINITY));
-        let raw_step = if x == 0.0 {
-            relative_step
-        } else {
-            relative_step * x.abs()
-        };
+        let raw_step = relative_step * x.abs().max(1.0);
         // Exactly representable steps (Press et al. 2007, §5.7, eq. 5.7.4).
         let step_up = (x + raw_step) - x;
         let step_down = x - (x - raw_step);
