@@ -8,6 +8,7 @@
 
 pub mod constants;
 pub mod kepler;
+pub mod lsq;
 pub mod model;
 pub mod orbit;
 pub mod periodogram;
