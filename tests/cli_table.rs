@@ -83,7 +83,7 @@ fn missing_unit_is_one_readable_line() {
         .stdout(predicate::str::is_empty())
         .stderr(predicate::eq(format!(
             "eccaudit: error: {path}: velocity unit not stated: write it in the header of column 2 \
-             (e.g. `rv [m/s]`) or pass --velocity-unit m/s|km/s\n"
+             (e.g. `rv [m/s]`) or choose it (command line: --velocity-unit m/s|km/s; page: the Velocity unit menu)\n"
         )));
 }
 

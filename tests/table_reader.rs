@@ -100,7 +100,7 @@ fn whitespace_without_header_needs_and_takes_an_explicit_unit() {
     assert_eq!(
         err.to_string(),
         "no_header.txt: velocity unit not stated: write it in the header of column 2 \
-         (e.g. `rv [m/s]`) or pass --velocity-unit m/s|km/s"
+         (e.g. `rv [m/s]`) or choose it (command line: --velocity-unit m/s|km/s; page: the Velocity unit menu)"
     );
     let options = ReadOptions {
         velocity_unit: Some(VelocityUnit::KilometresPerSecond),
@@ -386,7 +386,7 @@ fn velocity_unit_not_stated_in_header() {
     assert_eq!(
         err.to_string(),
         "no_unit.csv: velocity unit not stated: write it in the header of column 2 \
-         (e.g. `rv [m/s]`) or pass --velocity-unit m/s|km/s"
+         (e.g. `rv [m/s]`) or choose it (command line: --velocity-unit m/s|km/s; page: the Velocity unit menu)"
     );
 }
 

@@ -13,7 +13,6 @@ function el(tag, attrs = {}, ...children) {
   const node = document.createElement(tag);
   for (const [key, value] of Object.entries(attrs)) {
     if (key === "class") node.className = value;
-    else if (key === "style") node.setAttribute("style", value);
     else node.setAttribute(key, value);
   }
   for (const child of children) {
@@ -37,7 +36,17 @@ function messageOf(err) {
   return String(err);
 }
 
+// Counts finished load attempts (good or bad), so tests can wait for one.
+let loadAttempts = 0;
 function loadTable(text, sourceName) {
+  try {
+    return tryLoadTable(text, sourceName);
+  } finally {
+    document.body.dataset.loadAttempts = String(++loadAttempts);
+  }
+}
+
+function tryLoadTable(text, sourceName) {
   let dataset;
   try {
     dataset = Dataset.parse(text, sourceName, $("velocity-unit").value, $("time-convention").value);
@@ -59,37 +68,41 @@ function fmt(value, digits = 2) {
   return Number(value).toFixed(digits);
 }
 
+const STATED_BY = {
+  header: "stated in the header",
+  explicit: "chosen on this page",
+  inferred: "inferred from the magnitude of the times",
+};
+
 function renderSummary(summary) {
   const box = $("summary");
   box.replaceChildren();
   box.append(
     el("p", { class: "facts", "data-testid": "summary-facts" },
-      `${summary.source}: ${summary.n_rows} measurements from ${summary.instruments.length} ` +
-      `instrument${summary.instruments.length === 1 ? "" : "s"} over ${fmt(summary.baseline_days, 1)} days ` +
-      `(time: ${summary.time_convention}; velocities read in ${summary.velocity_unit}, shown in m/s).`),
+      `${summary.source_name}: ${summary.n_rows} measurements from ${summary.n_instruments} ` +
+      `instrument${summary.n_instruments === 1 ? "" : "s"} over ${fmt(summary.overall.baseline_days, 1)} days ` +
+      `(time: ${summary.time_convention_label}, ${STATED_BY[summary.time_convention.stated_by]}; ` +
+      `velocities read in ${summary.velocity_unit_in_source}, shown in m/s).`),
   );
   const head = el("tr", {},
     el("th", {}, "instrument"), el("th", {}, "N"), el("th", {}, "first"), el("th", {}, "last"),
     el("th", {}, "median σ [m/s]"), el("th", {}, "rms [m/s]"), el("th", {}, "weighted rms [m/s]"));
   const rows = summary.instruments.map((inst, idx) =>
     el("tr", {},
-      el("td", {}, el("span", { class: "swatch", style: `background:${swatch(idx)}` }), inst.name),
+      el("td", {}, el("span", { class: `swatch swatch-${idx % 7}` }), inst.name),
       el("td", {}, inst.n_rows), el("td", {}, fmt(inst.first_time, 3)), el("td", {}, fmt(inst.last_time, 3)),
-      el("td", {}, fmt(inst.median_uncertainty)), el("td", {}, fmt(inst.rms)), el("td", {}, fmt(inst.weighted_rms))));
+      el("td", {}, fmt(inst.median_uncertainty_m_s)), el("td", {}, fmt(inst.rms_m_s)),
+      el("td", {}, fmt(inst.weighted_rms_m_s))));
   const all = summary.overall;
   rows.push(el("tr", { class: "total" },
     el("td", {}, "all"), el("td", {}, summary.n_rows), el("td", {}, fmt(all.first_time, 3)),
-    el("td", {}, fmt(all.last_time, 3)), el("td", {}, fmt(all.median_uncertainty)),
-    el("td", {}, fmt(all.rms)), el("td", {}, fmt(all.weighted_rms))));
+    el("td", {}, fmt(all.last_time, 3)), el("td", {}, fmt(all.median_uncertainty_m_s)),
+    el("td", {}, fmt(all.rms_m_s)), el("td", {}, fmt(all.weighted_rms_m_s))));
   box.append(el("table", { "data-testid": "summary-table" }, el("thead", {}, head), el("tbody", {}, ...rows)));
   if (summary.notices.length > 0) {
     box.append(el("ul", { class: "notices" }, ...summary.notices.map((n) => el("li", {}, n))));
   }
 }
-
-// Same colours as the plot (eccaudit-plot's palette), for the summary swatches.
-const SWATCHES = ["#0072b2", "#d55e00", "#009e73", "#cc79a7", "#e69f00", "#56b4e9", "#808080"];
-const swatch = (idx) => SWATCHES[idx % SWATCHES.length];
 
 function redraw() {
   if (!state.dataset) return;

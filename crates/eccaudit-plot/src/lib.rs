@@ -5,10 +5,14 @@
 //! figure looks the same wherever it is made. This crate only draws: it
 //! takes plain numbers and computes nothing scientific.
 
+mod legend;
 mod palette;
 mod velocity;
 
+pub use legend::{draw_legend, LegendMark};
 pub use palette::{instrument_colour, INK, MUTED};
+/// plotters itself, so adapters can build drawing areas on their own backend.
+pub use plotters;
 pub use velocity::{draw_velocities, ModelCurve, VelocityFigure, VelocitySeries};
 
 /// The error every drawing function returns: the backend's own error type,

@@ -4,6 +4,7 @@
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+use crate::legend::{draw_legend, LegendMark};
 use crate::{instrument_colour, padded_range, time_axis_offset, DrawResult, INK, MUTED};
 
 /// One instrument's measurements.
@@ -64,12 +65,14 @@ pub fn draw_velocities<DB: DrawingBackend>(
     let mut chart = ChartBuilder::on(area)
         .margin(12)
         .x_label_area_size(40)
-        .y_label_area_size(64)
+        .y_label_area_size(80)
         .build_cartesian_2d((t_lo - t0)..(t_hi - t0), v_lo..v_hi)?;
 
     chart
         .configure_mesh()
-        .light_line_style(MUTED.mix(0.35))
+        .light_line_style(MUTED.mix(0.15))
+        .x_label_formatter(&|t| tick_label(*t, t_hi - t_lo))
+        .y_label_formatter(&|v| tick_label(*v, v_hi - v_lo))
         .bold_line_style(MUTED.mix(0.8))
         .axis_style(INK)
         .label_style(("sans-serif", 13).into_font().color(&INK))
@@ -104,22 +107,36 @@ pub fn draw_velocities<DB: DrawingBackend>(
         chart.draw_series(points().map(|(t, v, e)| {
             ErrorBar::new_vertical(t, v - e, v, v + e, colour.stroke_width(1), 6)
         }))?;
-        chart
-            .draw_series(points().map(|(t, v, _)| Circle::new((t, v), 3, colour.filled())))?
-            .label(series.name.clone())
-            .legend(move |(x, y)| Circle::new((x + 8, y), 4, colour.filled()));
+        chart.draw_series(points().map(|(t, v, _)| Circle::new((t, v), 3, colour.filled())))?;
     }
 
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .background_style(WHITE.mix(0.85))
-        .border_style(MUTED)
-        .label_font(("sans-serif", 13).into_font().color(&INK))
-        .draw()?;
+    let mut legend: Vec<(String, LegendMark)> = figure
+        .series
+        .iter()
+        .enumerate()
+        .map(|(idx, s)| (s.name.clone(), LegendMark::Dot(instrument_colour(idx))))
+        .collect();
+    if figure.curve.is_some() {
+        legend.push(("model".to_string(), LegendMark::Line(INK)));
+    }
+    draw_legend(area, &legend, (24, 20))?;
 
     area.present()?;
     Ok(())
+}
+
+/// A tick label with as many decimals as the axis span calls for.
+fn tick_label(value: f64, span: f64) -> String {
+    let decimals = if span >= 20.0 {
+        0
+    } else if span >= 2.0 {
+        1
+    } else if span >= 0.2 {
+        2
+    } else {
+        3
+    };
+    format!("{value:.decimals$}")
 }
 
 #[cfg(test)]

@@ -6,6 +6,16 @@
 //! reported to the page through `globalThis.eccauditReportPanic` (see
 //! [`install_panic_hook`]) instead of dying silently in the console.
 
+mod bench;
+mod canvas;
+mod dataset;
+mod demo;
+
+pub use bench::KeplerBench;
+pub use dataset::{CurveElements, Dataset};
+pub use demo::demo_tables;
+
+use serde::Serialize;
 use wasm_bindgen::prelude::*;
 
 /// Called once when the module is instantiated.
@@ -23,6 +33,14 @@ pub fn version() -> String {
 /// Convert any displayable error into a JavaScript `Error` with that message.
 pub fn js_error(err: impl std::fmt::Display) -> JsValue {
     js_sys::Error::new(&err.to_string()).into()
+}
+
+/// Serialise a core result for JavaScript as plain objects and arrays
+/// (maps become objects, not `Map`s).
+pub fn to_js<T: Serialize + ?Sized>(value: &T) -> Result<JsValue, JsValue> {
+    value
+        .serialize(&serde_wasm_bindgen::Serializer::json_compatible())
+        .map_err(js_error)
 }
 
 /// Route panics to the page: log them, and hand the message to

@@ -445,7 +445,7 @@ pub enum TableError {
     /// Neither the header nor the options state the velocity unit.
     #[error(
         "{source_name}: velocity unit not stated: write it in the header of column {column} \
-         (e.g. `rv [m/s]`) or pass --velocity-unit m/s|km/s"
+         (e.g. `rv [m/s]`) or choose it (command line: --velocity-unit m/s|km/s; page: the Velocity unit menu)"
     )]
     UnitNotStated {
         /// File name.
