@@ -19,7 +19,7 @@ echo "== wasm tests in headless Chromium"
   . target/wasm-env.sh
   export CARGO_TARGET_DIR=target/wasm
   # shellcheck disable=SC2086
-  "$WASM_CARGO" test --quiet --release --target wasm32-unknown-unknown -p eccaudit-web $WASM_BUILD_STD
+  "$WASM_CARGO" test --release --target wasm32-unknown-unknown -p eccaudit-web --test in_browser $WASM_BUILD_STD
 )
 
 echo "== page tests in headless Chromium"
