@@ -8,6 +8,7 @@ mod commands;
 
 use std::process::ExitCode;
 
+use clap::error::ErrorKind;
 use clap::{Parser, Subcommand};
 
 /// Audit an orbital eccentricity before you quote it.
@@ -29,7 +30,10 @@ enum Command {
 }
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(err) => return usage_error(err),
+    };
     let result = match cli.command {
         Command::Table(args) => commands::table::run(args),
         Command::Curve(args) => commands::curve::run(args),
@@ -43,4 +47,28 @@ fn main() -> ExitCode {
             ExitCode::FAILURE
         }
     }
+}
+
+/// Help and version go to standard output as clap prints them; a usage
+/// mistake becomes one line on standard error and exit status 2.
+fn usage_error(err: clap::Error) -> ExitCode {
+    if matches!(
+        err.kind(),
+        ErrorKind::DisplayHelp
+            | ErrorKind::DisplayVersion
+            | ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand
+    ) {
+        err.exit();
+    }
+    // clap's message proper is the paragraph before its usage block.
+    let rendered = err.render().to_string();
+    let message: Vec<&str> = rendered
+        .lines()
+        .take_while(|line| !line.trim().is_empty())
+        .map(str::trim)
+        .collect();
+    let message = message.join(" ");
+    let message = message.strip_prefix("error: ").unwrap_or(&message);
+    eprintln!("eccaudit: error: {message} (see `eccaudit --help`)");
+    ExitCode::from(2)
 }
