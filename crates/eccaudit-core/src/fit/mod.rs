@@ -76,7 +76,11 @@ pub struct FitOptions {
     pub lucy_sweeney_threshold: f64,
     /// Stellar mass [M_sun]; when given, m sin i and the relative semi-major axis are reported.
     pub stellar_mass: Option<f64>,
-    /// Levenberg–Marquardt settings (covariance is computed by the driver itself).
+    /// Levenberg–Marquardt settings of the runs from each start: looser tolerances, since only
+    /// the best start is refined further.
+    pub start_lsq: LsqOptions,
+    /// Levenberg–Marquardt settings of the final (polish, jitter, circular) runs. The covariance
+    /// is computed by the driver itself.
     pub lsq: LsqOptions,
 }
 
@@ -98,6 +102,12 @@ impl Default for FitOptions {
             jitter: false,
             lucy_sweeney_threshold: LUCY_SWEENEY_THRESHOLD,
             stellar_mass: None,
+            start_lsq: LsqOptions {
+                ftol: 1e-6,
+                xtol: 1e-6,
+                compute_covariance: false,
+                ..LsqOptions::default()
+            },
             lsq: LsqOptions {
                 ftol: 1e-10,
                 xtol: 1e-10,

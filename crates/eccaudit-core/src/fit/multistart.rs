@@ -402,7 +402,13 @@ pub fn fit_orbit(data: &FitData, options: &FitOptions) -> Result<FitReport, FitE
                     starts_out.push(outcome(f64::NAN, f64::NAN, f64::NAN, false));
                     continue;
                 };
-                match fit_least_squares_with(&mut solver, &problem, &initial, None, &options.lsq) {
+                match fit_least_squares_with(
+                    &mut solver,
+                    &problem,
+                    &initial,
+                    None,
+                    &options.start_lsq,
+                ) {
                     Ok(report) => {
                         let comp = decode_companion(
                             &layout,
