@@ -25,6 +25,8 @@ enum Command {
     Table(commands::table::Args),
     /// Evaluate a radial-velocity model from orbital elements and write CSV.
     Curve(commands::curve::Args),
+    /// Global least-squares Keplerian orbit fit with formal errors and the Lucy-Sweeney test.
+    Fit(commands::fit::Args),
     /// Time the hot loops (Kepler solve) natively.
     Bench(commands::bench::Args),
 }
@@ -37,6 +39,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Table(args) => commands::table::run(args),
         Command::Curve(args) => commands::curve::run(args),
+        Command::Fit(args) => commands::fit::run(args),
         Command::Bench(args) => commands::bench::run(args),
     };
     match result {

@@ -2,4 +2,5 @@
 
 pub mod bench;
 pub mod curve;
+pub mod fit;
 pub mod table;

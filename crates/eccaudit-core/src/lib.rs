@@ -7,6 +7,7 @@
 //! identical bits from identical inputs.
 
 pub mod constants;
+pub mod fit;
 pub mod kepler;
 pub mod lsq;
 pub mod model;
