@@ -74,6 +74,15 @@ pub struct EccentricAnomaly {
     pub cos: f64,
 }
 
+/// Two-constant Cody–Waite reduction of `angle` to [−π, π] (exact k = 0 for |angle| ≤ π); valid
+/// (absolute error ≲ 1e-15 rad) for |angle| < [`CODY_WAITE_LIMIT`]; the caller checks the range.
+#[inline(always)]
+fn cody_waite_signed(angle: f64) -> f64 {
+    let k = (angle * INV_TWO_PI + TO_INT) - TO_INT;
+    let reduced = (angle - k * TWO_PI_HI) - k * TWO_PI_LO;
+    reduced.clamp(-PI, PI)
+}
+
 /// Reduces any finite angle to [−π, π] (radians). Non-finite input gives NaN.
 ///
 /// |angle| ≤ π is returned unchanged (k = 0 below); up to 2^19·2π a two-constant Cody–Waite reduction is used
@@ -82,11 +91,17 @@ pub struct EccentricAnomaly {
 #[inline]
 pub fn reduce_angle_signed(angle: f64) -> f64 {
     if f64::abs(angle) < CODY_WAITE_LIMIT {
-        // Branch-free for the common case; k = 0 leaves |angle| ≤ π unchanged (exactly).
-        let k = (angle * INV_TWO_PI + TO_INT) - TO_INT;
-        let reduced = (angle - k * TWO_PI_HI) - k * TWO_PI_LO;
-        reduced.clamp(-PI, PI)
-    } else if angle.is_finite() {
+        cody_waite_signed(angle)
+    } else {
+        reduce_angle_signed_far(angle)
+    }
+}
+
+/// [`reduce_angle_signed`] beyond the Cody–Waite range (and for non-finite input).
+#[cold]
+#[inline(never)]
+fn reduce_angle_signed_far(angle: f64) -> f64 {
+    if angle.is_finite() {
         let (s, c) = libm::sincos(angle);
         libm::atan2(s, c)
     } else {
@@ -124,6 +139,80 @@ const MARKLEY_B: f64 = 1.6 * PI / (PI * PI - 6.0);
 /// omitted terms are δ⁷/5040 and δ⁶/720).
 const TAYLOR_DELTA_LIMIT: f64 = 1.0e-3;
 
+/// Range of the cube-root argument where [`starter_two_thirds_power`]'s bit trick is valid.
+const STARTER_POWER_MIN: f64 = 1.0e-200;
+const STARTER_POWER_MAX: f64 = 1.0e200;
+
+/// Markley's starter E₁ for M = `m` ∈ [0, π], its sine and cosine, and the fifth-order correction
+/// δ₅, all branch-free. `usable` is false where the division-free cube root is out of range (or
+/// an input was NaN); the caller then takes [`solve_nonnegative_careful`].
+struct MarkleyStep {
+    e1: f64,
+    sin_e1: f64,
+    cos_e1: f64,
+    d5: f64,
+    usable: bool,
+}
+
+/// Method: Markley, F. L. (1995), "Kepler Equation Solver", Celestial Mechanics and Dynamical
+/// Astronomy 63, 101–111: the cubic starter (his eqs. 5–20, α with the 1.6π term) and one
+/// fifth-order Halley-type correction (his eqs. 21–30, δ₃, δ₄, δ₅).
+#[inline(always)]
+fn markley_step(m: f64, e: f64) -> MarkleyStep {
+    let (base, d, q, q2, r) = markley_cubic(m, e);
+    let usable = (STARTER_POWER_MIN..=STARTER_POWER_MAX).contains(&base);
+    let w = starter_two_thirds_power_fast(base);
+    markley_correction(m, e, d, q, q2, r, w, usable)
+}
+
+/// The cubic of Markley's starter (his eqs. 5–20): returns (|r| + √(q³ + r²), d, q, q², r); r ≥ 0
+/// because m ≥ 0.
+#[inline(always)]
+fn markley_cubic(m: f64, e: f64) -> (f64, f64, f64, f64, f64) {
+    let one_minus_e = 1.0 - e;
+    let alpha = MARKLEY_A + MARKLEY_B * (PI - m) / (1.0 + e);
+    let d = 3.0 * one_minus_e + alpha * e;
+    let alpha_d = alpha * d;
+    let q = 2.0 * alpha_d * one_minus_e - m * m;
+    let q2 = q * q;
+    let r = 3.0 * alpha_d * (d - one_minus_e) * m + m * m * m;
+    let base = r + libm::sqrt(q2 * q + r * r);
+    (base, d, q, q2, r)
+}
+
+/// E₁ from w = base^(2/3), then sin E₁, cos E₁ and Markley's δ₅ (his eqs. 21–30).
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+fn markley_correction(
+    m: f64,
+    e: f64,
+    d: f64,
+    q: f64,
+    q2: f64,
+    r: f64,
+    w: f64,
+    usable: bool,
+) -> MarkleyStep {
+    let denominator = w * w + w * q + q2;
+    let e1 = (2.0 * r * w + m * denominator) / (d * denominator);
+    let (s1, c1) = sincos_zero_to_pi(e1);
+    let f0 = e1 - e * s1 - m;
+    let f1 = 1.0 - e * c1;
+    let f2 = e * s1;
+    let f3 = e * c1;
+    let d3 = -f0 * f1 / (f1 * f1 - 0.5 * f0 * f2);
+    let d4 = -f0 / (f1 + 0.5 * d3 * f2 + d3 * d3 * f3 * (1.0 / 6.0));
+    let d5 =
+        -f0 / (f1 + 0.5 * d4 * f2 + d4 * d4 * f3 * (1.0 / 6.0) - d4 * d4 * d4 * f2 * (1.0 / 24.0));
+    MarkleyStep {
+        e1,
+        sin_e1: s1,
+        cos_e1: c1,
+        d5,
+        usable,
+    }
+}
+
 /// Solves Kepler's equation for |M| ≤ π (M = `mean_anomaly_abs` ≥ 0) and returns E ∈ [0, π]
 /// with its sine and cosine.
 ///
@@ -135,66 +224,68 @@ const TAYLOR_DELTA_LIMIT: f64 = 1.0e-3;
 /// safeguarding Newton step follows; it needs no further trigonometry.
 #[inline(always)]
 fn solve_nonnegative(mean_anomaly_abs: f64, e: f64) -> (f64, f64, f64) {
-    let m = mean_anomaly_abs;
-    let one_minus_e = 1.0 - e;
-    // Starter (Markley 1995, eqs. 19–20 and the closed-form root of the cubic).
-    let alpha = MARKLEY_A + MARKLEY_B * (PI - m) / (1.0 + e);
-    let d = 3.0 * one_minus_e + alpha * e;
-    let alpha_d = alpha * d;
-    let q = 2.0 * alpha_d * one_minus_e - m * m;
-    let q2 = q * q;
-    let r = 3.0 * alpha_d * (d - one_minus_e) * m + m * m * m;
-    // w = (|r| + sqrt(q³ + r²))^(2/3); r ≥ 0 because m ≥ 0.
-    let base = r + libm::sqrt(q2 * q + r * r);
-    let w = starter_two_thirds_power(base);
-    let denominator = w * w + w * q + q2;
-    let e1 = (2.0 * r * w + m * denominator) / (d * denominator);
-
-    // Fifth-order correction (Markley 1995, eqs. 21–30).
-    let (s1, c1) = sincos_zero_to_pi(e1);
-    let f0 = e1 - e * s1 - m;
-    let f1 = 1.0 - e * c1;
-    let f2 = e * s1;
-    let f3 = e * c1;
-    let d3 = -f0 * f1 / (f1 * f1 - 0.5 * f0 * f2);
-    let d4 = -f0 / (f1 + 0.5 * d3 * f2 + d3 * d3 * f3 * (1.0 / 6.0));
-    let d5 =
-        -f0 / (f1 + 0.5 * d4 * f2 + d4 * d4 * f3 * (1.0 / 6.0) - d4 * d4 * d4 * f2 * (1.0 / 24.0));
-
-    if f64::abs(d5) < TAYLOR_DELTA_LIMIT {
-        let (sd, cd) = small_angle_sincos(d5);
-        let ecc_anomaly = e1 + d5;
-        let sin_e = s1 * cd + c1 * sd;
-        let cos_e = c1 * cd - s1 * sd;
-        (ecc_anomaly, sin_e, cos_e)
+    let step = markley_step(mean_anomaly_abs, e);
+    if step.usable && f64::abs(step.d5) < TAYLOR_DELTA_LIMIT {
+        rotate_by_correction(&step)
     } else {
-        // Rare path (e → 1, M → 0): exact sine and cosine, then one safeguarding Newton step
-        // whose own rotation is tiny.
-        let ecc_anomaly = e1 + d5;
-        let (s, c) = libm::sincos(ecc_anomaly);
-        let f0 = ecc_anomaly - e * s - m;
-        let f1 = one_minus_e + e * one_minus_cos(s, c);
-        let step = -f0 / f1;
-        let (sd, cd) = small_angle_sincos(step);
-        (ecc_anomaly + step, s * cd + c * sd, c * cd - s * sd)
+        solve_nonnegative_careful(mean_anomaly_abs, e)
     }
 }
 
-/// x^(2/3) for x > 0, for Markley's starter, without a division: a bit-level first guess of
+/// E₁ + δ₅ with sin and cos rotated from those of E₁ by a Taylor series in δ₅.
+#[inline(always)]
+fn rotate_by_correction(step: &MarkleyStep) -> (f64, f64, f64) {
+    let (sd, cd) = small_angle_sincos(step.d5);
+    let ecc_anomaly = step.e1 + step.d5;
+    let sin_e = step.sin_e1 * cd + step.cos_e1 * sd;
+    let cos_e = step.cos_e1 * cd - step.sin_e1 * sd;
+    (ecc_anomaly, sin_e, cos_e)
+}
+
+/// The rare cases of [`solve_nonnegative`]: a cube-root argument outside the bit trick's range
+/// (then `libm::cbrt`), and a large correction (e → 1, M → 0: exact sine and cosine of E₁ + δ₅,
+/// then one safeguarding Newton step whose own rotation is tiny).
+#[cold]
+#[inline(never)]
+fn solve_nonnegative_careful(m: f64, e: f64) -> (f64, f64, f64) {
+    let (base, d, q, q2, r) = markley_cubic(m, e);
+    let w = starter_two_thirds_power(base);
+    let step = markley_correction(m, e, d, q, q2, r, w, true);
+    if f64::abs(step.d5) < TAYLOR_DELTA_LIMIT {
+        return rotate_by_correction(&step);
+    }
+    let ecc_anomaly = step.e1 + step.d5;
+    let (s, c) = libm::sincos(ecc_anomaly);
+    let f0 = ecc_anomaly - e * s - m;
+    let f1 = (1.0 - e) + e * one_minus_cos(s, c);
+    let newton = -f0 / f1;
+    let (sd, cd) = small_angle_sincos(newton);
+    (ecc_anomaly + newton, s * cd + c * sd, c * cd - s * sd)
+}
+
+/// x^(2/3) for x > 0, for Markley's starter; [`starter_two_thirds_power_fast`] inside
+/// [1e-200, 1e200], `libm::cbrt` outside.
+#[inline]
+fn starter_two_thirds_power(x: f64) -> f64 {
+    if (STARTER_POWER_MIN..=STARTER_POWER_MAX).contains(&x) {
+        starter_two_thirds_power_fast(x)
+    } else {
+        let c = libm::cbrt(x);
+        c * c
+    }
+}
+
+/// x^(2/3) for x in [1e-200, 1e200], without a division: a bit-level first guess of
 /// y = x^(−1/3) (relative error < 3.5e-2) refined by three Newton steps y ← y (4 − x y³) / 3
 /// (error ε → 2ε²: 3.5e-2 → 2.4e-3 → 1.2e-5 → 3e-10), then x^(2/3) = x·y. Pure IEEE
 /// arithmetic, so native and wasm agree bit for bit; the starter does not need a correctly rounded
 /// power because Markley's fifth-order correction removes such an error (the residual tests check
-/// this). Inputs outside [1e-200, 1e200] fall back to `libm::cbrt`.
+/// this). Outside [1e-200, 1e200] the result is meaningless (the caller checks the range).
 #[inline(always)]
-fn starter_two_thirds_power(x: f64) -> f64 {
-    if !(1.0e-200..=1.0e200).contains(&x) {
-        let c = libm::cbrt(x);
-        return c * c;
-    }
+fn starter_two_thirds_power_fast(x: f64) -> f64 {
     // 0x553E_F0FE_C9D9_B000 ≈ (4/3)·2^52·(1023 − 0.045), tuned to minimise the first guess's
     // maximum relative error: the inverse-cube-root analogue of the inverse-square-root bit trick.
-    let mut y = f64::from_bits(0x553E_F0FE_C9D9_B000 - x.to_bits() / 3);
+    let mut y = f64::from_bits(0x553E_F0FE_C9D9_B000_u64.wrapping_sub(x.to_bits() / 3));
     let third_x = x * (1.0 / 3.0);
     y *= 4.0 / 3.0 - third_x * (y * y * y);
     y *= 4.0 / 3.0 - third_x * (y * y * y);
@@ -202,21 +293,72 @@ fn starter_two_thirds_power(x: f64) -> f64 {
     x * y
 }
 
-/// sin x and cos x for x in about [0, 5π/4] (the starter E₁): x is reduced here to
-/// |y| ≤ π/4 by y = x − nπ/2 (n = round(2x/π), with π/2 split as in msun's `e_rem_pio2.c`) so that
-/// `libm::sincos` takes its no-reduction path, and the quadrant is applied with selects instead
-/// of the unpredictable branch inside `libm::sincos`: q = 0: (sin y, cos y); 1: (cos y, −sin y);
-/// 2: (−sin y, −cos y); 3: (−cos y, sin y). Absolute error ≲ 2e-16.
+/// π/2 split for the quadrant reduction: `PIO2_1` holds the first 33 bits of π/2 (so n·PIO2_1 is
+/// exact for small n) and `PIO2_1T` = π/2 − PIO2_1 (FreeBSD msun / Sun fdlibm `e_rem_pio2.c`
+/// constants `pio2_1`, `pio2_1t`, as carried by the `libm` crate).
+const PIO2_1: f64 = f64::from_bits(0x3FF9_21FB_5440_0000);
+const PIO2_1T: f64 = f64::from_bits(0x3DD0_B461_1A62_6331);
+
+/// Polynomial coefficients of Sun Microsystems fdlibm `k_sin.c` (`__kernel_sin`, S1–S6,
+/// Copyright 1993 Sun Microsystems, freely redistributable; as carried by FreeBSD msun, musl and
+/// the `libm` crate's `k_sin.rs`): sin x ≈ x + S1 x³ + … + S6 x¹³ on |x| ≤ π/4, error < 2^−58.
+const SIN_S1: f64 = -1.666_666_666_666_663_243_48e-1; // 0xBFC5_5555_5555_5549
+const SIN_S2: f64 = 8.333_333_333_322_489_461_24e-3; // 0x3F81_1111_1110_F8A6
+const SIN_S3: f64 = -1.984_126_982_985_794_931_34e-4; // 0xBF2A_01A0_19C1_61D5
+const SIN_S4: f64 = 2.755_731_370_707_006_767_89e-6; // 0x3EC7_1DE3_57B1_FE7D
+const SIN_S5: f64 = -2.505_076_025_340_686_341_95e-8; // 0xBE5A_E5E6_8A2B_9CEB
+const SIN_S6: f64 = 1.589_690_995_211_550_102_21e-10; // 0x3DE5_D93A_5ACF_D57C
+
+/// Polynomial coefficients of Sun Microsystems fdlibm `k_cos.c` (`__kernel_cos`, C1–C6, same
+/// provenance): cos x ≈ 1 − x²/2 + C1 x⁴ + … + C6 x¹⁴ on |x| ≤ π/4, error < 2^−58.
+const COS_C1: f64 = 4.166_666_666_666_660_190_37e-2; // 0x3FA5_5555_5555_554C
+const COS_C2: f64 = -1.388_888_888_887_410_957_49e-3; // 0xBF56_C16C_16C1_5177
+const COS_C3: f64 = 2.480_158_728_947_672_941_78e-5; // 0x3EFA_01A0_19CB_1590
+const COS_C4: f64 = -2.755_731_435_139_066_330_35e-7; // 0xBE92_7E4F_809C_52AD
+const COS_C5: f64 = 2.087_572_321_298_174_827_90e-9; // 0x3E21_EE9E_BDB4_B1C4
+const COS_C6: f64 = -1.135_964_755_778_819_482_65e-11; // 0xBDA8_FAE9_BE88_38D4
+
+/// sin(x + y) for |x| ≤ π/4 and a tail |y| ≪ ulp(x): fdlibm's `__kernel_sin` (k_sin.c, the
+/// branch with a tail), plain IEEE arithmetic without FMA.
+#[inline(always)]
+fn kernel_sin(x: f64, y: f64) -> f64 {
+    let z = x * x;
+    let w = z * z;
+    let r = SIN_S2 + z * (SIN_S3 + z * SIN_S4) + z * w * (SIN_S5 + z * SIN_S6);
+    let v = z * x;
+    x - ((z * (0.5 * y - v * r) - y) - v * SIN_S1)
+}
+
+/// cos(x + y) for |x| ≤ π/4 and a tail |y| ≪ ulp(x): fdlibm's `__kernel_cos` (k_cos.c, the
+/// branch-free FreeBSD/musl form), plain IEEE arithmetic without FMA.
+#[inline(always)]
+fn kernel_cos(x: f64, y: f64) -> f64 {
+    let z = x * x;
+    let w = z * z;
+    let r = z * (COS_C1 + z * (COS_C2 + z * COS_C3)) + w * w * (COS_C4 + z * (COS_C5 + z * COS_C6));
+    let hz = 0.5 * z;
+    let w = 1.0 - hz;
+    w + (((1.0 - w) - hz) + (z * r - x * y))
+}
+
+/// sin x and cos x for x in about [−5π/4, 5π/4] (the starter E₁ lies in [0, π]), branch-free:
+/// x − nπ/2 = y₀ + y₁ with n = round(2x/π) (the medium-range step of fdlibm `e_rem_pio2.c`), the
+/// fdlibm kernels on |y₀| ≤ π/4, and the quadrant n mod 4 applied with bit selects:
+/// 0: (sin y, cos y); 1: (cos y, −sin y); 2: (−sin y, −cos y); 3: (−cos y, sin y).
 #[inline(always)]
 fn sincos_zero_to_pi(x: f64) -> (f64, f64) {
-    const PIO2_HI: f64 = f64::from_bits(0x3FF9_21FB_5440_0000);
-    const PIO2_LO: f64 = f64::from_bits(0x3DD0_B461_1A62_6331);
-    let n = (x * core::f64::consts::FRAC_2_PI + TO_INT) - TO_INT;
-    let y = (x - n * PIO2_HI) - n * PIO2_LO;
-    let (sy, cy) = libm::sincos(y);
+    // shifted = 1.5·2^52 + n exactly, so its low mantissa bits are n mod 4 (also for n < 0).
+    let shifted = x * core::f64::consts::FRAC_2_PI + TO_INT;
+    let n = shifted - TO_INT;
+    let r = x - n * PIO2_1;
+    let w = n * PIO2_1T;
+    let y0 = r - w;
+    let y1 = (r - y0) - w;
+    let sy = kernel_sin(y0, y1);
+    let cy = kernel_cos(y0, y1);
     // Bit-level selects: LLVM turns `if`-selects of this shape into real branches, which the
     // random quadrant would mispredict about half the time.
-    let quadrant = (n as i64 as u64) & 3;
+    let quadrant = shifted.to_bits() & 3;
     let swap_mask = (quadrant & 1).wrapping_neg(); // all ones in odd quadrants
     let (sy_bits, cy_bits) = (sy.to_bits(), cy.to_bits());
     let sin_bits = (sy_bits & !swap_mask) | (cy_bits & swap_mask);
@@ -361,17 +503,65 @@ pub fn benchmark_inputs(n: usize, seed: u64) -> Vec<(f64, f64)> {
         .collect()
 }
 
+/// The branch-free common path of [`eccentric_anomaly`] for a raw (M, e) pair: E ∈ [0, 2π) and
+/// whether it is valid. It is false for an eccentricity outside [0, 1), |M| beyond the
+/// Cody–Waite range, NaN, or one of the rare cases of [`solve_nonnegative`]; the caller then uses
+/// [`eccentric_anomaly`] (whose common path performs exactly the same operations, so the bits
+/// agree).
+#[inline(always)]
+fn eccentric_anomaly_fast(mean_anomaly: f64, e: f64) -> (f64, bool) {
+    let e_valid = (0.0..1.0).contains(&e);
+    let e = if e_valid { e } else { 0.0 };
+    let m_in_range = f64::abs(mean_anomaly) < CODY_WAITE_LIMIT;
+    let reduced = cody_waite_signed(mean_anomaly);
+    let step = markley_step(f64::abs(reduced), e);
+    let (angle, _, _) = rotate_by_correction(&step);
+    let sign = f64::copysign(1.0, reduced);
+    let ok = e_valid & m_in_range & step.usable & (f64::abs(step.d5) < TAYLOR_DELTA_LIMIT);
+    (wrap_negative(sign * angle), ok)
+}
+
+/// [`eccentric_anomaly`] for a raw (M, e) pair; NaN for an eccentricity outside [0, 1).
+#[inline]
+fn eccentric_anomaly_or_nan(mean_anomaly: f64, e: f64) -> f64 {
+    match Eccentricity::new(e) {
+        Ok(eccentricity) => eccentric_anomaly(mean_anomaly, eccentricity),
+        Err(_) => f64::NAN,
+    }
+}
+
+/// How many independent solves [`solve_all`] interleaves, so that the processor overlaps their
+/// long dependency chains (divisions, square root, sine and cosine).
+const SOLVE_LANES: usize = 4;
+
 /// Solves Kepler's equation for every (M, e) pair of `inputs` and returns the sum of the
-/// eccentric anomalies, a checksum that keeps the optimiser from removing the work. Pairs with an
-/// eccentricity outside [0, 1) contribute NaN (so the checksum becomes NaN) instead of panicking.
+/// eccentric anomalies (added in input order), a checksum that keeps the optimiser from removing
+/// the work. Pairs with an eccentricity outside [0, 1) contribute NaN (so the checksum becomes
+/// NaN) instead of panicking. Each E is bit for bit the value of [`eccentric_anomaly`].
 pub fn solve_all(inputs: &[(f64, f64)]) -> f64 {
-    inputs
-        .iter()
-        .map(|&(mean_anomaly, e)| match Eccentricity::new(e) {
-            Ok(eccentricity) => eccentric_anomaly(mean_anomaly, eccentricity),
-            Err(_) => f64::NAN,
-        })
-        .sum()
+    let mut sum = 0.0;
+    let mut chunks = inputs.chunks_exact(SOLVE_LANES);
+    for chunk in &mut chunks {
+        let mut angles = [0.0; SOLVE_LANES];
+        let mut valid = [false; SOLVE_LANES];
+        for ((angle, ok), &(mean_anomaly, e)) in angles.iter_mut().zip(&mut valid).zip(chunk) {
+            (*angle, *ok) = eccentric_anomaly_fast(mean_anomaly, e);
+        }
+        if valid != [true; SOLVE_LANES] {
+            for ((angle, ok), &(mean_anomaly, e)) in angles.iter_mut().zip(valid).zip(chunk) {
+                if !ok {
+                    *angle = eccentric_anomaly_or_nan(mean_anomaly, e);
+                }
+            }
+        }
+        for angle in angles {
+            sum += angle;
+        }
+    }
+    for &(mean_anomaly, e) in chunks.remainder() {
+        sum += eccentric_anomaly_or_nan(mean_anomaly, e);
+    }
+    sum
 }
 
 #[cfg(test)]

@@ -13,8 +13,10 @@ pub use velocity::{draw_velocities, ModelCurve, VelocityFigure, VelocitySeries};
 
 /// The error every drawing function returns: the backend's own error type,
 /// wrapped by plotters.
-pub type DrawResult<DB> =
-    Result<(), plotters::drawing::DrawingAreaErrorKind<<DB as plotters::prelude::DrawingBackend>::ErrorType>>;
+pub type DrawResult<DB> = Result<
+    (),
+    plotters::drawing::DrawingAreaErrorKind<<DB as plotters::prelude::DrawingBackend>::ErrorType>,
+>;
 
 /// A readable axis offset for large time values: times such as
 /// 2 460 123.4 are drawn as 123.4 with the offset named in the axis label.

@@ -52,10 +52,7 @@ pub fn draw_velocities<DB: DrawingBackend>(
             .zip(&s.uncertainty)
             .flat_map(|(v, e)| [v - e, v + e])
     });
-    let curve_extent = figure
-        .curve
-        .iter()
-        .flat_map(|c| c.velocity.iter().copied());
+    let curve_extent = figure.curve.iter().flat_map(|c| c.velocity.iter().copied());
     let (v_lo, v_hi) = padded_range(data_extent.chain(curve_extent), 0.08);
 
     let x_label = if t0 == 0.0 {
@@ -83,7 +80,11 @@ pub fn draw_velocities<DB: DrawingBackend>(
     if let Some(curve) = &figure.curve {
         chart
             .draw_series(LineSeries::new(
-                curve.time.iter().zip(&curve.velocity).map(|(t, v)| (t - t0, *v)),
+                curve
+                    .time
+                    .iter()
+                    .zip(&curve.velocity)
+                    .map(|(t, v)| (t - t0, *v)),
                 INK.stroke_width(2),
             ))?
             .label("model")
@@ -158,7 +159,9 @@ mod tests {
         }
         // Four measurements drawn as filled circles, plus two legend markers
         // (the SVG writer also emits an outline for each; count the fills).
-        let filled = svg.lines().filter(|l| l.starts_with("<circle") && l.contains("stroke=\"none\""));
+        let filled = svg
+            .lines()
+            .filter(|l| l.starts_with("<circle") && l.contains("stroke=\"none\""));
         assert_eq!(filled.count(), 4 + 2);
         assert!(svg.contains("BJD − 2460000"));
         // Instrument names are text, escaped by the SVG writer.

@@ -32,7 +32,8 @@ pub fn install_panic_hook() {
         let message = info.to_string();
         web_sys::console::error_1(&JsValue::from_str(&message));
         let global = js_sys::global();
-        if let Ok(report) = js_sys::Reflect::get(&global, &JsValue::from_str("eccauditReportPanic")) {
+        if let Ok(report) = js_sys::Reflect::get(&global, &JsValue::from_str("eccauditReportPanic"))
+        {
             if let Some(report) = report.dyn_ref::<js_sys::Function>() {
                 let _ = report.call1(&JsValue::NULL, &JsValue::from_str(&message));
             }
