@@ -603,21 +603,53 @@ fn eccentric_anomaly_or_nan(mean_anomaly: f64, e: f64) -> f64 {
 }
 
 /// How many independent solves [`solve_all`] interleaves, so that the processor overlaps their
-/// long dependency chains (divisions, square root, sine and cosine).
+/// long dependency chains (divisions, square root, sine and cosine): two SSE2 registers of two
+/// lanes each.
 const SOLVE_LANES: usize = 4;
+
+/// The lane count of [`solve_all`] on x86-64 processors with AVX2: two 256-bit registers of four.
+#[cfg(target_arch = "x86_64")]
+const SOLVE_LANES_AVX2: usize = 8;
 
 /// Solves Kepler's equation for every (M, e) pair of `inputs` and returns the sum of the
 /// eccentric anomalies (added in input order), a checksum that keeps the optimiser from removing
 /// the work. Pairs with an eccentricity outside [0, 1) contribute NaN (so the checksum becomes
 /// NaN) instead of panicking. Each E is bit for bit the value of [`eccentric_anomaly`].
+///
+/// On x86-64 processors with AVX2 the same code runs with wider registers (detected at run time);
+/// the lanes still perform only correctly rounded IEEE operations without fused multiply–add,
+/// so the bits do not change.
 pub fn solve_all(inputs: &[(f64, f64)]) -> f64 {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor supports AVX2, checked just above.
+            return unsafe { solve_all_avx2(inputs) };
+        }
+    }
+    solve_all_lanes::<SOLVE_LANES>(inputs)
+}
+
+/// [`solve_all_lanes`] compiled for AVX2.
+///
+/// # Safety
+/// The processor must support AVX2.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn solve_all_avx2(inputs: &[(f64, f64)]) -> f64 {
+    solve_all_lanes::<SOLVE_LANES_AVX2>(inputs)
+}
+
+/// [`solve_all`] with `N` lanes.
+#[inline(always)]
+fn solve_all_lanes<const N: usize>(inputs: &[(f64, f64)]) -> f64 {
     let mut sum = 0.0;
-    let mut chunks = inputs.chunks_exact(SOLVE_LANES);
+    let mut chunks = inputs.chunks_exact(N);
     for chunk in &mut chunks {
         let mean_anomalies = Lanes(core::array::from_fn(|i| chunk[i].0));
         let eccentricities = Lanes(core::array::from_fn(|i| chunk[i].1));
         let (Lanes(mut angles), valid) =
-            eccentric_anomaly_fast::<Lanes<SOLVE_LANES>>(mean_anomalies, eccentricities);
+            eccentric_anomaly_fast::<Lanes<N>>(mean_anomalies, eccentricities);
         if !valid.all() {
             for (i, (angle, &(mean_anomaly, e))) in angles.iter_mut().zip(chunk).enumerate() {
                 if !valid.lane(i) {
@@ -721,7 +753,7 @@ mod tests {
 
     #[test]
     fn lanes_give_the_bits_of_the_scalar_solver() {
-        // solve_all's four-lane path must reproduce eccentric_anomaly bit for bit, including
+        // solve_all's lane paths must reproduce eccentric_anomaly bit for bit, including
         // chunks that mix ordinary pairs with every fallback: invalid e, NaN, huge |M|, e → 1 at
         // small M (large correction), M at ±0 and ±π.
         let mut inputs = benchmark_inputs(4001, 11);
@@ -740,16 +772,21 @@ mod tests {
         for (k, &pair) in specials.iter().enumerate() {
             inputs.insert(7 * k + 1, pair);
         }
-        for chunk in inputs.chunks(4) {
-            let lanes: f64 = solve_all(chunk);
+        let same = |a: f64, b: f64| a.to_bits() == b.to_bits() || (a.is_nan() && b.is_nan());
+        for chunk in inputs.chunks(4).chain(inputs.chunks(8)) {
             let scalar: f64 = chunk
                 .iter()
                 .map(|&(m, e)| eccentric_anomaly_or_nan(m, e))
                 .sum();
-            assert!(
-                lanes.to_bits() == scalar.to_bits() || (lanes.is_nan() && scalar.is_nan()),
-                "{chunk:?}: {lanes} vs {scalar}"
-            );
+            // The portable four-lane path, the eight-lane shape (AVX2 on x86-64 when the
+            // processor has it, else plain code), and whatever solve_all dispatches to.
+            for lanes in [
+                solve_all_lanes::<4>(chunk),
+                solve_all_lanes::<8>(chunk),
+                solve_all(chunk),
+            ] {
+                assert!(same(lanes, scalar), "{chunk:?}: {lanes} vs {scalar}");
+            }
         }
         for &(m, e) in &inputs {
             // (The checksum starts from +0.0, so a −0.0 angle comes back as +0.0: compare with ==.)
