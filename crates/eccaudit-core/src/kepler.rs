@@ -11,7 +11,7 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 
 mod lanes;
 
-use lanes::{Lanes, Real};
+pub(crate) use lanes::{LaneMask, Lanes, Real};
 
 /// 2π.
 pub const TWO_PI: f64 = 2.0 * PI;
@@ -461,6 +461,45 @@ fn one_minus_cos(sin: f64, cos: f64) -> f64 {
     } else {
         1.0 - cos
     }
+}
+
+/// [`one_minus_cos`] for lanes: both forms computed, the right one selected (same bits).
+#[inline(always)]
+fn one_minus_cos_lanes<T: Real>(sin: T, cos: T) -> T {
+    let positive = T::splat(0.0).lt_lanes(cos);
+    T::select(positive, sin * sin / (cos + 1.0), T::splat(1.0) - cos)
+}
+
+/// The branch-free common path of [`eccentric_anomaly_reduced`] for lanes: (E, sin E, cos E)
+/// and whether each lane is valid (false: NaN, or a rare case of [`solve_nonnegative`]; the
+/// caller then uses [`eccentric_anomaly_reduced`], whose common path performs exactly the same
+/// operations).
+#[inline(always)]
+pub(crate) fn eccentric_anomaly_reduced_fast<T: Real>(
+    mean_anomaly: T,
+    e: f64,
+) -> (T, T, T, T::Mask) {
+    let step = markley_step(mean_anomaly.abs(), T::splat(e));
+    let (angle, sin, cos) = rotate_by_correction(&step);
+    let ok = step.usable & step.d5.abs().lt(TAYLOR_DELTA_LIMIT);
+    let sign = mean_anomaly.unit_with_sign();
+    (sign * angle, sign * sin, cos, ok)
+}
+
+/// [`true_anomaly_cos_sin_prepared`] for lanes (same operations, same bits).
+#[inline(always)]
+pub(crate) fn true_anomaly_cos_sin_lanes<T: Real>(
+    sin_e: T,
+    cos_e: T,
+    e: f64,
+    sqrt_one_minus_e2: f64,
+) -> (T, T) {
+    let one_minus_e = T::splat(1.0 - e);
+    let two_sin2_half = one_minus_cos_lanes(sin_e, cos_e);
+    let inv_denominator = T::splat(1.0) / (one_minus_e + two_sin2_half * e);
+    let cos_nu = (one_minus_e - two_sin2_half) * inv_denominator;
+    let sin_nu = sin_e * sqrt_one_minus_e2 * inv_denominator;
+    (cos_nu, sin_nu)
 }
 
 /// Solves Kepler's equation for a mean anomaly already in [−π, π]; returns E ∈ [−π, π] (same

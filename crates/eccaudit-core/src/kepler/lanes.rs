@@ -40,6 +40,8 @@ pub(crate) trait Real:
     fn ge(self, bound: f64) -> Self::Mask;
     /// x ≤ bound (false for NaN).
     fn le(self, bound: f64) -> Self::Mask;
+    /// x < y lane by lane (false for NaN).
+    fn lt_lanes(self, other: Self) -> Self::Mask;
     /// Lane-wise `if mask { if_true } else { if_false }`.
     fn select(mask: Self::Mask, if_true: Self, if_false: Self) -> Self;
     /// Applies `f` to the bit pattern of every lane.
@@ -82,6 +84,10 @@ impl Real for f64 {
     #[inline(always)]
     fn le(self, bound: f64) -> bool {
         self <= bound
+    }
+    #[inline(always)]
+    fn lt_lanes(self, other: Self) -> bool {
+        self < other
     }
     #[inline(always)]
     fn select(mask: bool, if_true: Self, if_false: Self) -> Self {
@@ -215,6 +221,10 @@ impl<const N: usize> Real for Lanes<N> {
     #[inline(always)]
     fn le(self, bound: f64) -> LaneMask<N> {
         LaneMask(core::array::from_fn(|i| mask_word(self.0[i] <= bound)))
+    }
+    #[inline(always)]
+    fn lt_lanes(self, other: Self) -> LaneMask<N> {
+        LaneMask(core::array::from_fn(|i| mask_word(self.0[i] < other.0[i])))
     }
     #[inline(always)]
     fn select(mask: LaneMask<N>, if_true: Self, if_false: Self) -> Self {
