@@ -251,7 +251,7 @@ impl EccentricityPriorSettings {
             settings: *self,
             cdf_at_min,
             mass,
-            log_mass: libm::log(mass),
+            log_normaliser: libm::log(mass) + shape_log_normaliser(shape),
         })
     }
 }
@@ -264,7 +264,8 @@ pub struct EccentricityPrior {
     cdf_at_min: f64,
     /// Untruncated probability in [e_min, e_max].
     mass: f64,
-    log_mass: f64,
+    /// ln(mass) plus the shape's own normalising constant.
+    log_normaliser: f64,
 }
 
 impl EccentricityPrior {
@@ -298,7 +299,7 @@ impl EccentricityPrior {
         if !self.in_support(e) {
             return f64::NEG_INFINITY;
         }
-        shape_log_density(self.settings.shape, e) - self.log_mass
+        shape_log_kernel(self.settings.shape, e) - self.log_normaliser
     }
 
     /// Normalised density of e (see [`EccentricityPrior::log_density`]).
@@ -387,25 +388,35 @@ fn positive_scale(setting: &'static str, value: f64) -> Result<(), PriorError> {
     }
 }
 
-/// Unnormalised-on-truncation (but normalised on [0, 1] or [0, ∞)) log-density of a shape.
-fn shape_log_density(shape: EccentricityShape, e: f64) -> f64 {
+/// The log of the shape's kernel, without constants: `ln p(e) = kernel(e) − log_normaliser`.
+fn shape_log_kernel(shape: EccentricityShape, e: f64) -> f64 {
     match shape {
         EccentricityShape::Uniform
         | EccentricityShape::UniformInSqrtECosOmega
         | EccentricityShape::Circular => 0.0,
-        EccentricityShape::Beta { a, b } => {
-            (a - 1.0) * libm::log(e) + (b - 1.0) * libm::log1p(-e) - ln_beta(a, b)
-        }
-        EccentricityShape::Rayleigh { sigma } => {
-            libm::log(e) - 2.0 * libm::log(sigma) - e * e / (2.0 * sigma * sigma)
-        }
-        // √(2/π)/σ · exp(−e²/2σ²).
-        EccentricityShape::HalfNormal { sigma } => {
-            0.5 * libm::log(2.0) - 0.5 * LN_PI - libm::log(sigma) - e * e / (2.0 * sigma * sigma)
-        }
-        // Unnormalised 1/e: the truncation mass is ln(e_max/e_min) from shape_cdf.
+        EccentricityShape::Beta { a, b } => (a - 1.0) * libm::log(e) + (b - 1.0) * libm::log1p(-e),
+        EccentricityShape::Rayleigh { sigma } => libm::log(e) - e * e / (2.0 * sigma * sigma),
+        EccentricityShape::HalfNormal { sigma } => -e * e / (2.0 * sigma * sigma),
         EccentricityShape::LogUniform => -libm::log(e),
-        EccentricityShape::UniformInECosOmega => libm::log(2.0 * e),
+        EccentricityShape::UniformInECosOmega => libm::log(e),
+    }
+}
+
+/// The constant that makes the kernel a density on [0, 1] (Beta, p ∝ e) or
+/// [0, ∞) (Rayleigh, half-normal), consistent with [`shape_cdf`]; for
+/// log-uniform, 0 (its `shape_cdf` is the antiderivative ln e).
+fn shape_log_normaliser(shape: EccentricityShape) -> f64 {
+    match shape {
+        EccentricityShape::Beta { a, b } => ln_beta(a, b),
+        // σ² for e exp(−e²/2σ²).
+        EccentricityShape::Rayleigh { sigma } => 2.0 * libm::log(sigma),
+        // σ √(π/2) for exp(−e²/2σ²).
+        EccentricityShape::HalfNormal { sigma } => {
+            libm::log(sigma) + 0.5 * LN_PI - 0.5 * libm::log(2.0)
+        }
+        // ½ for e.
+        EccentricityShape::UniformInECosOmega => -libm::log(2.0),
+        _ => 0.0,
     }
 }
 
