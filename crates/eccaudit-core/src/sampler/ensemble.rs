@@ -1,0 +1,706 @@
+//! The affine-invariant ensemble sampler with the stretch move: settings, resumable state, stored chains and the one-call driver.
+
+use std::ops::ControlFlow;
+
+use rand::RngExt;
+use serde::{Deserialize, Serialize};
+use thiserror::Error;
+
+use crate::random::{standard_normal, stream_rng, SimRng};
+
+/// A target density known up to a constant.
+pub trait LogDensity {
+    /// Number of parameters.
+    fn dim(&self) -> usize;
+    /// The log-density at `x` (`x.len() == dim()`), −∞ outside the support.
+    /// NaN is treated as −∞.
+    fn log_density(&self, x: &[f64]) -> f64;
+}
+
+impl<T: LogDensity + ?Sized> LogDensity for &T {
+    fn dim(&self) -> usize {
+        (**self).dim()
+    }
+    fn log_density(&self, x: &[f64]) -> f64 {
+        (**self).log_density(x)
+    }
+}
+
+/// A closure used as a [`LogDensity`].
+#[derive(Debug, Clone, Copy)]
+pub struct DensityFn<F> {
+    /// Number of parameters.
+    pub dim: usize,
+    /// The log-density.
+    pub log_density: F,
+}
+
+impl<F: Fn(&[f64]) -> f64> LogDensity for DensityFn<F> {
+    fn dim(&self) -> usize {
+        self.dim
+    }
+    fn log_density(&self, x: &[f64]) -> f64 {
+        (self.log_density)(x)
+    }
+}
+
+/// Settings of an ensemble run. Total steps taken: `n_burn + n_steps`; of
+/// the last `n_steps`, every `thin`-th is stored.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct SamplerSettings {
+    /// Number of walkers: even and at least twice the dimension (default 32).
+    pub n_walkers: usize,
+    /// Steps after burn-in (default 2000).
+    pub n_steps: usize,
+    /// Burn-in steps, discarded (default 500).
+    pub n_burn: usize,
+    /// Keep every `thin`-th step after burn-in (default 1).
+    pub thin: usize,
+    /// Stretch-move scale a > 1 (default 2, Goodman & Weare 2010).
+    pub stretch_a: f64,
+    /// Seed of the random stream.
+    pub seed: u64,
+}
+
+impl Default for SamplerSettings {
+    fn default() -> Self {
+        SamplerSettings {
+            n_walkers: 32,
+            n_steps: 2000,
+            n_burn: 500,
+            thin: 1,
+            stretch_a: 2.0,
+            seed: 1,
+        }
+    }
+}
+
+/// Errors of the ensemble sampler.
+#[derive(Debug, Clone, PartialEq, Error)]
+pub enum SamplerError {
+    /// The target has no parameters.
+    #[error("the target has no parameters")]
+    NoParameters,
+    /// Too few walkers for the dimension, or an odd number.
+    #[error(
+        "{n_walkers} walkers for {dim} parameters: the stretch move needs an even number \
+         of walkers, at least {minimum} (twice the number of parameters)"
+    )]
+    WalkerCount {
+        /// Walkers asked for.
+        n_walkers: usize,
+        /// Parameters of the target.
+        dim: usize,
+        /// Smallest acceptable even count.
+        minimum: usize,
+    },
+    /// Stretch scale not above 1.
+    #[error("stretch_a = {stretch_a} must be a finite number above 1 (2 is usual)")]
+    StretchScale {
+        /// Value given.
+        stretch_a: f64,
+    },
+    /// No steps to keep, or thinning of zero.
+    #[error("n_steps = {n_steps} and thin = {thin}: need n_steps ≥ thin ≥ 1 to store anything")]
+    NothingStored {
+        /// Steps after burn-in.
+        n_steps: usize,
+        /// Thinning.
+        thin: usize,
+    },
+    /// Start point or scales of the wrong length.
+    #[error("{what} has {got} entries, the target has {expected} parameters")]
+    Length {
+        /// `start` or `scales`.
+        what: &'static str,
+        /// Entries given.
+        got: usize,
+        /// Entries expected.
+        expected: usize,
+    },
+    /// A start coordinate is not finite.
+    #[error("start[{index}] = {value} is not finite")]
+    NonFiniteStart {
+        /// Parameter index.
+        index: usize,
+        /// Value given.
+        value: f64,
+    },
+    /// An initial-ball scale is not a positive finite number.
+    #[error("scales[{index}] = {value}: every initial-ball scale must be positive and finite")]
+    BadScale {
+        /// Parameter index.
+        index: usize,
+        /// Value given.
+        value: f64,
+    },
+    /// No point of finite density was found around the start.
+    #[error(
+        "walker {walker}: no point with finite log-density in {attempts} draws around the start; \
+         start inside the prior support or shrink the scales"
+    )]
+    NoValidStart {
+        /// Walker index.
+        walker: usize,
+        /// Draws tried.
+        attempts: usize,
+    },
+    /// The state was advanced with a target of another dimension.
+    #[error("target has {got} parameters but the ensemble was started with {expected}")]
+    TargetDimension {
+        /// Parameters of the target given now.
+        got: usize,
+        /// Parameters at the start.
+        expected: usize,
+    },
+    /// The observer asked to stop.
+    #[error("cancelled after {steps_done} of {total_steps} steps")]
+    Cancelled {
+        /// Steps completed (burn-in included).
+        steps_done: usize,
+        /// Steps planned.
+        total_steps: usize,
+    },
+}
+
+/// Progress report after each step.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Progress {
+    /// Steps done so far, burn-in included.
+    pub steps_done: usize,
+    /// Steps planned, `n_burn + n_steps`.
+    pub total_steps: usize,
+    /// True while still in burn-in.
+    pub in_burn_in: bool,
+    /// Fraction of proposals accepted so far (all steps).
+    pub acceptance_fraction: f64,
+}
+
+/// The stored samples of a run.
+///
+/// Layout is **step-major**: sample `(step, walker)` occupies
+/// `samples[(step * n_walkers + walker) * dim ..][..dim]` and its
+/// log-density is `log_densities[step * n_walkers + walker]`; `step` counts
+/// stored (thinned, post-burn-in) steps.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Chains {
+    /// Number of walkers.
+    pub n_walkers: usize,
+    /// Number of parameters.
+    pub dim: usize,
+    /// Thinning used (stored step `s` is step `n_burn + (s + 1)·thin`).
+    pub thin: usize,
+    /// Number of stored steps.
+    pub n_stored_steps: usize,
+    /// The samples, step-major.
+    pub samples: Vec<f64>,
+    /// The log-densities, step-major.
+    pub log_densities: Vec<f64>,
+    /// Accepted proposals per walker over all post-burn-in steps.
+    pub accepted: Vec<u64>,
+    /// Proposals per walker over all post-burn-in steps.
+    pub proposals_per_walker: u64,
+}
+
+impl Chains {
+    /// The position of `walker` at stored step `step`.
+    pub fn sample(&self, step: usize, walker: usize) -> &[f64] {
+        let start = (step * self.n_walkers + walker) * self.dim;
+        &self.samples[start..start + self.dim]
+    }
+
+    /// The trace of parameter `param` for one walker, in step order.
+    pub fn walker_trace(&self, walker: usize, param: usize) -> Vec<f64> {
+        (0..self.n_stored_steps)
+            .map(|step| self.samples[(step * self.n_walkers + walker) * self.dim + param])
+            .collect()
+    }
+
+    /// The traces of parameter `param` for all walkers (one `Vec` per walker).
+    pub fn parameter_traces(&self, param: usize) -> Vec<Vec<f64>> {
+        (0..self.n_walkers)
+            .map(|walker| self.walker_trace(walker, param))
+            .collect()
+    }
+
+    /// All stored values of parameter `param`, step-major.
+    pub fn flat_parameter(&self, param: usize) -> Vec<f64> {
+        self.samples
+            .iter()
+            .skip(param)
+            .step_by(self.dim)
+            .copied()
+            .collect()
+    }
+
+    /// Positions of all walkers at the last stored step (walker-major, `dim` each).
+    pub fn last_positions(&self) -> &[f64] {
+        let per_step = self.n_walkers * self.dim;
+        &self.samples[self.samples.len() - per_step..]
+    }
+
+    /// Acceptance fraction of each walker after burn-in.
+    pub fn acceptance_fractions(&self) -> Vec<f64> {
+        self.accepted
+            .iter()
+            .map(|&a| a as f64 / self.proposals_per_walker.max(1) as f64)
+            .collect()
+    }
+
+    /// Mean acceptance fraction after burn-in.
+    pub fn acceptance_fraction(&self) -> f64 {
+        let total: u64 = self.accepted.iter().sum();
+        total as f64 / (self.proposals_per_walker.max(1) * self.n_walkers as u64) as f64
+    }
+}
+
+/// A running ensemble that can be advanced in chunks (e.g. from a Web Worker
+/// between progress messages); advancing in chunks gives exactly the same
+/// chains as one call, because the random stream lives in the state.
+#[derive(Debug, Clone)]
+pub struct EnsembleState {
+    settings: SamplerSettings,
+    dim: usize,
+    rng: SimRng,
+    positions: Vec<f64>,
+    log_densities: Vec<f64>,
+    steps_done: usize,
+    accepted_all: u64,
+    proposal: Vec<f64>,
+    chains: Chains,
+}
+
+impl EnsembleState {
+    /// Checks the settings and places the walkers in a Gaussian ball
+    /// `start_i + scales_i · N(0, 1)`, redrawing (up to 1000 times) any walker
+    /// that lands where the log-density is not finite.
+    pub fn new(
+        target: &impl LogDensity,
+        start: &[f64],
+        scales: &[f64],
+        settings: &SamplerSettings,
+    ) -> Result<Self, SamplerError> {
+        let dim = target.dim();
+        if dim == 0 {
+            return Err(SamplerError::NoParameters);
+        }
+        let minimum = 2 * dim;
+        if settings.n_walkers < minimum || settings.n_walkers % 2 != 0 {
+            return Err(SamplerError::WalkerCount {
+                n_walkers: settings.n_walkers,
+                dim,
+                minimum,
+            });
+        }
+        if !(settings.stretch_a.is_finite() && settings.stretch_a > 1.0) {
+            return Err(SamplerError::StretchScale {
+                stretch_a: settings.stretch_a,
+            });
+        }
+        if settings.thin == 0 || settings.n_steps < settings.thin {
+            return Err(SamplerError::NothingStored {
+                n_steps: settings.n_steps,
+                thin: settings.thin,
+            });
+        }
+        for (what, values) in [("start", start), ("scales", scales)] {
+            if values.len() != dim {
+                return Err(SamplerError::Length {
+                    what,
+                    got: values.len(),
+                    expected: dim,
+                });
+            }
+        }
+        if let Some((index, &value)) = start.iter().enumerate().find(|(_, v)| !v.is_finite()) {
+            return Err(SamplerError::NonFiniteStart { index, value });
+        }
+        if let Some((index, &value)) = scales
+            .iter()
+            .enumerate()
+            .find(|(_, v)| !(v.is_finite() && **v > 0.0))
+        {
+            return Err(SamplerError::BadScale { index, value });
+        }
+
+        const MAX_ATTEMPTS: usize = 1000;
+        let n_walkers = settings.n_walkers;
+        let mut rng = stream_rng(settings.seed, 0);
+        let mut positions = vec![0.0; n_walkers * dim];
+        let mut log_densities = vec![f64::NEG_INFINITY; n_walkers];
+        for walker in 0..n_walkers {
+            let x = &mut positions[walker * dim..(walker + 1) * dim];
+            let mut attempts = 0;
+            loop {
+                if attempts == MAX_ATTEMPTS {
+                    return Err(SamplerError::NoValidStart {
+                        walker,
+                        attempts: MAX_ATTEMPTS,
+                    });
+                }
+                attempts += 1;
+                for i in 0..dim {
+                    x[i] = start[i] + scales[i] * standard_normal(&mut rng);
+                }
+                let lp = finite_or_minus_infinity(target.log_density(x));
+                if lp.is_finite() {
+                    log_densities[walker] = lp;
+                    break;
+                }
+            }
+        }
+        let n_stored = settings.n_steps / settings.thin;
+        let chains = Chains {
+            n_walkers,
+            dim,
+            thin: settings.thin,
+            n_stored_steps: 0,
+            samples: Vec::with_capacity(n_stored * n_walkers * dim),
+            log_densities: Vec::with_capacity(n_stored * n_walkers),
+            accepted: vec![0; n_walkers],
+            proposals_per_walker: 0,
+        };
+        Ok(EnsembleState {
+            settings: *settings,
+            dim,
+            rng,
+            positions,
+            log_densities,
+            steps_done: 0,
+            accepted_all: 0,
+            proposal: vec![0.0; dim],
+            chains,
+        })
+    }
+
+    /// Steps planned in total (`n_burn + n_steps`).
+    pub fn total_steps(&self) -> usize {
+        self.settings.n_burn + self.settings.n_steps
+    }
+
+    /// True once all steps are done.
+    pub fn is_finished(&self) -> bool {
+        self.steps_done >= self.total_steps()
+    }
+
+    /// Current positions, walker-major (`dim` entries per walker).
+    pub fn positions(&self) -> &[f64] {
+        &self.positions
+    }
+
+    /// Current log-densities, one per walker.
+    pub fn log_densities(&self) -> &[f64] {
+        &self.log_densities
+    }
+
+    /// The progress so far.
+    pub fn progress(&self) -> Progress {
+        let proposals = (self.steps_done * self.settings.n_walkers).max(1);
+        Progress {
+            steps_done: self.steps_done,
+            total_steps: self.total_steps(),
+            in_burn_in: self.steps_done < self.settings.n_burn,
+            acceptance_fraction: self.accepted_all as f64 / proposals as f64,
+        }
+    }
+
+    /// The chains stored so far.
+    pub fn chains(&self) -> &Chains {
+        &self.chains
+    }
+
+    /// Consumes the state and returns the stored chains.
+    pub fn into_chains(self) -> Chains {
+        self.chains
+    }
+
+    /// Advances by up to `n_steps` steps (fewer if the run ends) and returns
+    /// the number of steps taken.
+    pub fn advance(
+        &mut self,
+        target: &impl LogDensity,
+        n_steps: usize,
+    ) -> Result<usize, SamplerError> {
+        if target.dim() != self.dim {
+            return Err(SamplerError::TargetDimension {
+                got: target.dim(),
+                expected: self.dim,
+            });
+        }
+        let todo = n_steps.min(self.total_steps() - self.steps_done);
+        for _ in 0..todo {
+            self.step(target);
+        }
+        Ok(todo)
+    }
+
+    /// One step of the parallel stretch move (Foreman-Mackey et al. 2013,
+    /// PASP 125, 306, Algorithm 3; Goodman & Weare 2010, CAMCOS 5, 65, eq. 7
+    /// and 9): the first half of the walkers moves using the second half as
+    /// the complementary ensemble, then the second half using the updated
+    /// first half. Proposal `Y = X_j + z (X_k − X_j)` with `z` drawn from
+    /// `g(z) ∝ 1/√z` on `[1/a, a]`; accepted with probability
+    /// `min(1, z^(d−1) p(Y)/p(X_k))`.
+    fn step(&mut self, target: &impl LogDensity) {
+        let n_walkers = self.settings.n_walkers;
+        let half = n_walkers / 2;
+        let a = self.settings.stretch_a;
+        let dim = self.dim;
+        let post_burn = self.steps_done >= self.settings.n_burn;
+        for (active_start, other_start) in [(0, half), (half, 0)] {
+            for k in active_start..active_start + half {
+                // u32 range sampling is the same on 32- and 64-bit targets.
+                let j = other_start + self.rng.random_range(0..half as u32) as usize;
+                let u: f64 = self.rng.random();
+                let z = ((a - 1.0) * u + 1.0) * ((a - 1.0) * u + 1.0) / a;
+                for i in 0..dim {
+                    let x_j = self.positions[j * dim + i];
+                    let x_k = self.positions[k * dim + i];
+                    self.proposal[i] = x_j + z * (x_k - x_j);
+                }
+                let lp_new = finite_or_minus_infinity(target.log_density(&self.proposal));
+                let log_ratio = (dim as f64 - 1.0) * libm::log(z) + lp_new - self.log_densities[k];
+                let u_accept: f64 = self.rng.random();
+                if lp_new > f64::NEG_INFINITY && libm::log(u_accept) < log_ratio {
+                    self.positions[k * dim..(k + 1) * dim].copy_from_slice(&self.proposal);
+                    self.log_densities[k] = lp_new;
+                    self.accepted_all += 1;
+                    if post_burn {
+                        self.chains.accepted[k] += 1;
+                    }
+                }
+            }
+        }
+        self.steps_done += 1;
+        if post_burn {
+            self.chains.proposals_per_walker += 1;
+            let since_burn = self.steps_done - self.settings.n_burn;
+            if since_burn % self.settings.thin == 0 {
+                self.chains.samples.extend_from_slice(&self.positions);
+                self.chains
+                    .log_densities
+                    .extend_from_slice(&self.log_densities);
+                self.chains.n_stored_steps += 1;
+            }
+        }
+    }
+}
+
+fn finite_or_minus_infinity(lp: f64) -> f64 {
+    if lp.is_nan() {
+        f64::NEG_INFINITY
+    } else {
+        lp
+    }
+}
+
+/// Runs the whole ensemble: burn-in, then `n_steps` stored every `thin`.
+/// `observer` is called after every step with the [`Progress`]; returning
+/// `ControlFlow::Break(())` stops the run with [`SamplerError::Cancelled`].
+/// The core reads no clock: an observer that wants to report at most every
+/// so many milliseconds keeps its own time.
+pub fn run_ensemble(
+    target: &impl LogDensity,
+    start: &[f64],
+    scales: &[f64],
+    settings: &SamplerSettings,
+    observer: &mut impl FnMut(Progress) -> ControlFlow<()>,
+) -> Result<Chains, SamplerError> {
+    let mut state = EnsembleState::new(target, start, scales, settings)?;
+    while !state.is_finished() {
+        state.advance(target, 1)?;
+        if observer(state.progress()).is_break() {
+            return Err(SamplerError::Cancelled {
+                steps_done: state.steps_done,
+                total_steps: state.total_steps(),
+            });
+        }
+    }
+    Ok(state.into_chains())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn gaussian(dim: usize) -> DensityFn<impl Fn(&[f64]) -> f64> {
+        DensityFn {
+            dim,
+            log_density: |x: &[f64]| -0.5 * x.iter().map(|v| v * v).sum::<f64>(),
+        }
+    }
+
+    fn small_settings() -> SamplerSettings {
+        SamplerSettings {
+            n_walkers: 8,
+            n_steps: 60,
+            n_burn: 20,
+            thin: 3,
+            stretch_a: 2.0,
+            seed: 42,
+        }
+    }
+
+    #[test]
+    fn chunked_advance_equals_one_run_and_layout_is_step_major() {
+        let target = gaussian(3);
+        let settings = small_settings();
+        let one = run_ensemble(&target, &[0.0; 3], &[1.0; 3], &settings, &mut |_| {
+            ControlFlow::Continue(())
+        })
+        .unwrap();
+        let mut state = EnsembleState::new(&target, &[0.0; 3], &[1.0; 3], &settings).unwrap();
+        while !state.is_finished() {
+            state.advance(&target, 7).unwrap();
+        }
+        let chunked = state.into_chains();
+        assert_eq!(one, chunked);
+        assert_eq!(one.n_stored_steps, 20);
+        assert_eq!(one.samples.len(), 20 * 8 * 3);
+        assert_eq!(one.proposals_per_walker, 60);
+        // Step-major layout: walker 5, step 7, parameter 2.
+        assert_eq!(one.sample(7, 5)[2], one.samples[(7 * 8 + 5) * 3 + 2]);
+        assert_eq!(one.walker_trace(5, 2)[7], one.sample(7, 5)[2]);
+        assert_eq!(one.flat_parameter(2)[7 * 8 + 5], one.sample(7, 5)[2]);
+        // Stored log-densities belong to the stored samples.
+        let lp = target.log_density(one.sample(7, 5));
+        assert_eq!(one.log_densities[7 * 8 + 5], lp);
+    }
+
+    #[test]
+    fn same_seed_same_chains_other_seed_differs() {
+        let target = gaussian(2);
+        let run = |seed| {
+            let settings = SamplerSettings {
+                seed,
+                ..small_settings()
+            };
+            run_ensemble(&target, &[1.0, 2.0], &[0.1, 0.1], &settings, &mut |_| {
+                ControlFlow::Continue(())
+            })
+            .unwrap()
+        };
+        assert_eq!(run(5), run(5));
+        assert_ne!(run(5).samples, run(6).samples);
+    }
+
+    #[test]
+    fn observer_sees_every_step_and_can_cancel() {
+        let target = gaussian(2);
+        let settings = small_settings();
+        let mut seen = Vec::new();
+        let result = run_ensemble(&target, &[0.0; 2], &[1.0; 2], &settings, &mut |p| {
+            seen.push(p.steps_done);
+            if p.steps_done == 30 {
+                ControlFlow::Break(())
+            } else {
+                ControlFlow::Continue(())
+            }
+        });
+        assert_eq!(
+            result,
+            Err(SamplerError::Cancelled {
+                steps_done: 30,
+                total_steps: 80
+            })
+        );
+        assert_eq!(seen, (1..=30).collect::<Vec<_>>());
+    }
+
+    #[test]
+    fn bad_settings_and_starts_are_typed_errors() {
+        let target = gaussian(3);
+        let new = |settings: SamplerSettings, start: &[f64], scales: &[f64]| {
+            EnsembleState::new(&target, start, scales, &settings).map(|_| ())
+        };
+        let ok = small_settings();
+        assert_eq!(
+            new(SamplerSettings { n_walkers: 4, ..ok }, &[0.0; 3], &[1.0; 3]),
+            Err(SamplerError::WalkerCount {
+                n_walkers: 4,
+                dim: 3,
+                minimum: 6
+            })
+        );
+        assert!(matches!(
+            new(SamplerSettings { n_walkers: 9, ..ok }, &[0.0; 3], &[1.0; 3]),
+            Err(SamplerError::WalkerCount { .. })
+        ));
+        assert_eq!(
+            new(
+                SamplerSettings {
+                    stretch_a: 1.0,
+                    ..ok
+                },
+                &[0.0; 3],
+                &[1.0; 3]
+            ),
+            Err(SamplerError::StretchScale { stretch_a: 1.0 })
+        );
+        assert!(matches!(
+            new(SamplerSettings { thin: 0, ..ok }, &[0.0; 3], &[1.0; 3]),
+            Err(SamplerError::NothingStored { .. })
+        ));
+        assert_eq!(
+            new(ok, &[0.0; 2], &[1.0; 3]),
+            Err(SamplerError::Length {
+                what: "start",
+                got: 2,
+                expected: 3
+            })
+        );
+        assert!(matches!(
+            new(ok, &[0.0, f64::NAN, 0.0], &[1.0; 3]),
+            Err(SamplerError::NonFiniteStart { index: 1, .. })
+        ));
+        assert!(matches!(
+            new(ok, &[0.0; 3], &[1.0, 0.0, 1.0]),
+            Err(SamplerError::BadScale { index: 1, .. })
+        ));
+        let nowhere = DensityFn {
+            dim: 3,
+            log_density: |_: &[f64]| f64::NEG_INFINITY,
+        };
+        assert_eq!(
+            EnsembleState::new(&nowhere, &[0.0; 3], &[1.0; 3], &ok).map(|_| ()),
+            Err(SamplerError::NoValidStart {
+                walker: 0,
+                attempts: 1000
+            })
+        );
+        let mut state = EnsembleState::new(&target, &[0.0; 3], &[1.0; 3], &ok).unwrap();
+        assert_eq!(
+            state.advance(&gaussian(2), 1),
+            Err(SamplerError::TargetDimension {
+                got: 2,
+                expected: 3
+            })
+        );
+    }
+
+    /// Walkers that start partly outside the support are redrawn, and no
+    /// stored sample ever leaves the support.
+    #[test]
+    fn support_is_respected() {
+        let half_plane = DensityFn {
+            dim: 2,
+            log_density: |x: &[f64]| {
+                if x[0] < 0.0 {
+                    f64::NEG_INFINITY
+                } else {
+                    -0.5 * (x[0] * x[0] + x[1] * x[1])
+                }
+            },
+        };
+        let chains = run_ensemble(
+            &half_plane,
+            &[0.0, 0.0],
+            &[1.0, 1.0],
+            &small_settings(),
+            &mut |_| ControlFlow::Continue(()),
+        )
+        .unwrap();
+        assert!(chains.flat_parameter(0).iter().all(|&x| x >= 0.0));
+    }
+}
