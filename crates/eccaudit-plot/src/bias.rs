@@ -342,6 +342,9 @@ mod tests {
             draw_distributions(&root, &figure).unwrap();
         }
         assert_eq!(svg.matches("injected e = ").count(), 3);
-        assert!(svg.lines().any(|l| l.trim() == "lsq"), "legend text missing");
+        assert!(
+            svg.lines().any(|l| l.trim() == "lsq"),
+            "legend text missing"
+        );
     }
 }

@@ -184,12 +184,12 @@ impl Estimator for LeastSquaresEstimator {
     }
 
     fn outputs(&self) -> Vec<OutputInfo> {
-        let intervals = "formal: ê ± σ_e (68%) and ê ± 1.96 σ_e (95%), σ_e from the covariance, \
-                         clipped at 0";
+        let intervals = "formal intervals ê ± σ_e (68%) and ê ± 1.96 σ_e (95%) from the \
+                         covariance, truncated at e = 0";
         let mut outputs = vec![OutputInfo {
             name: "lsq".into(),
-            label: "least-squares ê (minimum χ²)".into(),
-            prior: "none (least squares)".into(),
+            label: "least-squares estimate (minimum chi-squared)".into(),
+            prior: "none".into(),
             intervals: intervals.into(),
             eccentric_call: "the formal 95% interval excludes 0 (ê > 1.96 σ_e)".into(),
             extra_names: vec![
@@ -202,8 +202,9 @@ impl Estimator for LeastSquaresEstimator {
         if self.settings.lucy_sweeney {
             outputs.push(OutputInfo {
                 name: "lucy_sweeney".into(),
-                label: "Lucy-Sweeney adopted e (ê if p <= 0.05, else 0)".into(),
-                prior: "none (least squares)".into(),
+                label: "Lucy-Sweeney adopted value (the least-squares e if p <= 0.05, else 0)"
+                    .into(),
+                prior: "none".into(),
                 intervals: intervals.into(),
                 eccentric_call: "Lucy & Sweeney (1971) p = exp(-ê²/2σ_e²) <= 0.05".into(),
                 extra_names: vec!["p".into()],

@@ -232,6 +232,16 @@ fn grid_text(values: &[f64]) -> String {
     }
 }
 
+/// "no prior on e" or "prior on e: …".
+fn prior_text(prior: &str) -> String {
+    if prior.starts_with("none") {
+        "no prior on e".to_string()
+    } else {
+        format!("prior on e: {prior}")
+    }
+}
+
+/// A grid value without the float noise of its arithmetic (six decimals).
 fn round_step(step: f64) -> f64 {
     (step * 1e6).round() / 1e6
 }
@@ -253,13 +263,14 @@ fn paragraph(s: &EccentricityStatement, summary: &InjectionSummary) -> String {
         "random orbital phase"
     };
     text.push_str(&format!(
-        "From the {} radial velocities, the {} is e = {:.3} (68% interval {:.3}-{:.3}; {}). \
+        "From the {} radial velocities, the {} ({}) is e = {:.3} (68% interval {:.3}-{:.3}; {}). \
          To calibrate it we simulated our own observing run, with the same epochs and stated \
          uncertainties{}, {} times for each injected eccentricity (e = {}) at the fitted period \
          P = {:.4} d and semi-amplitude K = {:.2} m/s, with {}, and estimated e from each \
          simulation in the same way. ",
         s.n_epochs,
         first.label,
+        prior_text(&first.prior),
         first.observed.point,
         first.observed.lower68,
         first.observed.upper68,
@@ -273,9 +284,14 @@ fn paragraph(s: &EccentricityStatement, summary: &InjectionSummary) -> String {
     ));
     for c in &s.calibrations {
         text.push_str(&format!(
-            "At an injected e = {} the {} (prior: {}) is biased by {:+.3} (Monte-Carlo error \
-             {:.3}) with a scatter of {:.3}",
-            c.nearest_true_e, c.label, c.prior, c.bias, c.bias_standard_error, c.scatter
+            "At an injected e = {} the {} ({}) is biased by {:+.3} (Monte-Carlo error {:.3}) \
+             with a scatter of {:.3}",
+            round_step(c.nearest_true_e),
+            c.label,
+            prior_text(&c.prior),
+            c.bias,
+            c.bias_standard_error,
+            c.scatter
         ));
         if let Some(p) = c.circular_exceedance {
             text.push_str(&format!(
@@ -286,8 +302,10 @@ fn paragraph(s: &EccentricityStatement, summary: &InjectionSummary) -> String {
         }
         match (c.belt95, c.belt95_open_above) {
             (Some((lo, hi)), false) => text.push_str(&format!(
-                "; injected eccentricities from {lo} to {hi} produce our value within their \
-                 central 95% of simulated estimates"
+                "; injected eccentricities from {} to {} produce our value within their \
+                 central 95% of simulated estimates",
+                round_step(lo),
+                round_step(hi)
             )),
             (_, true) => {
                 let lo = c
@@ -297,7 +315,8 @@ fn paragraph(s: &EccentricityStatement, summary: &InjectionSummary) -> String {
                     });
                 text.push_str(&format!(
                     "; our value lies above the central 95% of estimates for the largest \
-                     injected e, so the data favour e above {lo} (beyond the simulated grid)"
+                     injected e, so the data favour e above {} (beyond the simulated grid)",
+                    round_step(lo)
                 ));
             }
             (None, false) => text.push_str(
@@ -342,7 +361,7 @@ impl EccentricityStatement {
                 .circular_exceedance
                 .map_or("-".to_string(), |p| format!("{:.4}", p.value));
             let belt = match (c.belt95, c.belt95_open_above) {
-                (Some((lo, hi)), false) => format!("{lo}-{hi}"),
+                (Some((lo, hi)), false) => format!("{}-{}", round_step(lo), round_step(hi)),
                 (_, true) => "above grid".to_string(),
                 (None, false) => "none".to_string(),
             };
@@ -351,7 +370,7 @@ impl EccentricityStatement {
                 c.name,
                 c.observed.point,
                 format!("{:.3}-{:.3}", c.observed.lower68, c.observed.upper68),
-                c.nearest_true_e,
+                round_step(c.nearest_true_e),
                 c.bias,
                 c.scatter,
                 p,
