@@ -27,6 +27,10 @@ enum Command {
     Curve(commands::curve::Args),
     /// Global least-squares Keplerian orbit fit with formal errors and the Lucy-Sweeney test.
     Fit(commands::fit::Args),
+    /// Injection-recovery: simulate your own epochs and error bars with known eccentricities.
+    Inject(commands::inject::Args),
+    /// Fit, injection-recovery at the fitted orbit, and a bias-aware eccentricity statement.
+    Audit(commands::audit::Args),
     /// Time the hot loops (Kepler solve) natively.
     Bench(commands::bench::Args),
 }
@@ -40,6 +44,8 @@ fn main() -> ExitCode {
         Command::Table(args) => commands::table::run(args),
         Command::Curve(args) => commands::curve::run(args),
         Command::Fit(args) => commands::fit::run(args),
+        Command::Inject(args) => commands::inject::run(args),
+        Command::Audit(args) => commands::audit::run(args),
         Command::Bench(args) => commands::bench::run(args),
     };
     match result {

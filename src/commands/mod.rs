@@ -1,6 +1,8 @@
 //! One module per subcommand. Each has an `Args` (clap) and a `run`.
 
+pub mod audit;
 pub mod bench;
 pub mod curve;
 pub mod fit;
+pub mod inject;
 pub mod table;

@@ -8,6 +8,7 @@
 
 pub mod constants;
 pub mod fit;
+pub mod inject;
 pub mod kepler;
 pub mod lsq;
 pub mod model;

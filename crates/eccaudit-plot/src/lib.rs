@@ -5,10 +5,15 @@
 //! figure looks the same wherever it is made. This crate only draws: it
 //! takes plain numbers and computes nothing scientific.
 
+mod bias;
 mod legend;
 mod palette;
 mod velocity;
 
+pub use bias::{
+    draw_bias_curve, draw_distributions, BiasCurve, BiasFigure, DistributionFigure,
+    DistributionPanel, EstimateHistogram,
+};
 pub use legend::{draw_legend, LegendMark};
 pub use palette::{instrument_colour, INK, MUTED};
 /// plotters itself, so adapters can build drawing areas on their own backend.
