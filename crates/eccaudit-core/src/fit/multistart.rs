@@ -15,7 +15,7 @@ use super::report::{
 use super::{count_distinct_phases, FitError, FitOptions, MIN_DISTINCT_PHASES, PHASE_BIN_CYCLES};
 use crate::kepler::TWO_PI;
 use crate::lsq::{fit_least_squares_with, LeastSquaresProblem, LmSolver, LsqReport, Termination};
-use crate::periodogram::{periodogram, GridOptions, PeriodogramOptions};
+use crate::periodogram::{peak_search, GridOptions, PeriodogramOptions};
 use crate::random::stream_rng;
 use rand::RngExt;
 
@@ -639,7 +639,7 @@ fn candidate_periods(
         },
         n_top_peaks: options.n_peaks,
     };
-    let pg = periodogram(data.times(), &values, data.uncertainties(), &pg_options).map_err(
+    let pg = peak_search(data.times(), &values, data.uncertainties(), &pg_options).map_err(
         |source| FitError::PeriodSearch {
             companion: c + 1,
             source,

@@ -8,7 +8,10 @@
 //! the search — or (e cos ω, e sin ω) — used for the reported covariance, where the Jacobian is
 //! regular at e = 0.
 
-use crate::kepler::{eccentric_anomaly_reduced, reduce_angle_signed, Eccentricity, TWO_PI};
+use crate::kepler::{
+    eccentric_anomaly_reduced, eccentric_anomaly_reduced_fast, reduce_angle_signed,
+    true_anomaly_cos_sin_lanes, true_anomaly_cos_sin_prepared, Eccentricity, Lanes, TWO_PI,
+};
 use crate::lsq::{DMatrix, LeastSquaresProblem};
 
 /// Largest eccentricity the model accepts: trial points at e ≥ `MAX_ECCENTRICITY` (or P ≤ 0) get
@@ -384,10 +387,9 @@ impl<'a> RvProblem<'a> {
             let Some(prepared) = Prepared::new(&comp) else {
                 return false;
             };
-            for (slot, &dt) in out.iter_mut().zip(&self.data.shifted_times) {
-                let point = prepared.point(dt);
-                *slot += comp.semi_amplitude * point.velocity_shape;
-            }
+            prepared.for_each_true_anomaly(&self.data.shifted_times, |i, cos_nu, sin_nu| {
+                out[i] += comp.semi_amplitude * prepared.terms(cos_nu, sin_nu).velocity_shape;
+            });
         }
         out.iter().all(|v| v.is_finite())
     }
@@ -436,16 +438,87 @@ impl Prepared {
         })
     }
 
+    /// The mean anomaly at `dt` = t − t_ref, reduced to [−π, π].
     #[inline(always)]
-    fn point(&self, dt: f64) -> PointTerms {
-        let mean_anomaly =
-            reduce_angle_signed(self.mean_anomaly_at_reference + self.mean_motion * dt);
-        let anomaly = eccentric_anomaly_reduced(mean_anomaly, self.eccentricity);
-        // cos ν = (cos E − e)/(1 − e cos E), sin ν = √(1−e²) sin E/(1 − e cos E)
-        // (Murray & Dermott 1999, Solar System Dynamics, eqs. 2.43–2.44).
-        let inv = 1.0 / (1.0 - self.e * anomaly.cos);
-        let cos_nu = (anomaly.cos - self.e) * inv;
-        let sin_nu = self.s * anomaly.sin * inv;
+    fn mean_anomaly(&self, dt: f64) -> f64 {
+        reduce_angle_signed(self.mean_anomaly_at_reference + self.mean_motion * dt)
+    }
+
+    /// (cos ν, sin ν) at one epoch: Kepler's equation by [`eccentric_anomaly_reduced`]
+    /// (Markley 1995) and the true anomaly from E without cancellation
+    /// ([`crate::kepler::true_anomaly_cos_sin`]; Murray & Dermott 1999, eqs. 2.43–2.44).
+    #[inline(always)]
+    fn true_anomaly(&self, dt: f64) -> (f64, f64) {
+        let anomaly = eccentric_anomaly_reduced(self.mean_anomaly(dt), self.eccentricity);
+        true_anomaly_cos_sin_prepared(&anomaly, self.e, self.s)
+    }
+
+    /// Calls `visit(i, cos ν_i, sin ν_i)` for every epoch of `shifted_times`, `N` epochs at a
+    /// time on the Kepler solver's branch-free lane path; lanes the fast path does not cover,
+    /// and the remainder, take [`Self::true_anomaly`], whose common path performs the same
+    /// operations, so the values do not depend on the lane count.
+    #[inline(always)]
+    fn for_each_true_anomaly_lanes<const N: usize>(
+        &self,
+        shifted_times: &[f64],
+        visit: &mut impl FnMut(usize, f64, f64),
+    ) {
+        let mut chunks = shifted_times.chunks_exact(N);
+        let mut start = 0;
+        for chunk in &mut chunks {
+            let mean_anomaly: Lanes<N> =
+                Lanes(core::array::from_fn(|i| self.mean_anomaly(chunk[i])));
+            let (_, sin_e, cos_e, valid) = eccentric_anomaly_reduced_fast(mean_anomaly, self.e);
+            let (Lanes(cos_nu), Lanes(sin_nu)) =
+                true_anomaly_cos_sin_lanes(sin_e, cos_e, self.e, self.s);
+            for (i, &dt) in chunk.iter().enumerate() {
+                if valid.lane(i) {
+                    visit(start + i, cos_nu[i], sin_nu[i]);
+                } else {
+                    let (cos, sin) = self.true_anomaly(dt);
+                    visit(start + i, cos, sin);
+                }
+            }
+            start += N;
+        }
+        for (i, &dt) in chunks.remainder().iter().enumerate() {
+            let (cos, sin) = self.true_anomaly(dt);
+            visit(start + i, cos, sin);
+        }
+    }
+
+    /// [`Self::for_each_true_anomaly_lanes`] with the lane count suited to the processor, as in
+    /// [`crate::model::RvModel::velocities`]: eight with AVX2 (detected at run time), else four.
+    #[inline]
+    fn for_each_true_anomaly(&self, shifted_times: &[f64], mut visit: impl FnMut(usize, f64, f64)) {
+        #[cfg(target_arch = "x86_64")]
+        {
+            if std::is_x86_feature_detected!("avx2") {
+                // SAFETY: the processor supports AVX2, checked just above.
+                unsafe { self.for_each_true_anomaly_avx2(shifted_times, &mut visit) };
+                return;
+            }
+        }
+        self.for_each_true_anomaly_lanes::<ANOMALY_LANES>(shifted_times, &mut visit);
+    }
+
+    /// [`Self::for_each_true_anomaly_lanes`] compiled for AVX2.
+    ///
+    /// # Safety
+    /// The processor must support AVX2.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2")]
+    unsafe fn for_each_true_anomaly_avx2(
+        &self,
+        shifted_times: &[f64],
+        visit: &mut impl FnMut(usize, f64, f64),
+    ) {
+        self.for_each_true_anomaly_lanes::<ANOMALY_LANES_AVX2>(shifted_times, visit);
+    }
+
+    /// The per-epoch quantities from the true anomaly.
+    #[inline(always)]
+    fn terms(&self, cos_nu: f64, sin_nu: f64) -> PointTerms {
         let cos_nu_omega = cos_nu * self.cos_omega - sin_nu * self.sin_omega;
         let sin_nu_omega = sin_nu * self.cos_omega + cos_nu * self.sin_omega;
         PointTerms {
@@ -456,6 +529,13 @@ impl Prepared {
         }
     }
 }
+
+/// Epochs solved side by side by [`Prepared::for_each_true_anomaly`] (two SSE2 registers).
+const ANOMALY_LANES: usize = 4;
+
+/// The lane count of [`Prepared::for_each_true_anomaly`] with AVX2 (two 256-bit registers).
+#[cfg(target_arch = "x86_64")]
+const ANOMALY_LANES_AVX2: usize = 8;
 
 impl LeastSquaresProblem for RvProblem<'_> {
     fn n_params(&self) -> usize {
@@ -513,10 +593,10 @@ impl LeastSquaresProblem for RvProblem<'_> {
             } else {
                 (params[start + 2], params[start + 3])
             };
-            for i in 0..n {
+            prepared.for_each_true_anomaly(&self.data.shifted_times, |i, cos_nu, sin_nu| {
                 let dt = self.data.shifted_times[i];
                 let w = -self.inverse_sigma[i];
-                let p = prepared.point(dt);
+                let p = prepared.terms(cos_nu, sin_nu);
                 let one_plus = 1.0 + e * p.cos_nu;
                 let dnu_dm = one_plus * one_plus / s3;
                 let dv_dm = -k * p.sin_nu_omega * dnu_dm;
@@ -542,7 +622,7 @@ impl LeastSquaresProblem for RvProblem<'_> {
                     out[(i, start + 2)] = w * da;
                     out[(i, start + 3)] = w * db;
                 }
-            }
+            });
         }
         for j in 0..layout.n_instruments {
             for i in 0..n {
@@ -585,9 +665,9 @@ pub fn keplerian_shape(
     let Some(prepared) = Prepared::new(&comp) else {
         return false;
     };
-    for (slot, &dt) in out.iter_mut().zip(shifted_times) {
-        *slot = prepared.point(dt).velocity_shape;
-    }
+    prepared.for_each_true_anomaly(shifted_times, |i, cos_nu, sin_nu| {
+        out[i] = prepared.terms(cos_nu, sin_nu).velocity_shape;
+    });
     true
 }
 

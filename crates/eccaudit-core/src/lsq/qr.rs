@@ -57,13 +57,17 @@ pub(crate) fn qr_factor_pivoted(
             a[j + j * m] += 1.0;
             let pivot = a[j + j * m];
             for k in (j + 1)..n {
+                // Column j (the reflector) and column k as disjoint slices, rows j..m.
+                let (head, tail) = a.split_at_mut(k * m);
+                let reflector = &head[j + j * m..(j + 1) * m];
+                let column = &mut tail[j..m];
                 let mut sum = 0.0;
-                for i in j..m {
-                    sum += a[i + j * m] * a[i + k * m];
+                for (v, x) in reflector.iter().zip(column.iter()) {
+                    sum += v * x;
                 }
                 let factor = sum / pivot;
-                for i in j..m {
-                    a[i + k * m] -= factor * a[i + j * m];
+                for (x, v) in column.iter_mut().zip(reflector) {
+                    *x -= factor * v;
                 }
                 // Downdate the partial column norm; recompute when cancellation
                 // has eaten its accuracy.
@@ -87,13 +91,15 @@ pub(crate) fn apply_q_transpose(a: &[f64], m: usize, n: usize, vector: &mut [f64
     for j in 0..n {
         let pivot = a[j + j * m];
         if pivot != 0.0 {
+            let reflector = &a[j + j * m..(j + 1) * m];
+            let part = &mut vector[j..m];
             let mut sum = 0.0;
-            for i in j..m {
-                sum += a[i + j * m] * vector[i];
+            for (v, x) in reflector.iter().zip(part.iter()) {
+                sum += v * x;
             }
             let factor = -sum / pivot;
-            for i in j..m {
-                vector[i] += factor * a[i + j * m];
+            for (x, v) in part.iter_mut().zip(reflector) {
+                *x += factor * v;
             }
         }
     }
