@@ -10,7 +10,7 @@ use super::problem::{
     decode_companion, EccentricityCoordinates, FitData, ParameterLayout, RvProblem,
 };
 use crate::constants::{ASTRONOMICAL_UNIT, JUPITER_MASS_IN_SOLAR_MASSES};
-use crate::kepler::{reduce_angle_signed, TWO_PI};
+use crate::kepler::{reduce_angle, reduce_angle_signed, TWO_PI};
 use crate::lsq::{
     covariance_from_jacobian, CovarianceStatus, DMatrix, LeastSquaresProblem, Termination,
 };
@@ -335,8 +335,9 @@ pub(crate) fn build_solution(ctx: &SolutionContext, params_in: &[f64]) -> Soluti
                     value: e,
                     error: sigma_e,
                 },
+                // Reported in [0°, 360°).
                 Estimate {
-                    value: omega * DEG,
+                    value: reduce_angle(omega) * DEG,
                     error: omega_error.map(|v| v * DEG),
                 },
                 est(ix),
@@ -556,7 +557,7 @@ impl fmt::Display for Solution {
         )?;
         writeln!(
             f,
-            "  convergence: {} ({:?}); covariance: {:?}",
+            "  convergence: {} ({}); covariance: {}",
             if self.converged {
                 "converged"
             } else {

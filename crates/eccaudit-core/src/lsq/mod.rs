@@ -193,6 +193,42 @@ pub enum CovarianceStatus {
     NonFiniteJacobian,
 }
 
+impl std::fmt::Display for CovarianceStatus {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            CovarianceStatus::Computed => f.write_str("computed"),
+            CovarianceStatus::NotComputed => f.write_str("not computed"),
+            CovarianceStatus::Singular { rank } => {
+                write!(
+                    f,
+                    "singular (rank {rank}): some parameters are not constrained by the data"
+                )
+            }
+            CovarianceStatus::NonFiniteJacobian => {
+                f.write_str("not available (non-finite Jacobian)")
+            }
+        }
+    }
+}
+
+impl std::fmt::Display for Termination {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Termination::RelativeReduction => "relative chi2 reduction below ftol",
+            Termination::StepSize => "relative step below xtol",
+            Termination::RelativeReductionAndStepSize => {
+                "chi2 reduction below ftol and step below xtol"
+            }
+            Termination::GradientOrthogonal => "gradient orthogonal within gtol",
+            Termination::MaxEvaluations => "evaluation limit reached",
+            Termination::ReductionAtMachinePrecision => "chi2 reduction at machine precision",
+            Termination::StepAtMachinePrecision => "step at machine precision",
+            Termination::GradientAtMachinePrecision => "gradient at machine precision",
+            Termination::NonFiniteJacobian => "non-finite Jacobian",
+        })
+    }
+}
+
 /// Result of a least-squares fit.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct LsqReport {
