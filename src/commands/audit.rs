@@ -1,21 +1,21 @@
 //! `eccaudit audit FILE`: the one-shot audit — least-squares fit, injection–recovery at the
 //! fitted orbit with the data's own epochs and error bars, and the eccentricity statement.
-//! (A prior set and posterior estimators will join when the sampler lands.)
+//!
+//! The work itself is `eccaudit_core::audit::AuditPlan`, the same plan the page runs in its
+//! Web Workers; this command adds threads, a progress bar, resumable CSV output and files.
+//! `--settings FILE` replays a settings file written by the page (or by `--write-settings`),
+//! so the command line reproduces the page's numbers exactly.
 
 use std::fs;
 use std::path::PathBuf;
 
 use anyhow::Context;
-use eccaudit_core::inject::{eccentricity_statement, summarise, Estimator, FittedOrbit, Sampling};
-use eccaudit_core::random::stream_rng;
-
-use super::inject::{
-    design, estimator, fit_table, read_table, run_design, write_outputs, RunArgs, TableArgs,
+use eccaudit_core::audit::{
+    data_fingerprint, AuditPlan, AuditSettings, DataIdentity, InjectionSettings, ReadSettings,
 };
+use eccaudit_core::table::{parse_table, ReadOptions};
 
-/// Stream of the generator handed to the estimators for the real data (trial streams are
-/// 0, 1, …; the schedule uses u64::MAX).
-const REAL_DATA_STREAM: u64 = u64::MAX - 1;
+use super::inject::{run_design, write_outputs, RunArgs, TableArgs};
 
 /// Arguments of `eccaudit audit`.
 #[derive(Debug, clap::Args)]
@@ -26,67 +26,110 @@ pub struct Args {
     pub run: RunArgs,
     #[command(flatten)]
     pub table: TableArgs,
+    /// Replay a settings file (JSON, written by the page or by --write-settings). Every analysis
+    /// choice then comes from the file; only --out, --resume, --stop-after, --threads and --quiet
+    /// still apply. The table must be the one the settings name (its SHA-256 is checked).
+    #[arg(long, value_name = "FILE")]
+    pub settings: Option<PathBuf>,
+    /// Also write this run's settings, with the table's SHA-256, to FILE.
+    #[arg(long, value_name = "FILE")]
+    pub write_settings: Option<PathBuf>,
     /// Print the statement as JSON instead of text.
     #[arg(long)]
     pub json: bool,
 }
 
+/// The settings from the command-line flags.
+fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
+    let run = &args.run;
+    AuditSettings {
+        data: Some(identity),
+        read: ReadSettings {
+            velocity_unit: args.table.velocity_unit,
+            time: args.table.time,
+        },
+        injection: InjectionSettings {
+            eccentricities: if run.eccentricities.is_empty() {
+                InjectionSettings::default().eccentricities
+            } else {
+                run.eccentricities.clone()
+            },
+            trials_per_cell: run.trials,
+            jitter: run.jitter,
+            omegas_deg: run.omegas_deg.clone(),
+            period_search: run.period_search,
+            start_eccentricities: run.start_e.clone(),
+            n_omega_starts: run.omega_starts,
+            lucy_sweeney: !run.no_lucy_sweeney,
+        },
+        seed: run.seed,
+        ..AuditSettings::default()
+    }
+}
+
 /// Fit, simulate, summarise, state.
 pub fn run(args: Args) -> anyhow::Result<()> {
-    let table = read_table(&args.file, &args.table)?;
-    let (data, report) = fit_table(&table)?;
-    let companion = &report.eccentric.companions[0];
-    let period = companion.period.value;
-    let semi_amplitude = companion.semi_amplitude.value;
-    let design = design(
-        Sampling::from_table(&table),
-        period,
-        vec![semi_amplitude],
-        &args.run,
-    )?;
-    let lsq = estimator(&args.run);
-    let estimators: [&dyn Estimator; 1] = [&lsq];
-    // The real data, estimated exactly as each simulation is.
-    let mut rng = stream_rng(design.seed, REAL_DATA_STREAM);
-    let observed_lsq = lsq
-        .estimate(&data, &design, &mut rng)
-        .with_context(|| format!("least squares on `{}`", args.file.display()))?;
-    let lucy_sweeney_p = lsq
-        .outputs()
-        .iter()
-        .zip(&observed_lsq)
-        .find(|(o, _)| o.name == "lucy_sweeney")
-        .and_then(|(_, e)| e.extra.first().copied());
-    let observed: Vec<_> = observed_lsq.into_iter().map(Some).collect();
+    let source_name = args.file.display().to_string();
+    let bytes = fs::read(&args.file).with_context(|| format!("cannot read `{source_name}`"))?;
+    let identity = DataIdentity {
+        file_name: args
+            .file
+            .file_name()
+            .map_or(source_name.clone(), |n| n.to_string_lossy().into_owned()),
+        sha256: data_fingerprint(&bytes),
+    };
+    let settings = match &args.settings {
+        Some(path) => {
+            let text = fs::read_to_string(path)
+                .with_context(|| format!("cannot read settings `{}`", path.display()))?;
+            let settings = AuditSettings::from_json(&text)
+                .with_context(|| format!("settings `{}`", path.display()))?;
+            settings
+                .check_data(&bytes)
+                .with_context(|| format!("settings `{}`", path.display()))?;
+            settings
+        }
+        None => settings_from_flags(&args, identity),
+    };
+    if let Some(path) = &args.write_settings {
+        fs::write(path, settings.to_json())
+            .with_context(|| format!("cannot write settings `{}`", path.display()))?;
+    }
 
-    let (records, complete) = run_design(&design, &estimators, &args.run)?;
-    let summary = summarise(&design, &estimators, &records);
-    write_outputs(
-        &summary,
-        &args.run.out,
-        observed[0].as_ref().map(|e| e.point),
-    )?;
-    let statement = eccentricity_statement(
-        &summary,
-        &records,
-        &observed,
-        FittedOrbit {
-            period,
-            semi_amplitude,
-            omega: companion.omega_deg.value.to_radians(),
-            lucy_sweeney_p,
-        },
-    )?;
-    let text = statement.text();
-    fs::write(args.run.out.join("statement.txt"), &text)
-        .with_context(|| format!("cannot write into `{}`", args.run.out.display()))?;
+    let text = String::from_utf8(bytes)
+        .with_context(|| format!("cannot read `{source_name}`: the file is not UTF-8 text"))?;
+    let options = ReadOptions {
+        source_name: source_name.clone(),
+        velocity_unit: settings.read.velocity_unit,
+        time: settings.read.time,
+        delimiter: args.table.delimiter,
+    };
+    let table = parse_table(&text, &options)?;
+    let plan =
+        AuditPlan::new(&table, &settings).with_context(|| format!("audit of `{source_name}`"))?;
+
+    let estimators = plan.estimators();
+    let (records, complete) = run_design(plan.design(), &estimators, &args.run)?;
+    let report = plan.finish(&records)?;
+    let lsq_observed = report
+        .statement
+        .calibrations
+        .first()
+        .map(|c| c.observed.point);
+    write_outputs(&report.injection, &args.run.out, lsq_observed)?;
+    let text = report.statement.text();
+    let out = &args.run.out;
+    fs::write(out.join("statement.txt"), &text)
+        .with_context(|| format!("cannot write into `{}`", out.display()))?;
     fs::write(
-        args.run.out.join("statement.json"),
-        serde_json::to_string_pretty(&statement)?,
+        out.join("statement.json"),
+        serde_json::to_string_pretty(&report.statement)?,
     )
-    .with_context(|| format!("cannot write into `{}`", args.run.out.display()))?;
+    .with_context(|| format!("cannot write into `{}`", out.display()))?;
+    fs::write(out.join("settings.json"), settings.to_json())
+        .with_context(|| format!("cannot write into `{}`", out.display()))?;
     if args.json {
-        println!("{}", serde_json::to_string_pretty(&statement)?);
+        println!("{}", serde_json::to_string_pretty(&report)?);
     } else {
         println!(
             "{} ({})",
@@ -94,13 +137,12 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             table.time_convention().label()
         );
         print!("{text}");
-        println!("Outputs in {}", args.run.out.display());
+        println!("Outputs in {}", out.display());
     }
     if !complete {
         eprintln!(
             "eccaudit: note: {} of {} trials done; the statement uses those only; run again with --resume to finish",
-            records.len(),
-            design.n_trials()
+            report.trials_done, report.trials_total
         );
     }
     Ok(())

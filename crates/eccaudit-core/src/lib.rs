@@ -6,6 +6,7 @@
 //! reads no clock, so the native command line and the browser page compute
 //! identical bits from identical inputs.
 
+pub mod audit;
 pub mod constants;
 pub mod fit;
 pub mod inject;

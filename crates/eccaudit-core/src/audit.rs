@@ -1,0 +1,455 @@
+//! The whole audit as one plan, shared by the command line and the page.
+//!
+//! An audit is: read the table, fit it by least squares, simulate the
+//! observer's own run at the fitted orbit over a grid of true eccentricities,
+//! estimate e from every simulation as from the real data, and state the
+//! result. [`AuditSettings`] holds every choice (and is the replay file the
+//! page writes and `eccaudit audit --settings` reads); [`AuditPlan`] does the
+//! work in resumable pieces: [`AuditPlan::run_trials`] over any range of trial
+//! indices (a thread, a Web Worker, a resumed run), then
+//! [`AuditPlan::finish`] with all the records. Because each trial draws from
+//! its own random stream ([`crate::random::stream_rng`]), the numbers depend
+//! only on the settings and the data, never on how the trials were split.
+
+use std::ops::Range;
+
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+use thiserror::Error;
+
+use crate::fit::{fit_orbit, FitData, FitError, FitOptions, FitReport};
+use crate::inject::{
+    default_eccentricity_grid, eccentricity_statement, run_trials, summarise, EccentricityEstimate,
+    EccentricityStatement, Estimator, FittedOrbit, InjectError, InjectionDesign, InjectionSummary,
+    LeastSquaresEstimator, LeastSquaresSettings, Sampling, TrialPeriod, TrialRecord,
+};
+use crate::periodogram::FrequencyLimits;
+use crate::table::{TimeSpec, VelocityTable, VelocityUnit};
+
+/// The `format` field of a settings file.
+pub const SETTINGS_FORMAT: &str = "eccaudit-audit-settings";
+/// The settings version this build reads and writes.
+pub const SETTINGS_VERSION: u32 = 1;
+/// Random stream of the estimators run on the real data (trials use 0, 1, …).
+const REAL_DATA_STREAM: u64 = u64::MAX - 1;
+
+/// Which table the settings were made for: checked before a replay.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DataIdentity {
+    /// File name as the user loaded it (informative; not checked).
+    pub file_name: String,
+    /// SHA-256 of the file's bytes, lower-case hex ([`data_fingerprint`]).
+    pub sha256: String,
+}
+
+/// How the table is read.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct ReadSettings {
+    /// Velocity unit when the header does not state it.
+    pub velocity_unit: Option<VelocityUnit>,
+    /// Time convention when the header does not state it.
+    pub time: Option<TimeSpec>,
+}
+
+/// The least-squares fit of the real data.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct FitSettings {
+    /// Shortest period searched [d].
+    pub min_period: f64,
+    /// Longest period searched [d]; `None` = the baseline.
+    pub max_period: Option<f64>,
+    /// Fit a linear trend.
+    pub trend: bool,
+    /// Fit a jitter per instrument (maximum likelihood).
+    pub jitter: bool,
+}
+
+impl Default for FitSettings {
+    fn default() -> Self {
+        FitSettings {
+            min_period: 1.0,
+            max_period: None,
+            trend: false,
+            jitter: false,
+        }
+    }
+}
+
+/// The injection–recovery grid and its estimators.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct InjectionSettings {
+    /// True eccentricities injected.
+    pub eccentricities: Vec<f64>,
+    /// Simulations per true eccentricity.
+    pub trials_per_cell: usize,
+    /// Extra Gaussian scatter added to every simulated velocity [m/s].
+    pub jitter: f64,
+    /// Fixed arguments of periastron [degrees]; empty = random ω per trial.
+    pub omegas_deg: Vec<f64>,
+    /// Search the periodogram in each simulation instead of starting at the known period.
+    pub period_search: bool,
+    /// Starting eccentricities of the least-squares fits in each simulation.
+    pub start_eccentricities: Vec<f64>,
+    /// Starting arguments of periastron per starting eccentricity.
+    pub n_omega_starts: usize,
+    /// Also report the Lucy–Sweeney decision as an estimator.
+    pub lucy_sweeney: bool,
+}
+
+impl Default for InjectionSettings {
+    fn default() -> Self {
+        let lsq = LeastSquaresSettings::default();
+        InjectionSettings {
+            eccentricities: default_eccentricity_grid(),
+            trials_per_cell: 200,
+            jitter: 0.0,
+            omegas_deg: Vec::new(),
+            period_search: false,
+            start_eccentricities: lsq.start_eccentricities,
+            n_omega_starts: lsq.n_omega_starts,
+            lucy_sweeney: lsq.lucy_sweeney,
+        }
+    }
+}
+
+/// Every choice of an audit: the replay file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct AuditSettings {
+    /// Always [`SETTINGS_FORMAT`].
+    pub format: String,
+    /// Always [`SETTINGS_VERSION`] for this build.
+    pub version: u32,
+    /// The table these settings were made for, when known.
+    pub data: Option<DataIdentity>,
+    /// How the table is read.
+    pub read: ReadSettings,
+    /// The least-squares fit of the real data.
+    pub fit: FitSettings,
+    /// The injection–recovery grid.
+    pub injection: InjectionSettings,
+    /// Master seed of every simulation.
+    pub seed: u64,
+}
+
+impl Default for AuditSettings {
+    fn default() -> Self {
+        AuditSettings {
+            format: SETTINGS_FORMAT.to_string(),
+            version: SETTINGS_VERSION,
+            data: None,
+            read: ReadSettings::default(),
+            fit: FitSettings::default(),
+            injection: InjectionSettings::default(),
+            seed: 1,
+        }
+    }
+}
+
+/// Why an audit cannot go ahead.
+#[derive(Debug, Clone, PartialEq, Error)]
+pub enum AuditError {
+    /// The settings text is not valid settings JSON.
+    #[error("settings: {0}")]
+    Settings(String),
+    /// The settings were made for another table.
+    #[error(
+        "the settings were made for `{expected_name}` (SHA-256 {expected}), but this table's \
+         SHA-256 is {found}: load the same file, or remove the \"data\" entry to use these settings anyway"
+    )]
+    DataMismatch {
+        /// File name in the settings.
+        expected_name: String,
+        /// Hash in the settings.
+        expected: String,
+        /// Hash of the table given.
+        found: String,
+    },
+    /// The least-squares fit of the real data failed.
+    #[error("least-squares fit: {0}")]
+    Fit(#[from] FitError),
+    /// The simulations cannot run.
+    #[error(transparent)]
+    Inject(#[from] InjectError),
+}
+
+/// SHA-256 of a table's bytes as lower-case hex: the data identity of a settings file.
+pub fn data_fingerprint(bytes: &[u8]) -> String {
+    Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+impl AuditSettings {
+    /// Parse a settings file (JSON). Unknown fields, a wrong `format` or a
+    /// newer `version` are errors, so a typo never silently changes a result.
+    pub fn from_json(text: &str) -> Result<Self, AuditError> {
+        let settings: AuditSettings =
+            serde_json::from_str(text).map_err(|e| AuditError::Settings(e.to_string()))?;
+        if settings.format != SETTINGS_FORMAT {
+            return Err(AuditError::Settings(format!(
+                "\"format\" is \"{}\", expected \"{SETTINGS_FORMAT}\"",
+                settings.format
+            )));
+        }
+        if settings.version > SETTINGS_VERSION {
+            return Err(AuditError::Settings(format!(
+                "version {} is newer than this eccaudit reads ({SETTINGS_VERSION})",
+                settings.version
+            )));
+        }
+        Ok(settings)
+    }
+
+    /// The settings as pretty JSON.
+    pub fn to_json(&self) -> String {
+        serde_json::to_string_pretty(self).expect("settings always serialise")
+    }
+
+    /// Check that `bytes` are the table these settings were made for (when they name one).
+    pub fn check_data(&self, bytes: &[u8]) -> Result<(), AuditError> {
+        let Some(identity) = &self.data else {
+            return Ok(());
+        };
+        let found = data_fingerprint(bytes);
+        if found == identity.sha256 {
+            Ok(())
+        } else {
+            Err(AuditError::DataMismatch {
+                expected_name: identity.file_name.clone(),
+                expected: identity.sha256.clone(),
+                found,
+            })
+        }
+    }
+
+    fn fit_options(&self) -> FitOptions {
+        let defaults = FitOptions::default();
+        let limits = match self.fit.max_period {
+            Some(max_period) => FrequencyLimits::PeriodRange {
+                min_period: self.fit.min_period,
+                max_period,
+            },
+            None => FrequencyLimits::MaxFrequency(1.0 / self.fit.min_period),
+        };
+        FitOptions {
+            limits,
+            trend: self.fit.trend,
+            jitter: self.fit.jitter,
+            seed: self.seed,
+            ..defaults
+        }
+    }
+
+    fn least_squares(&self) -> LeastSquaresEstimator {
+        let inj = &self.injection;
+        LeastSquaresEstimator {
+            settings: LeastSquaresSettings {
+                period: if inj.period_search {
+                    TrialPeriod::Search
+                } else {
+                    TrialPeriod::StartAtKnown
+                },
+                start_eccentricities: inj.start_eccentricities.clone(),
+                n_omega_starts: inj.n_omega_starts,
+                lucy_sweeney: inj.lucy_sweeney,
+                ..LeastSquaresSettings::default()
+            },
+        }
+    }
+}
+
+/// The result of an audit.
+#[derive(Debug, Clone, Serialize)]
+pub struct AuditReport {
+    /// The least-squares fit of the real data.
+    pub fit: FitReport,
+    /// Bias, scatter and coverage per grid cell and estimator.
+    pub injection: InjectionSummary,
+    /// The calibrated statement about the real data.
+    pub statement: EccentricityStatement,
+    /// Trials done out of the design's total (a cancelled or partial run states it).
+    pub trials_done: u64,
+    /// Trials in the design.
+    pub trials_total: u64,
+}
+
+/// A prepared audit: the fit is done, the simulation design is fixed.
+#[derive(Debug)]
+pub struct AuditPlan {
+    fit: FitReport,
+    design: InjectionDesign,
+    least_squares: LeastSquaresEstimator,
+    observed: Vec<Option<EccentricityEstimate>>,
+    fitted: FittedOrbit,
+}
+
+impl AuditPlan {
+    /// Fit `table` and fix the simulation design at the fitted orbit.
+    pub fn new(table: &VelocityTable, settings: &AuditSettings) -> Result<Self, AuditError> {
+        let data = FitData::from_table(table);
+        let fit = fit_orbit(&data, &settings.fit_options())?;
+        let companion = &fit.eccentric.companions[0];
+        let period = companion.period.value;
+        let semi_amplitude = companion.semi_amplitude.value;
+        let inj = &settings.injection;
+        let design = InjectionDesign {
+            sampling: Sampling::from_table(table),
+            period,
+            eccentricities: inj.eccentricities.clone(),
+            semi_amplitudes: vec![semi_amplitude],
+            omegas: inj.omegas_deg.iter().map(|d| d.to_radians()).collect(),
+            jitter: inj.jitter,
+            trials_per_cell: inj.trials_per_cell,
+            seed: settings.seed,
+        };
+        design.validate().map_err(InjectError::from)?;
+        let least_squares = settings.least_squares();
+        // The real data, estimated exactly as each simulation is.
+        let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
+        let observed: Vec<Option<EccentricityEstimate>> = least_squares
+            .estimate(&data, &design, &mut rng)
+            .map(|estimates| estimates.into_iter().map(Some).collect())
+            .unwrap_or_else(|_| vec![None; least_squares.outputs().len()]);
+        let lucy_sweeney_p = companion.lucy_sweeney.as_ref().map(|ls| ls.probability);
+        let fitted = FittedOrbit {
+            period,
+            semi_amplitude,
+            omega: companion.omega_deg.value.to_radians(),
+            lucy_sweeney_p,
+        };
+        Ok(AuditPlan {
+            fit,
+            design,
+            least_squares,
+            observed,
+            fitted,
+        })
+    }
+
+    /// The least-squares fit of the real data.
+    pub fn fit(&self) -> &FitReport {
+        &self.fit
+    }
+
+    /// The simulation design.
+    pub fn design(&self) -> &InjectionDesign {
+        &self.design
+    }
+
+    /// The estimators run on every simulation, in output order.
+    pub fn estimators(&self) -> Vec<&dyn Estimator> {
+        vec![&self.least_squares]
+    }
+
+    /// Trials in the design.
+    pub fn n_trials(&self) -> u64 {
+        self.design.n_trials()
+    }
+
+    /// Run the trials with indices in `range` (clipped to the design), calling
+    /// `observer` after each, in index order.
+    pub fn run_trials(
+        &self,
+        range: Range<u64>,
+        observer: &mut dyn FnMut(&TrialRecord),
+    ) -> Result<Vec<TrialRecord>, AuditError> {
+        Ok(run_trials(
+            &self.design,
+            &self.estimators(),
+            range,
+            observer,
+        )?)
+    }
+
+    /// Summarise `records` (any order; duplicates by trial index are dropped)
+    /// and state the result for the real data.
+    pub fn finish(&self, records: &[TrialRecord]) -> Result<AuditReport, AuditError> {
+        let estimators = self.estimators();
+        let injection = summarise(&self.design, &estimators, records);
+        let statement = eccentricity_statement(&injection, records, &self.observed, self.fitted)?;
+        let mut indices: Vec<u64> = records.iter().map(|r| r.trial).collect();
+        indices.sort_unstable();
+        indices.dedup();
+        Ok(AuditReport {
+            fit: self.fit.clone(),
+            injection,
+            statement,
+            trials_done: indices.len() as u64,
+            trials_total: self.n_trials(),
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::table::{parse_table, ReadOptions};
+
+    /// SHA-256 test vector "abc" (FIPS 180-2, Appendix B.1).
+    #[test]
+    fn fingerprint_is_sha256_hex() {
+        assert_eq!(
+            data_fingerprint(b"abc"),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+    }
+
+    #[test]
+    fn settings_round_trip_and_refuse_typos_and_other_data() {
+        let mut settings = AuditSettings::default();
+        settings.data = Some(DataIdentity {
+            file_name: "t.csv".into(),
+            sha256: data_fingerprint(b"x"),
+        });
+        let back = AuditSettings::from_json(&settings.to_json()).unwrap();
+        assert_eq!(back, settings);
+        assert!(back.check_data(b"x").is_ok());
+        let err = back.check_data(b"y").unwrap_err();
+        assert!(err.to_string().contains("made for `t.csv`"), "{err}");
+
+        let typo = settings
+            .to_json()
+            .replace("\"trials_per_cell\"", "\"trials_per_cel\"");
+        let err = AuditSettings::from_json(&typo).unwrap_err().to_string();
+        assert!(err.contains("unknown field `trials_per_cel`"), "{err}");
+        let wrong = settings
+            .to_json()
+            .replace(SETTINGS_FORMAT, "something-else");
+        assert!(AuditSettings::from_json(&wrong).is_err());
+        // Missing fields take their defaults.
+        let minimal = AuditSettings::from_json(r#"{"seed": 9}"#).unwrap();
+        assert_eq!(minimal.seed, 9);
+        assert_eq!(minimal.injection, InjectionSettings::default());
+    }
+
+    /// However the trials are split into ranges, the report is the same.
+    #[test]
+    fn split_runs_give_the_same_report() {
+        let text = include_str!("../../../demo-data/corvin4-eccentric.tsv");
+        let table = parse_table(text, &ReadOptions::new("corvin4-eccentric.tsv")).unwrap();
+        let settings = AuditSettings {
+            injection: InjectionSettings {
+                eccentricities: vec![0.0, 0.4],
+                trials_per_cell: 6,
+                ..InjectionSettings::default()
+            },
+            seed: 11,
+            ..AuditSettings::default()
+        };
+        let plan = AuditPlan::new(&table, &settings).unwrap();
+        assert_eq!(plan.n_trials(), 12);
+        let whole = plan.run_trials(0..12, &mut |_| {}).unwrap();
+        let mut pieces = plan.run_trials(7..12, &mut |_| {}).unwrap();
+        pieces.extend(plan.run_trials(0..7, &mut |_| {}).unwrap());
+        let a = serde_json::to_string(&plan.finish(&whole).unwrap()).unwrap();
+        let b = serde_json::to_string(&plan.finish(&pieces).unwrap()).unwrap();
+        assert_eq!(a, b);
+        assert!(a.contains("\"trials_done\":12"));
+    }
+}
