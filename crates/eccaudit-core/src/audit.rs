@@ -308,7 +308,7 @@ impl AuditPlan {
             trials_per_cell: inj.trials_per_cell,
             seed: settings.seed,
         };
-        design.validate().map_err(InjectError::from)?;
+        design.validate()?;
         let least_squares = settings.least_squares();
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
