@@ -1,6 +1,7 @@
 //! One module per subcommand. Each has an `Args` (clap) and a `run`.
 
 pub mod bench;
+pub mod bench_posterior;
 pub mod curve;
 pub mod fit;
 pub mod table;

@@ -166,30 +166,31 @@ pub fn savage_dickey_ball_ratio(
             }
         })
         .collect();
-    let chosen_index = ladder
-        .iter()
-        .position(|b| b.n_inside >= MIN_BALL_SAMPLES)
-        .or_else(|| {
-            let last = ladder.len() - 1;
-            (ladder[last].n_inside > 0).then_some(last)
-        });
-    let Some(index) = chosen_index else {
-        let last = ladder[ladder.len() - 1];
+    // A ball with no sample below a ball with many means the posterior density rises steeply
+    // away from e = 0: the larger ball is no approximation of the limit, and the honest
+    // statement is the upper limit from the largest empty ball.
+    if let Some(empty) = ladder.iter().rposition(|b| b.n_inside == 0) {
+        let ball = ladder[empty];
+        let limit = 3.0 / (ess * ball.prior_mass);
         return SavageDickey {
             status: BayesFactorStatus::UpperLimit,
-            bf01: 3.0 / (ess * last.prior_mass),
+            bf01: limit,
             bf01_error: f64::NAN,
-            chosen: Some(last),
+            chosen: Some(ball),
             ladder,
             stable: false,
             effective_sample_size: ess,
             note: format!(
-                "no posterior sample with e < {:.4}: BF01 < {:.3e} (95 %, rule of three)",
-                last.epsilon,
-                3.0 / (ess * last.prior_mass)
+                "no posterior sample with e < {:.4}: BF01 < {limit:.3e} (95 %, rule of three)",
+                ball.epsilon
             ),
         };
-    };
+    }
+    // Every ball holds samples: the smallest with enough of them, else the largest.
+    let index = ladder
+        .iter()
+        .position(|b| b.n_inside >= MIN_BALL_SAMPLES)
+        .unwrap_or(ladder.len() - 1);
     let chosen = ladder[index];
     let stable = match ladder.get(index + 1) {
         Some(next) => {
