@@ -27,6 +27,8 @@ enum Command {
     Curve(commands::curve::Args),
     /// Global least-squares Keplerian orbit fit with formal errors and the Lucy-Sweeney test.
     Fit(commands::fit::Args),
+    /// Posterior of e under several eccentricity priors: the prior-sensitivity set and BF01.
+    Priors(commands::priors::Args),
     /// Time the hot loops (Kepler solve) natively.
     Bench(commands::bench::Args),
 }
@@ -40,6 +42,7 @@ fn main() -> ExitCode {
         Command::Table(args) => commands::table::run(args),
         Command::Curve(args) => commands::curve::run(args),
         Command::Fit(args) => commands::fit::run(args),
+        Command::Priors(args) => commands::priors::run(args),
         Command::Bench(args) => commands::bench::run(args),
     };
     match result {

@@ -4,4 +4,5 @@ pub mod bench;
 pub mod bench_posterior;
 pub mod curve;
 pub mod fit;
+pub mod priors;
 pub mod table;

@@ -344,7 +344,7 @@ impl fmt::Display for SensitivityReport {
         writeln!(f)?;
         writeln!(
             f,
-            "{:<3} {:<34} {:>13} {:>6} {:>6} {:>16} {:>16} {:>14} {:>13} {:>16} converged",
+            "{:<3} {:<44} {:>13} {:>6} {:>6} {:>16} {:>16} {:>14} {:>13} {:>16} converged",
             "#",
             "prior on e",
             "median",
@@ -368,7 +368,7 @@ impl fmt::Display for SensitivityReport {
             };
             writeln!(
                 f,
-                "{:<3} {:<34} {:>13} {:>6.3} {:>6.3} {:>16} {:>16} {:>14} {:>13} {:>16} {}",
+                "{:<3} {:<44} {:>13} {:>6.3} {:>6.3} {:>16} {:>16} {:>14} {:>13} {:>16} {}",
                 i + 1,
                 s.prior_label,
                 format!("{:.3} ± {:.3}", s.median, s.median_mc_error),
