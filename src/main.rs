@@ -31,6 +31,8 @@ enum Command {
     Inject(commands::inject::Args),
     /// Fit, injection-recovery at the fitted orbit, and a bias-aware eccentricity statement.
     Audit(commands::audit::Args),
+    /// Posterior of e under several eccentricity priors: the prior-sensitivity set and BF01.
+    Priors(commands::priors::Args),
     /// Time the hot loops (Kepler solve) natively.
     Bench(commands::bench::Args),
 }
@@ -46,6 +48,7 @@ fn main() -> ExitCode {
         Command::Fit(args) => commands::fit::run(args),
         Command::Inject(args) => commands::inject::run(args),
         Command::Audit(args) => commands::audit::run(args),
+        Command::Priors(args) => commands::priors::run(args),
         Command::Bench(args) => commands::bench::run(args),
     };
     match result {

@@ -30,6 +30,9 @@ pub struct Args {
     /// Print one JSON object instead of text.
     #[arg(long)]
     json: bool,
+    /// Also time the posterior log-density (one Keplerian, 30 epochs) and one fast-preset run.
+    #[arg(long)]
+    posterior: bool,
 }
 
 fn median(mut values: Vec<f64>) -> f64 {
@@ -116,8 +119,19 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     });
     let n_starts = given_result?;
 
+    let posterior = if args.posterior {
+        Some(super::bench_posterior::measure(
+            &data,
+            args.repeats,
+            args.seed,
+        )?)
+    } else {
+        None
+    };
+
     if args.json {
         let report = serde_json::json!({
+            "posterior": posterior,
             "fit_full_ms": full_fit_ns * 1e-6,
             "fit_given_period_ms": given_fit_ns * 1e-6,
             "fit_n_starts": n_starts,
@@ -149,6 +163,9 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             "LSQ fit, given P:  {:8.3} ms per fit (same without the period search)",
             given_fit_ns * 1e-6
         );
+        if let Some(p) = &posterior {
+            super::bench_posterior::print(p);
+        }
     }
     Ok(())
 }

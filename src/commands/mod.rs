@@ -2,7 +2,9 @@
 
 pub mod audit;
 pub mod bench;
+pub mod bench_posterior;
 pub mod curve;
 pub mod fit;
 pub mod inject;
+pub mod priors;
 pub mod table;

@@ -15,6 +15,7 @@ pub mod lsq;
 pub mod model;
 pub mod orbit;
 pub mod periodogram;
+pub mod posterior;
 pub mod priors;
 pub mod random;
 pub mod sampler;

@@ -6,18 +6,24 @@
 //! takes plain numbers and computes nothing scientific.
 
 mod bias;
+mod corner;
 mod legend;
 mod palette;
+mod posterior;
+mod traces;
 mod velocity;
 
 pub use bias::{
     draw_bias_curve, draw_distributions, BiasCurve, BiasFigure, DistributionFigure,
     DistributionPanel, EstimateHistogram,
 };
+pub use corner::{draw_corner, CornerFigure};
 pub use legend::{draw_legend, LegendMark};
 pub use palette::{instrument_colour, INK, MUTED};
 /// plotters itself, so adapters can build drawing areas on their own backend.
 pub use plotters;
+pub use posterior::{draw_eccentricity_posteriors, EccentricityFigure, EccentricityPanel};
+pub use traces::{draw_traces, ParameterTraces, TraceFigure};
 pub use velocity::{draw_velocities, ModelCurve, VelocityFigure, VelocitySeries};
 
 /// The error every drawing function returns: the backend's own error type,

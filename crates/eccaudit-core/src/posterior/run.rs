@@ -1,0 +1,424 @@
+//! One posterior run under one prior, and the prior-sensitivity set: the same data sampled under
+//! a list of eccentricity priors, one summary each.
+
+use std::fmt;
+use std::ops::ControlFlow;
+
+use serde::Serialize;
+
+use crate::fit::{fit_orbit, FitData, FitOptions, FitReport};
+use crate::priors::{EccentricityPriorSettings, EccentricityShape};
+use crate::sampler::{diagnose, Chains, EnsembleState, SamplerSettings};
+
+use super::start::{start_from_fit, PosteriorStart};
+use super::summary::{summarise_eccentricity, EccentricitySummary, SamplerCost};
+use super::target::{PosteriorSettings, RvPosterior};
+use super::PosteriorError;
+
+/// The fast sampler preset for repeated use (injection–recovery): 24 walkers, 300 burn-in and
+/// 600 stored steps, i.e. 21 624 log-density evaluations with the initial ball. Measured with
+/// `eccaudit bench --posterior` (one Keplerian, 30 epochs, jitter sampled) on a shared, loaded
+/// 2-core machine: ≈ 130 ms per run, summary included, at ≈ 2.8–4 µs per evaluation — the
+/// evaluation cost is that of `RvProblem::model_velocities`. Short for convergence by the
+/// default thresholds: use it for population statistics, not for a quoted value.
+pub fn fast_sampler_settings(seed: u64) -> SamplerSettings {
+    SamplerSettings {
+        n_walkers: 24,
+        n_steps: 600,
+        n_burn: 300,
+        thin: 1,
+        stretch_a: 2.0,
+        seed,
+    }
+}
+
+/// Steps advanced between observer calls.
+const CHUNK: usize = 50;
+
+/// Progress of a run or a set of runs.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PosteriorProgress {
+    /// Index of the prior being sampled.
+    pub prior_index: usize,
+    /// Priors in the set.
+    pub n_priors: usize,
+    /// Steps done in this run (burn-in included).
+    pub steps_done: usize,
+    /// Steps of this run.
+    pub total_steps: usize,
+}
+
+/// One run's result: the summary of e, the chains and the parameter names.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PosteriorRun {
+    /// What the run says about e (companion 1).
+    pub summary: EccentricitySummary,
+    /// Names of the sampled parameters, in the chains' order.
+    pub parameter_names: Vec<String>,
+    /// The start used.
+    pub start: PosteriorStart,
+    /// The chains (not serialised: they are large).
+    #[serde(skip)]
+    pub chains: Chains,
+}
+
+/// Samples the posterior of `data` under `settings` from `start` and summarises e of the first
+/// companion. `observer` sees progress every 50 steps and may cancel.
+pub fn run_posterior(
+    data: &FitData,
+    settings: &PosteriorSettings,
+    sampler: &SamplerSettings,
+    start: &PosteriorStart,
+    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+    prior_index: (usize, usize),
+) -> Result<PosteriorRun, PosteriorError> {
+    if settings.priors.eccentricity.shape == EccentricityShape::Circular {
+        return Err(PosteriorError::CircularInSet);
+    }
+    let centres = start.lambda_centres(settings, data.n_instruments());
+    let target = RvPosterior::new(data, settings, &centres)?;
+    let mut state = EnsembleState::new(&target, &start.point, &start.scales, sampler)?;
+    while !state.is_finished() {
+        state.advance(&target, CHUNK)?;
+        let progress = state.progress();
+        let report = PosteriorProgress {
+            prior_index: prior_index.0,
+            n_priors: prior_index.1,
+            steps_done: progress.steps_done,
+            total_steps: progress.total_steps,
+        };
+        if observer(report).is_break() {
+            return Err(PosteriorError::Cancelled {
+                prior_index: prior_index.0,
+                steps_done: progress.steps_done,
+            });
+        }
+    }
+    let chains = state.into_chains();
+    let diagnostics = diagnose(&chains);
+    let start_index = target.layout().companion_start(0);
+    let e_traces: Vec<Vec<f64>> = (0..chains.n_walkers)
+        .map(|w| {
+            (0..chains.n_stored_steps)
+                .map(|s| {
+                    let x = chains.sample(s, w);
+                    x[start_index + 2] * x[start_index + 2]
+                        + x[start_index + 3] * x[start_index + 3]
+                })
+                .collect()
+        })
+        .collect();
+    let cost = SamplerCost {
+        n_walkers: chains.n_walkers,
+        n_steps_total: sampler.n_burn + sampler.n_steps,
+        n_samples: chains.n_walkers * chains.n_stored_steps,
+        log_density_evaluations: target.evaluations(),
+    };
+    let summary =
+        summarise_eccentricity(&e_traces, target.eccentricity_prior(), &diagnostics, cost);
+    Ok(PosteriorRun {
+        summary,
+        parameter_names: settings.parameter_names(data.instrument_names()),
+        start: start.clone(),
+        chains,
+    })
+}
+
+/// The function for repeated use (e.g. the injection–recovery engine): the e summary of one run
+/// from a given start, without progress reporting. Pair with [`fast_sampler_settings`].
+pub fn posterior_eccentricity(
+    data: &FitData,
+    settings: &PosteriorSettings,
+    sampler: &SamplerSettings,
+    start: &PosteriorStart,
+) -> Result<EccentricitySummary, PosteriorError> {
+    run_posterior(
+        data,
+        settings,
+        sampler,
+        start,
+        &mut |_| ControlFlow::Continue(()),
+        (0, 1),
+    )
+    .map(|run| run.summary)
+}
+
+/// The default prior-sensitivity set (stated choices):
+/// 1–3. uniform in e truncated at e_max = 0.99, 0.8, 0.5 (the same family, three truncations;
+///      0.99 is the model's domain);
+/// 4. Beta(0.867, 3.03) of Kipping (2013, MNRAS 434, L51), on [0, 0.99];
+/// 5. Rayleigh σ = 0.3 on [0, 0.99] (the scale Jurić & Tremaine 2008, ApJ 686, 603 found for
+///    planet–planet scattering, from memory);
+/// 6. p(e) ∝ e on [0, 0.99], the prior implied by sampling uniformly in (e cos ω, e sin ω)
+///    (Eastman, Gaudi & Agol 2013, PASP 125, 83), which disfavours small e.
+pub fn default_prior_set() -> Vec<EccentricityPriorSettings> {
+    let on = |shape, e_max| EccentricityPriorSettings {
+        shape,
+        e_min: 0.0,
+        e_max,
+    };
+    vec![
+        on(EccentricityShape::Uniform, 0.99),
+        on(EccentricityShape::Uniform, 0.8),
+        on(EccentricityShape::Uniform, 0.5),
+        on(EccentricityShape::KIPPING_2013_ALL, 0.99),
+        on(EccentricityShape::Rayleigh { sigma: 0.3 }, 0.99),
+        on(EccentricityShape::UniformInECosOmega, 0.99),
+    ]
+}
+
+/// Settings of [`prior_sensitivity`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SensitivitySettings {
+    /// Priors other than e (the eccentricity prior in it is ignored), jitter, trend.
+    pub posterior: PosteriorSettings,
+    /// The eccentricity priors to compare (at least one; not circular).
+    pub priors: Vec<EccentricityPriorSettings>,
+    /// Sampler settings; the same seed is used for every prior.
+    pub sampler: SamplerSettings,
+    /// Settings of the least-squares fit that gives the start (its `jitter` and `trend` are
+    /// taken from `posterior`).
+    pub fit: FitOptions,
+}
+
+impl Default for SensitivitySettings {
+    fn default() -> Self {
+        Self {
+            posterior: PosteriorSettings::default(),
+            priors: default_prior_set(),
+            sampler: SamplerSettings::default(),
+            fit: FitOptions::default(),
+        }
+    }
+}
+
+/// The least-squares figures shown beside the posteriors.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct LeastSquaresEccentricity {
+    /// Period [d].
+    pub period: f64,
+    /// Minimum-χ² eccentricity.
+    pub e: f64,
+    /// Its formal error.
+    pub e_error: Option<f64>,
+    /// Lucy–Sweeney probability that an e this large arises from a circular orbit.
+    pub lucy_sweeney_probability: Option<f64>,
+}
+
+/// The prior-sensitivity set.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SensitivityReport {
+    /// Epochs.
+    pub n_points: usize,
+    /// The least-squares start.
+    pub least_squares: LeastSquaresEccentricity,
+    /// The priors on the other parameters, every bound.
+    pub settings: PosteriorSettings,
+    /// Sampler settings.
+    pub sampler: SamplerSettings,
+    /// One run per prior, in the order given.
+    pub runs: Vec<PosteriorRun>,
+    /// Largest minus smallest posterior median of e over the set.
+    pub median_spread: f64,
+    /// The methods, in words.
+    pub methods: Vec<String>,
+}
+
+/// The methods behind each figure, for reports.
+pub fn method_notes() -> Vec<String> {
+    vec![
+        "Sampling: affine-invariant ensemble (stretch move) in (P, K, √e cos ω, √e sin ω, λ, γ, [trend], [jitter]); the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; walkers start around the least-squares optimum.".into(),
+        "Median, mean, intervals: sample quantiles (type 7); HDI = shortest interval of the samples. Mode: maximum of a Gaussian KDE reflected at the prior's bounds, Silverman bandwidth.".into(),
+        "P(e < 0.05): fraction of samples; error √(p(1−p)/ESS_tail).".into(),
+        "Information gain: KL(posterior ‖ prior) of e in nats on 50 equal bins over the prior's support, Miller–Madow bias (m−1)/(2 ESS) removed; binning makes it a lower bound.".into(),
+        "BF01 (circular over eccentric): Savage–Dickey ratio P_post(e<ε)/P_prior(e<ε) at the smallest ball of prior mass 0.005–0.1 holding ≥ 100 samples; error from the binomial with ESS; valid for nested models with e_min = 0, undefined for e_min > 0.".into(),
+    ]
+}
+
+/// Runs the least-squares fit (for the start) and then the sampler under each prior of
+/// `settings.priors`, all with the same seed. `observer` sees progress and may cancel.
+pub fn prior_sensitivity(
+    data: &FitData,
+    settings: &SensitivitySettings,
+    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+) -> Result<SensitivityReport, PosteriorError> {
+    if settings.priors.is_empty() {
+        return Err(PosteriorError::EmptyPriorSet);
+    }
+    if settings
+        .priors
+        .iter()
+        .any(|p| p.shape == EccentricityShape::Circular)
+    {
+        return Err(PosteriorError::CircularInSet);
+    }
+    // Check every prior before spending time on the fit.
+    for p in &settings.priors {
+        settings.posterior.with_eccentricity(*p).priors.validate()?;
+    }
+    let fit_options = FitOptions {
+        n_companions: settings.posterior.n_companions,
+        jitter: settings.posterior.jitter,
+        trend: settings.posterior.trend,
+        ..settings.fit.clone()
+    };
+    let report: FitReport = fit_orbit(data, &fit_options)?;
+    let first = &report.eccentric.companions[0];
+    let least_squares = LeastSquaresEccentricity {
+        period: first.period.value,
+        e: first.eccentricity.value,
+        e_error: first.eccentricity.error,
+        lucy_sweeney_probability: first.lucy_sweeney.map(|l| l.probability),
+    };
+    let mut runs = Vec::with_capacity(settings.priors.len());
+    for (i, prior) in settings.priors.iter().enumerate() {
+        let posterior = settings.posterior.with_eccentricity(*prior);
+        let effective = posterior.effective_eccentricity().validate()?;
+        let start = start_from_fit(
+            &report,
+            &posterior,
+            &effective,
+            data.uncertainties(),
+            data.n_instruments(),
+        )?;
+        runs.push(run_posterior(
+            data,
+            &posterior,
+            &settings.sampler,
+            &start,
+            observer,
+            (i, settings.priors.len()),
+        )?);
+    }
+    let medians = runs.iter().map(|r| r.summary.median);
+    let median_spread =
+        medians.clone().fold(f64::NEG_INFINITY, f64::max) - medians.fold(f64::INFINITY, f64::min);
+    Ok(SensitivityReport {
+        n_points: data.n_points(),
+        least_squares,
+        settings: settings.posterior,
+        sampler: settings.sampler,
+        runs,
+        median_spread,
+        methods: method_notes(),
+    })
+}
+
+fn interval(i: [f64; 2]) -> String {
+    format!("[{:.3}, {:.3}]", i[0], i[1])
+}
+
+impl fmt::Display for SensitivityReport {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let ls = &self.least_squares;
+        writeln!(
+            f,
+            "Prior sensitivity of e: {} epochs; least squares P = {:.6} d, e = {:.4}{}",
+            self.n_points,
+            ls.period,
+            ls.e,
+            ls.e_error.map_or(String::new(), |s| format!(" ± {s:.4}")),
+        )?;
+        let p = &self.settings.priors;
+        writeln!(
+            f,
+            "Other priors: P {:?}; K {:?} m/s; jitter {} {:?} m/s; offset {:?} m/s{}",
+            p.period,
+            p.semi_amplitude,
+            if self.settings.jitter {
+                "sampled,"
+            } else {
+                "not sampled,"
+            },
+            p.jitter,
+            p.offset,
+            if self.settings.trend {
+                format!("; trend {:?} m/s/d", self.settings.trend_prior)
+            } else {
+                String::new()
+            }
+        )?;
+        writeln!(
+            f,
+            "Sampler: {} walkers x ({} burn-in + {} steps), seed {}",
+            self.sampler.n_walkers, self.sampler.n_burn, self.sampler.n_steps, self.sampler.seed
+        )?;
+        writeln!(f)?;
+        writeln!(
+            f,
+            "{:<3} {:<44} {:>13} {:>6} {:>6} {:>16} {:>16} {:>14} {:>13} {:>16} converged",
+            "#",
+            "prior on e",
+            "median",
+            "mode",
+            "mean",
+            "68% interval",
+            "95% interval",
+            "P(e<0.05)",
+            "KL [nats]",
+            "BF01 (circ/ecc)",
+        )?;
+        for (i, run) in self.runs.iter().enumerate() {
+            let s = &run.summary;
+            let bf = &s.bayes_factor;
+            let bf_text = match bf.status {
+                super::BayesFactorStatus::Estimated => {
+                    format!("{:.3} ± {:.3}", bf.bf01, bf.bf01_error)
+                }
+                super::BayesFactorStatus::UpperLimit => format!("< {:.3e}", bf.bf01),
+                super::BayesFactorStatus::Undefined => "undefined".into(),
+            };
+            writeln!(
+                f,
+                "{:<3} {:<44} {:>13} {:>6.3} {:>6.3} {:>16} {:>16} {:>14} {:>13} {:>16} {}",
+                i + 1,
+                s.prior_label,
+                format!("{:.3} ± {:.3}", s.median, s.median_mc_error),
+                s.mode,
+                s.mean,
+                interval(s.interval_68),
+                interval(s.interval_95),
+                format!(
+                    "{:.3} ± {:.3}",
+                    s.p_nearly_circular, s.p_nearly_circular_mc_error
+                ),
+                format!(
+                    "{:.3} ± {:.3}",
+                    s.information_gain.nats, s.information_gain.standard_error
+                ),
+                bf_text,
+                if s.converged { "yes" } else { "NO" },
+            )?;
+        }
+        writeln!(f)?;
+        writeln!(
+            f,
+            "Spread of the posterior median over the set: {:.3}",
+            self.median_spread
+        )?;
+        for (i, run) in self.runs.iter().enumerate() {
+            if !run.summary.converged {
+                let first = run.summary.verdict.lines().nth(1).unwrap_or("");
+                writeln!(
+                    f,
+                    "Run {} not converged: {}",
+                    i + 1,
+                    first.trim_start_matches("- ")
+                )?;
+            }
+            if run.start.eccentricity_moved {
+                writeln!(
+                    f,
+                    "Run {}: the least-squares e lies outside this prior's truncation; walkers \
+                     started inside it",
+                    i + 1
+                )?;
+            }
+        }
+        writeln!(f, "Methods:")?;
+        for note in &self.methods {
+            writeln!(f, "- {note}")?;
+        }
+        Ok(())
+    }
+}

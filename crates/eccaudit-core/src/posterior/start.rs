@@ -1,0 +1,200 @@
+//! Where the walkers start: the least-squares optimum, a ball from its formal errors, and the
+//! eccentricity moved inside the prior's truncation when the optimum lies outside it.
+
+use serde::Serialize;
+
+use crate::fit::{FitReport, Solution};
+use crate::priors::EccentricityPrior;
+
+use super::target::PosteriorSettings;
+use super::PosteriorError;
+
+/// Start point and initial-ball scales for [`crate::sampler::EnsembleState::new`], in the
+/// parameter order of [`super::RvPosterior`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PosteriorStart {
+    /// The centre of the walker ball.
+    pub point: Vec<f64>,
+    /// One standard deviation of the ball per parameter.
+    pub scales: Vec<f64>,
+    /// True when the least-squares eccentricity lay outside the prior's truncation and the start
+    /// was moved inside.
+    pub eccentricity_moved: bool,
+}
+
+impl PosteriorStart {
+    /// The mean longitudes of the start (centres of the λ windows of [`super::RvPosterior`]).
+    pub fn lambda_centres(&self, settings: &PosteriorSettings, n_instruments: usize) -> Vec<f64> {
+        let layout = settings.layout(n_instruments);
+        (0..layout.n_companions())
+            .map(|c| self.point[layout.lambda_index(c)])
+            .collect()
+    }
+}
+
+/// Fraction of the formal error used as the ball's scale: the stretch move widens a small ball
+/// to the posterior's width in a few tens of steps, while a ball as wide as the posterior can put
+/// walkers in distant low-probability corners that take long to return (common practice).
+const BALL_FRACTION: f64 = 0.5;
+
+/// The start from a least-squares report: the eccentric solution (the circular one when the
+/// prior is circular and the report has it), converted to (h, k) = (√e cos ω, √e sin ω), the
+/// fitted jitters (or a tenth of the median uncertainty when none was fitted) and the ball from
+/// the formal errors with floors: P ≥ 10⁻⁶ P, K ≥ 10⁻³ K + 0.01 m/s, λ ∈ [10⁻³, 0.5] rad,
+/// γ ≥ 10⁻³ of the median uncertainty, h and k ∈ [0.005, 0.1], jitter a tenth of the median
+/// uncertainty. When e lies outside `[e_min, e_max]` of `prior`, (h, k) is moved along ω to
+/// e = 0.9 e_max (above) or e_min + 0.1 (e_max − e_min) (below).
+pub fn start_from_fit(
+    report: &FitReport,
+    settings: &PosteriorSettings,
+    prior: &EccentricityPrior,
+    uncertainties: &[f64],
+    n_instruments: usize,
+) -> Result<PosteriorStart, PosteriorError> {
+    let layout = settings.layout(n_instruments);
+    let solution: &Solution = if prior.is_circular() {
+        report.circular.as_ref().unwrap_or(&report.eccentric)
+    } else {
+        &report.eccentric
+    };
+    if solution.companions.len() != layout.n_companions() {
+        return Err(PosteriorError::CompanionCount {
+            fitted: solution.companions.len(),
+            sampled: layout.n_companions(),
+        });
+    }
+    let mut sorted = uncertainties.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    let median_sigma = sorted.get(sorted.len() / 2).copied().unwrap_or(1.0);
+    let n_params = solution.parameters.len();
+    let sigma = |i: usize| -> Option<f64> {
+        solution
+            .covariance
+            .as_ref()
+            .map(|c| libm::sqrt(c[i * n_params + i].max(0.0)))
+            .filter(|s| s.is_finite() && *s > 0.0)
+    };
+    let dim = layout.n_params() + if settings.jitter { n_instruments } else { 0 };
+    let mut point = vec![0.0; dim];
+    let mut scales = vec![0.0; dim];
+    let mut moved = false;
+    let (e_min, e_max) = prior.bounds();
+    // Index into the solution's own parameter vector (E coordinates, its own circular flags).
+    let mut from = 0usize;
+    for c in 0..layout.n_companions() {
+        let fitted = &solution.companions[c];
+        let to = layout.companion_start(c);
+        let period = fitted.period.value;
+        let k = fitted.semi_amplitude.value;
+        point[to] = period;
+        scales[to] = (BALL_FRACTION * sigma(from).unwrap_or(1e-4 * period)).max(1e-6 * period);
+        point[to + 1] = k;
+        scales[to + 1] =
+            (BALL_FRACTION * sigma(from + 1).unwrap_or(0.05 * k + 0.1)).max(1e-3 * k + 0.01);
+        let fitted_len = if fitted.held_circular { 3 } else { 5 };
+        let lambda_from = from + fitted_len - 1;
+        let lambda = solution.parameters[lambda_from];
+        let lambda_to = layout.lambda_index(c);
+        point[lambda_to] = lambda;
+        scales[lambda_to] = (BALL_FRACTION * sigma(lambda_from).unwrap_or(0.05)).clamp(1e-3, 0.5);
+        if !layout.circular[c] {
+            let (x, y, sxy) = if fitted.held_circular {
+                (0.0, 0.0, None)
+            } else {
+                let s = match (sigma(from + 2), sigma(from + 3)) {
+                    (Some(a), Some(b)) => Some(a.max(b)),
+                    _ => None,
+                };
+                (
+                    solution.parameters[from + 2],
+                    solution.parameters[from + 3],
+                    s,
+                )
+            };
+            let e_fit = libm::hypot(x, y);
+            let (cos_w, sin_w) = if e_fit > 0.0 {
+                (x / e_fit, y / e_fit)
+            } else {
+                (1.0, 0.0)
+            };
+            let mut e = e_fit;
+            if e > e_max || e >= 0.95 * e_max {
+                e = 0.9 * e_max;
+                moved |= e_fit > e_max;
+            }
+            if e < e_min || (e_min > 0.0 && e <= e_min) {
+                e = e_min + 0.1 * (e_max - e_min);
+                moved = true;
+            }
+            let root = libm::sqrt(e);
+            point[to + 2] = root * cos_w;
+            point[to + 3] = root * sin_w;
+            // σ_h ≈ σ_x / (2√e) away from 0 (h = x/√e); floor √σ near 0.
+            let s = sxy.unwrap_or(0.05);
+            let hk_scale = BALL_FRACTION * s / (2.0 * libm::sqrt(e.max(s)));
+            scales[to + 2] = hk_scale.clamp(0.005, 0.1);
+            scales[to + 3] = hk_scale.clamp(0.005, 0.1);
+        }
+        from += fitted_len;
+    }
+    let offsets_to = layout.offsets_start();
+    for j in 0..n_instruments {
+        point[offsets_to + j] = solution.parameters[from + j];
+        scales[offsets_to + j] =
+            (BALL_FRACTION * sigma(from + j).unwrap_or(median_sigma)).max(1e-3 * median_sigma);
+    }
+    from += n_instruments;
+    if let Some(t) = layout.trend_index() {
+        let (value, s) = match &solution.trend {
+            Some(estimate) => (estimate.value, sigma(from)),
+            None => (0.0, None),
+        };
+        point[t] = value;
+        scales[t] = (BALL_FRACTION * s.unwrap_or(1e-3)).max(1e-9);
+    }
+    if settings.jitter {
+        let start = layout.n_params();
+        for j in 0..n_instruments {
+            let fitted = solution
+                .instruments
+                .get(j)
+                .and_then(|i| i.jitter)
+                .unwrap_or(0.0);
+            point[start + j] = fitted.max(0.1 * median_sigma);
+            scales[start + j] = 0.1 * median_sigma;
+        }
+    }
+    check_inside(settings, &point)?;
+    Ok(PosteriorStart {
+        point,
+        scales,
+        eccentricity_moved: moved,
+    })
+}
+
+/// Fails with a readable error when the start lies outside a scalar prior's bounds.
+fn check_inside(settings: &PosteriorSettings, point: &[f64]) -> Result<(), PosteriorError> {
+    let layout = settings.layout(0);
+    for c in 0..layout.n_companions() {
+        let start = layout.companion_start(c);
+        for (name, prior, value) in [
+            ("period [d]", settings.priors.period, point[start]),
+            (
+                "semi-amplitude K [m/s]",
+                settings.priors.semi_amplitude,
+                point[start + 1],
+            ),
+        ] {
+            let (min, max) = prior.bounds();
+            if !(value >= min && value <= max) {
+                return Err(PosteriorError::StartOutsidePrior {
+                    parameter: name,
+                    value,
+                    min,
+                    max,
+                });
+            }
+        }
+    }
+    Ok(())
+}
