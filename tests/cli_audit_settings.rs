@@ -15,22 +15,34 @@ fn written_settings_replay_to_identical_results() {
     let table = format!("{DEMO}/corvin4-eccentric.tsv");
     let settings = dir.path().join("settings.json");
     let first = eccaudit()
-        .args(["audit", &table, "--trials", "6", "--e", "0,0.3", "--seed", "5", "--json", "--quiet"])
+        .args([
+            "audit", &table, "--trials", "6", "--e", "0,0.3", "--seed", "5", "--json", "--quiet",
+        ])
         .args(["--out".as_ref(), dir.path().join("a").as_os_str()])
         .args(["--write-settings".as_ref(), settings.as_os_str()])
         .output()
         .unwrap();
-    assert!(first.status.success(), "{}", String::from_utf8_lossy(&first.stderr));
+    assert!(
+        first.status.success(),
+        "{}",
+        String::from_utf8_lossy(&first.stderr)
+    );
 
     // The replay takes every choice from the file: the flags below would change the
     // result if they were used, and must not be.
     let replay = eccaudit()
-        .args(["audit", &table, "--trials", "50", "--seed", "99", "--json", "--quiet"])
+        .args([
+            "audit", &table, "--trials", "50", "--seed", "99", "--json", "--quiet",
+        ])
         .args(["--out".as_ref(), dir.path().join("b").as_os_str()])
         .args(["--settings".as_ref(), settings.as_os_str()])
         .output()
         .unwrap();
-    assert!(replay.status.success(), "{}", String::from_utf8_lossy(&replay.stderr));
+    assert!(
+        replay.status.success(),
+        "{}",
+        String::from_utf8_lossy(&replay.stderr)
+    );
     assert_eq!(first.stdout, replay.stdout);
     let report: serde_json::Value = serde_json::from_slice(&replay.stdout).unwrap();
     assert_eq!(report["trials_total"], 12);
@@ -41,13 +53,25 @@ fn settings_for_another_table_are_refused_in_one_line() {
     let dir = tempfile::tempdir().unwrap();
     let settings = dir.path().join("settings.json");
     eccaudit()
-        .args(["audit", &format!("{DEMO}/corvin4-eccentric.tsv"), "--trials", "2", "--e", "0", "--quiet"])
+        .args([
+            "audit",
+            &format!("{DEMO}/corvin4-eccentric.tsv"),
+            "--trials",
+            "2",
+            "--e",
+            "0",
+            "--quiet",
+        ])
         .args(["--out".as_ref(), dir.path().join("a").as_os_str()])
         .args(["--write-settings".as_ref(), settings.as_os_str()])
         .assert()
         .success();
     let output = eccaudit()
-        .args(["audit", &format!("{DEMO}/velka17-nearly-circular.csv"), "--quiet"])
+        .args([
+            "audit",
+            &format!("{DEMO}/velka17-nearly-circular.csv"),
+            "--quiet",
+        ])
         .args(["--out".as_ref(), dir.path().join("b").as_os_str()])
         .args(["--settings".as_ref(), settings.as_os_str()])
         .output()
@@ -55,14 +79,21 @@ fn settings_for_another_table_are_refused_in_one_line() {
     assert_eq!(output.status.code(), Some(1));
     let stderr = String::from_utf8(output.stderr).unwrap();
     assert_eq!(stderr.lines().count(), 1, "{stderr}");
-    assert!(stderr.contains("the settings were made for `corvin4-eccentric.tsv`"), "{stderr}");
+    assert!(
+        stderr.contains("the settings were made for `corvin4-eccentric.tsv`"),
+        "{stderr}"
+    );
 }
 
 #[test]
 fn a_typo_in_a_settings_file_is_named() {
     let dir = tempfile::tempdir().unwrap();
     let settings = dir.path().join("settings.json");
-    std::fs::write(&settings, r#"{"format": "eccaudit-audit-settings", "sed": 3}"#).unwrap();
+    std::fs::write(
+        &settings,
+        r#"{"format": "eccaudit-audit-settings", "sed": 3}"#,
+    )
+    .unwrap();
     eccaudit()
         .args(["audit", &format!("{DEMO}/corvin4-eccentric.tsv"), "--quiet"])
         .args(["--out".as_ref(), dir.path().join("a").as_os_str()])
