@@ -15,7 +15,8 @@ use eccaudit_core::audit::{
 };
 use eccaudit_core::table::{parse_table, ReadOptions};
 
-use super::inject::{run_design, write_outputs, RunArgs, TableArgs};
+use super::inject::{run_design, write_outputs, RunArgs};
+use super::input::TableArgs;
 
 /// Arguments of `eccaudit audit`.
 #[derive(Debug, clap::Args)]

@@ -7,6 +7,7 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Mutex;
 
+use super::input::{read_table, TableArgs};
 use anyhow::{bail, Context};
 use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use eccaudit_core::inject::{
@@ -15,9 +16,7 @@ use eccaudit_core::inject::{
     LeastSquaresEstimator, LeastSquaresSettings, Sampling, Schedule, Spacing, TrialPeriod,
     TrialRecord,
 };
-use eccaudit_core::table::{
-    parse_table, Delimiter, ReadOptions, TimeSpec, VelocityTable, VelocityUnit,
-};
+use eccaudit_core::table::VelocityTable;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
     draw_bias_curve, draw_distributions, BiasCurve, BiasFigure, DistributionFigure,
@@ -77,20 +76,6 @@ pub struct RunArgs {
     pub quiet: bool,
 }
 
-/// Options for reading a velocity table.
-#[derive(Debug, Clone, clap::Args)]
-pub struct TableArgs {
-    /// Unit of the velocity and uncertainty columns when the header does not state it.
-    #[arg(long, value_name = "UNIT")]
-    pub velocity_unit: Option<VelocityUnit>,
-    /// Time convention when the header does not state it: BJD, JD, MJD, ...
-    #[arg(long = "time", value_name = "CONVENTION")]
-    pub time: Option<TimeSpec>,
-    /// Field separator (detected when not given).
-    #[arg(long, value_name = "SEPARATOR")]
-    pub delimiter: Option<Delimiter>,
-}
-
 /// Arguments of `eccaudit inject`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
@@ -132,21 +117,6 @@ pub struct Args {
     /// Print the summary as JSON instead of a text table.
     #[arg(long)]
     pub json: bool,
-}
-
-/// Reads a velocity table as the fit command does.
-pub fn read_table(path: &Path, args: &TableArgs) -> anyhow::Result<VelocityTable> {
-    let source_name = path.display().to_string();
-    let bytes = fs::read(path).with_context(|| format!("cannot read `{source_name}`"))?;
-    let text = String::from_utf8(bytes)
-        .with_context(|| format!("cannot read `{source_name}`: the file is not UTF-8 text"))?;
-    let options = ReadOptions {
-        source_name,
-        velocity_unit: args.velocity_unit,
-        time: args.time,
-        delimiter: args.delimiter,
-    };
-    Ok(parse_table(&text, &options)?)
 }
 
 /// The default least-squares fit of a table (period search from 1 d to the baseline).

@@ -6,5 +6,6 @@ pub mod bench_posterior;
 pub mod curve;
 pub mod fit;
 pub mod inject;
+pub mod input;
 pub mod priors;
 pub mod table;

@@ -4,6 +4,7 @@
 use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
 
+use super::input::{read_table, TableArgs};
 use anyhow::{bail, Context};
 use eccaudit_core::fit::{FitData, FitOptions};
 use eccaudit_core::posterior::{
@@ -12,7 +13,6 @@ use eccaudit_core::posterior::{
 };
 use eccaudit_core::priors::ScalarPrior;
 use eccaudit_core::sampler::SamplerSettings;
-use eccaudit_core::table::{parse_table, Delimiter, ReadOptions, TimeSpec, VelocityUnit};
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
     draw_corner, draw_eccentricity_posteriors, draw_traces, CornerFigure, EccentricityFigure,
@@ -62,15 +62,8 @@ pub struct Args {
     /// Sample a linear trend (uniform on ±10 m/s/d).
     #[arg(long)]
     pub trend: bool,
-    /// Unit of the velocity and uncertainty columns when the header does not state it: m/s or km/s.
-    #[arg(long, value_name = "UNIT")]
-    pub velocity_unit: Option<VelocityUnit>,
-    /// Time convention when the header does not state it: BJD, JD, MJD, BJD-2450000, ...
-    #[arg(long = "time", value_name = "CONVENTION")]
-    pub time: Option<TimeSpec>,
-    /// Field separator (detected when not given): comma, semicolon, tab or whitespace.
-    #[arg(long, value_name = "SEPARATOR")]
-    pub delimiter: Option<Delimiter>,
+    #[command(flatten)]
+    pub table: TableArgs,
     /// Print the report as JSON instead of a text table.
     #[arg(long)]
     pub json: bool,
@@ -129,17 +122,7 @@ fn settings(args: &Args) -> anyhow::Result<SensitivitySettings> {
 pub fn run(args: Args) -> anyhow::Result<()> {
     let settings = settings(&args)?;
     let source_name = args.file.display().to_string();
-    let bytes =
-        std::fs::read(&args.file).with_context(|| format!("cannot read `{source_name}`"))?;
-    let text = String::from_utf8(bytes)
-        .with_context(|| format!("cannot read `{source_name}`: the file is not UTF-8 text"))?;
-    let read_options = ReadOptions {
-        source_name: source_name.clone(),
-        velocity_unit: args.velocity_unit,
-        time: args.time,
-        delimiter: args.delimiter,
-    };
-    let table = parse_table(&text, &read_options)?;
+    let table = read_table(&args.file, &args.table)?;
     let data = FitData::from_table(&table);
     let report = prior_sensitivity(&data, &settings, &mut |_| ControlFlow::Continue(()))
         .with_context(|| format!("posterior of `{source_name}`"))?;
