@@ -3,4 +3,5 @@
 pub mod bench;
 pub mod curve;
 pub mod fit;
+pub mod fit_plots;
 pub mod table;

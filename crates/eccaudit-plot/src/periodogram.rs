@@ -5,7 +5,6 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use crate::legend::{draw_legend, LegendMark};
 use crate::{DrawResult, INK, MUTED};
 
 /// Colour of the false-alarm levels.
@@ -142,25 +141,32 @@ pub fn draw_periodogram<DB: DrawingBackend>(
         ))?;
         chart.draw_series(std::iter::once(Text::new(
             level.label.clone(),
-            (p_lo, level.power),
+            (p_hi, level.power),
             label_style
                 .clone()
                 .color(&LEVEL_COLOUR)
-                .pos(Pos::new(HPos::Left, VPos::Bottom)),
+                .pos(Pos::new(HPos::Right, VPos::Bottom)),
         )))?;
     }
 
     if let Some(peak) = &figure.best_peak {
         if peak.period.is_finite() && peak.period > 0.0 && peak.power.is_finite() {
+            // Label on the side with more room: left of the mark in the right third.
+            let at = (peak.period.ln() - p_lo.ln()) / (p_hi.ln() - p_lo.ln());
+            let (dx, h_pos) = if at > 0.66 {
+                (-9, HPos::Right)
+            } else {
+                (9, HPos::Left)
+            };
             let mark = EmptyElement::at((peak.period, peak.power))
                 + Circle::new((0, 0), 5, PEAK_COLOUR.stroke_width(2))
                 + Text::new(
                     peak.label.clone(),
-                    (8, -4),
+                    (dx, 0),
                     label_style
                         .clone()
                         .color(&PEAK_COLOUR)
-                        .pos(Pos::new(HPos::Left, VPos::Bottom)),
+                        .pos(Pos::new(h_pos, VPos::Center)),
                 );
             chart.draw_series(std::iter::once(mark))?;
         }
@@ -195,16 +201,6 @@ pub fn draw_periodogram<DB: DrawingBackend>(
         ))?;
     }
 
-    if !figure.levels.is_empty() {
-        draw_legend(
-            &main,
-            &[(
-                "dashed: false-alarm levels".to_string(),
-                LegendMark::Line(LEVEL_COLOUR),
-            )],
-            (24, 16),
-        )?;
-    }
     area.present()?;
     Ok(())
 }
