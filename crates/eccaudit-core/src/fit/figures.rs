@@ -11,6 +11,7 @@ use thiserror::Error;
 use super::problem::{decode_companion, EccentricityCoordinates, FitData, ParameterLayout};
 use super::report::Solution;
 use super::FitOptions;
+use crate::kepler::reduce_angle_signed;
 use crate::model::RvModel;
 use crate::orbit::OrbitalElements;
 use crate::periodogram::{
@@ -124,7 +125,8 @@ fn layout_of(solution: &Solution) -> Result<ParameterLayout, FigureError> {
 }
 
 /// Each companion's elements from a solution's parameter vector (e cos ω, e sin ω coordinates,
-/// mean longitude λ at `reference_time`), with T_p = t_ref − (λ − ω) P / 2π.
+/// mean longitude λ at `reference_time`), with T_p = t_ref − M₀ P / 2π and M₀ = λ − ω reduced to
+/// (−π, π]: the time of periastron nearest t_ref, as in the report.
 pub fn solution_elements(
     solution: &Solution,
     reference_time: f64,
@@ -140,7 +142,7 @@ pub fn solution_elements(
                 comp.semi_amplitude.abs(),
                 comp.eccentricity,
                 omega,
-                comp.mean_longitude - omega,
+                reduce_angle_signed(comp.mean_longitude - omega),
                 reference_time,
             )
             .map_err(|err| FigureError::Elements {
@@ -393,6 +395,12 @@ mod tests {
         assert_eq!(fold.phases.len(), data.n_points());
         assert!(fold.phases.iter().all(|p| (0.0..1.0).contains(p)));
         assert_eq!(fold.zero, PhaseZero::Periastron);
+        // Phase 0 is the report's own T_p (the periastron nearest t_ref), to rounding.
+        assert_relative_eq!(
+            fold.zero_epoch,
+            solution.companions[0].time_of_periastron.value,
+            max_relative = 1e-12
+        );
         // With one companion and one instrument, folded velocity = model + residual.
         let own = solution_elements(solution, report.reference_time).unwrap()[0];
         for i in 0..data.n_points() {
