@@ -9,7 +9,7 @@ use eccaudit_plot::{
     draw_periodogram, draw_phase_fold, MarkedPeak, PeriodogramFigure, PhaseFoldFigure, PhaseSeries,
     PowerLevel,
 };
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
@@ -24,7 +24,11 @@ const CURVE_POINTS: usize = 600;
 
 /// Settings of a fit from the page; absent fields take their defaults and an unknown field is an
 /// error (so a misspelt setting is not silently ignored).
-#[derive(Debug, Clone, Deserialize)]
+///
+/// serde-wasm-bindgen (0.6) reads only the fields a struct names, so `deny_unknown_fields` never
+/// fires for a JavaScript object; [`FitSettings::from_js`] checks the keys against
+/// [`FitSettings::FIELDS`] first.
+#[derive(Debug, Clone, Deserialize, Serialize)]
 #[serde(default, deny_unknown_fields, rename_all = "camelCase")]
 pub struct FitSettings {
     /// Keplerian companions (≥ 1).
@@ -56,6 +60,36 @@ impl Default for FitSettings {
 }
 
 impl FitSettings {
+    /// The JavaScript names of the settings.
+    pub const FIELDS: [&'static str; 6] = [
+        "companions",
+        "minPeriod",
+        "maxPeriod",
+        "jitter",
+        "trend",
+        "seed",
+    ];
+
+    /// Settings from a JavaScript object (`undefined`/`null` for the defaults); an unknown key
+    /// is an error naming it and the known ones.
+    fn from_js(value: JsValue) -> Result<Self, String> {
+        if value.is_null() || value.is_undefined() {
+            return Ok(Self::default());
+        }
+        if let Some(object) = value.dyn_ref::<js_sys::Object>() {
+            for key in js_sys::Object::keys(object).iter() {
+                let key = key.as_string().unwrap_or_default();
+                if !Self::FIELDS.contains(&key.as_str()) {
+                    return Err(format!(
+                        "unknown field `{key}`, expected one of {}",
+                        Self::FIELDS.map(|f| format!("`{f}`")).join(", ")
+                    ));
+                }
+            }
+        }
+        serde_wasm_bindgen::from_value(value).map_err(|err| err.to_string())
+    }
+
     /// The core options, with the period range filled in the way `eccaudit fit` fills it.
     fn options(&self, data: &FitData) -> Result<FitOptions, String> {
         if self.companions == 0 {
@@ -102,12 +136,8 @@ impl Dataset {
     /// `undefined` for the defaults); returns the core's `FitReport` as a plain object and keeps
     /// it for the figures. On error the previous fit is kept.
     pub fn fit(&mut self, settings: JsValue) -> Result<JsValue, JsValue> {
-        let settings: FitSettings = if settings.is_null() || settings.is_undefined() {
-            FitSettings::default()
-        } else {
-            serde_wasm_bindgen::from_value(settings)
-                .map_err(|err| js_error(format!("fit settings: {err}")))?
-        };
+        let settings = FitSettings::from_js(settings)
+            .map_err(|err| js_error(format!("fit settings: {err}")))?;
         let data = FitData::from_table(self.table());
         let options = settings.options(&data).map_err(js_error)?;
         let report = fit_orbit(&data, &options).map_err(js_error)?;
@@ -233,5 +263,64 @@ fn phase_figure(fold: &PhaseFold, data: &FitData, time_label: &str) -> PhaseFold
         ),
         velocity_label: "velocity − γ − other terms [m/s]".to_string(),
         title: String::new(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn field_list_matches_the_struct() {
+        // The key check of `from_js` must know every field serde knows, by the same names.
+        let value = serde_json::to_value(FitSettings::default()).unwrap();
+        let mut keys: Vec<&str> = value
+            .as_object()
+            .unwrap()
+            .keys()
+            .map(String::as_str)
+            .collect();
+        let mut fields = FitSettings::FIELDS.to_vec();
+        keys.sort_unstable();
+        fields.sort_unstable();
+        assert_eq!(keys, fields);
+    }
+
+    #[test]
+    fn options_follow_the_command_line_rules() {
+        let data = FitData::new(
+            &[0.0, 10.0, 250.0],
+            &[1.0, 2.0, 3.0],
+            &[1.0, 1.0, 1.0],
+            &[0, 0, 0],
+            &["a".into()],
+        );
+        let only_max = FitSettings {
+            max_period: Some(100.0),
+            ..FitSettings::default()
+        };
+        assert_eq!(
+            only_max.options(&data).unwrap().limits,
+            FrequencyLimits::PeriodRange {
+                min_period: 1.0,
+                max_period: 100.0
+            }
+        );
+        let only_min = FitSettings {
+            min_period: Some(5.0),
+            ..FitSettings::default()
+        };
+        assert_eq!(
+            only_min.options(&data).unwrap().limits,
+            FrequencyLimits::PeriodRange {
+                min_period: 5.0,
+                max_period: 250.0
+            }
+        );
+        let none = FitSettings {
+            companions: 0,
+            ..FitSettings::default()
+        };
+        assert!(none.options(&data).unwrap_err().contains("at least 1"));
     }
 }
