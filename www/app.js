@@ -6,6 +6,7 @@ const $ = (id) => document.getElementById(id);
 const state = {
   dataset: null,      // the loaded table (a wasm handle); kept when a new load fails
   model: null,        // elements of the overlaid curve, or null
+  fit: null,          // the last fit report of this table (plain object), or null
 };
 
 // Build DOM nodes from text only: user strings never become HTML.
@@ -58,6 +59,7 @@ function tryLoadTable(text, sourceName) {
   if (state.dataset) state.dataset.free();
   state.dataset = dataset;
   state.model = null;
+  clearFit();
   renderSummary(dataset.summary());
   redraw();
   return true;
@@ -185,6 +187,179 @@ function wireModelForm() {
   });
 }
 
+// ---- Orbit fit (least squares) ----
+
+// Counts finished fit attempts (good or bad), so tests can wait for one.
+let fitAttempts = 0;
+
+function readFitSettings(form) {
+  const data = new FormData(form);
+  const period = (name, label) => {
+    const raw = String(data.get(name) ?? "").trim();
+    if (raw === "") return undefined;
+    const value = Number(raw);
+    if (!Number.isFinite(value)) throw new Error(`${label}: '${raw}' is not a number`);
+    return value;
+  };
+  const settings = {
+    companions: Number(data.get("companions")),
+    jitter: data.get("jitter") === "on",
+    trend: data.get("trend") === "on",
+  };
+  const minPeriod = period("minPeriod", "min period");
+  const maxPeriod = period("maxPeriod", "max period");
+  if (minPeriod !== undefined) settings.minPeriod = minPeriod;
+  if (maxPeriod !== undefined) settings.maxPeriod = maxPeriod;
+  return settings;
+}
+
+function clearFit() {
+  state.fit = null;
+  hideError($("fit-error"));
+  $("fit-results").hidden = true;
+  for (const id of ["fit-status", "fit-solution-note", "lucy-sweeney"]) $(id).textContent = "";
+  $("fit-warnings").replaceChildren();
+  $("fit-elements").replaceChildren();
+  $("fold-companion").replaceChildren();
+  for (const id of ["periodogram-canvas", "phase-canvas"]) {
+    const canvas = $(id);
+    canvas.getContext("2d").clearRect(0, 0, canvas.width, canvas.height);
+  }
+}
+
+// A value with its formal error, the error to two significant digits and the value to match.
+function withError(estimate, fallbackDigits) {
+  if (!estimate || estimate.value === null || estimate.value === undefined) return "–";
+  const { value, error } = estimate;
+  if (error === null || error === undefined || !Number.isFinite(error) || error <= 0) {
+    return fmt(value, fallbackDigits);
+  }
+  const digits = Math.min(8, Math.max(0, 1 - Math.floor(Math.log10(error))));
+  return `${value.toFixed(digits)} ± ${error.toFixed(digits)}`;
+}
+
+function adoptedSolution(report) {
+  return report.adopted === "circular" && report.circular ? report.circular : report.eccentric;
+}
+
+function renderFitStatus(report) {
+  const solution = adoptedSolution(report);
+  const status = $("fit-status");
+  status.classList.toggle("not-converged", !solution.converged);
+  status.textContent =
+    `${solution.converged ? "Converged" : "Not converged: the best point found is shown"}. ` +
+    `${report.n_reached_best} of ${report.n_starts_last_stage} starts reached the best χ² ` +
+    `(${report.n_starts} starts in all). Adopted: ${report.adopted} solution.`;
+  $("fit-warnings").replaceChildren(...report.warnings.map((w) => el("li", {}, w)));
+}
+
+function renderElements(report) {
+  const solution = adoptedSolution(report);
+  const comps = solution.companions;
+  const names = comps.map((_, c) => `companion ${c + 1}`);
+  const row = (label, cells) => el("tr", {}, el("td", {}, label), ...cells.map((c) => el("td", {}, c)));
+  const spanRow = (label, text) =>
+    el("tr", {}, el("td", {}, label), el("td", { colspan: String(comps.length) }, text));
+  const ecc = (c) => (c.held_circular ? "0 (held circular)" : withError(c.eccentricity, 3));
+  const omega = (c) => (c.held_circular ? "–" : withError(c.omega_deg, 1));
+  const rows = [
+    row("P [d]", comps.map((c) => withError(c.period, 4))),
+    row("K [m/s]", comps.map((c) => withError(c.semi_amplitude, 2))),
+    row("e", comps.map(ecc)),
+    row("ω [°]", comps.map(omega)),
+    row("Tp [d]", comps.map((c) => withError(c.time_of_periastron, 2))),
+  ];
+  rows.push(el("tr", { class: "group" }, el("td", { colspan: String(comps.length + 1) }, "instruments")));
+  for (const inst of solution.instruments) {
+    rows.push(spanRow(`γ ${inst.name} [m/s]`, withError(inst.offset, 2)));
+    if (inst.jitter !== null && inst.jitter !== undefined) {
+      rows.push(spanRow(`jitter ${inst.name} [m/s]`, fmt(inst.jitter, 2)));
+    }
+  }
+  if (solution.trend) rows.push(spanRow("trend [m/s/d]", withError(solution.trend, 4)));
+  rows.push(el("tr", { class: "group" }, el("td", { colspan: String(comps.length + 1) }, "goodness of fit")));
+  rows.push(spanRow("χ²", `${fmt(solution.chi_squared, 2)} (${solution.dof} degrees of freedom)`));
+  rows.push(spanRow("reduced χ²", fmt(solution.reduced_chi_squared, 3)));
+  rows.push(spanRow("rms [m/s]", fmt(solution.rms, 2)));
+  const head = el("tr", {}, el("th", {}, ""), ...names.map((n) => el("th", {}, n)));
+  $("fit-elements").replaceChildren(el("thead", {}, head), el("tbody", {}, ...rows));
+  $("fit-solution-note").textContent =
+    `${report.adopted === "circular" ? "Circular refit" : "Eccentric solution (minimum χ²)"}; ` +
+    `± are formal 1σ errors from the covariance. Reference epoch ${fmt(report.reference_time, 3)}.`;
+
+  const tests = report.eccentric.companions
+    .map((c, idx) => ({ c, idx }))
+    .filter(({ c }) => c.lucy_sweeney)
+    .map(({ c, idx }) => {
+      const ls = c.lucy_sweeney;
+      const decision = ls.significant
+        ? "eccentricity significant"
+        : "not significant: kept circular";
+      return `companion ${idx + 1}: ê = ${fmt(ls.eccentricity, 3)}, σe = ${fmt(ls.eccentricity_error, 3)}, ` +
+        `p = ${Number(ls.probability).toExponential(2)} (threshold ${ls.threshold}) → ${decision}`;
+    });
+  $("lucy-sweeney").textContent =
+    `Lucy–Sweeney test: ${tests.length > 0 ? tests.join("; ") : "not computed"}. ` +
+    `Adopted: ${report.adopted} solution.`;
+}
+
+function drawFitFigures() {
+  if (!state.dataset || !state.fit) return;
+  state.dataset.drawPeriodogram($("periodogram-canvas"));
+  const idx = Number($("fold-companion").value || "0");
+  state.dataset.drawPhaseFold($("phase-canvas"), idx);
+}
+
+function renderFit(report) {
+  const n = adoptedSolution(report).companions.length;
+  const select = $("fold-companion");
+  select.replaceChildren(...Array.from({ length: n }, (_, c) =>
+    el("option", { value: String(c) }, `${c + 1}: P = ${fmt(adoptedSolution(report).companions[c].period.value, 2)} d`)));
+  $("companion-choice").hidden = n < 2;
+  renderFitStatus(report);
+  renderElements(report);
+  $("fit-results").hidden = false;
+  drawFitFigures();
+}
+
+async function runFit(form) {
+  const button = $("fit-button");
+  try {
+    if (!state.dataset) throw new Error("load a velocity table first");
+    const settings = readFitSettings(form);
+    button.disabled = true;
+    button.textContent = "Fitting…";
+    // Let the page show the busy button before the (synchronous) fit starts.
+    await new Promise((resolve) => setTimeout(resolve, 0));
+    const report = state.dataset.fit(settings);
+    state.fit = report;
+    hideError($("fit-error"));
+    renderFit(report);
+  } catch (err) {
+    const kept = state.fit ? " The previous fit is still shown." : "";
+    showError($("fit-error"), `${messageOf(err)}${kept}`);
+  } finally {
+    button.disabled = false;
+    button.textContent = "Fit";
+    document.body.dataset.fitAttempts = String(++fitAttempts);
+  }
+}
+
+function wireFit() {
+  const form = $("fit-settings");
+  form.addEventListener("submit", (ev) => {
+    ev.preventDefault();
+    runFit(form);
+  });
+  $("fold-companion").addEventListener("change", () => {
+    try {
+      state.dataset.drawPhaseFold($("phase-canvas"), Number($("fold-companion").value));
+    } catch (err) {
+      showError($("fit-error"), messageOf(err));
+    }
+  });
+}
+
 async function main() {
   // A panic inside the wasm module reports here instead of vanishing in the console.
   globalThis.eccauditReportPanic = (message) => showError($("load-error"), `internal error: ${message}`);
@@ -192,6 +367,7 @@ async function main() {
   $("build-info").textContent = `eccaudit ${version()}`;
   const { demos, select } = wireLoader();
   wireModelForm();
+  wireFit();
   if (demos.length > 0) {
     select.value = "0";
     loadTable(demos[0].text, demos[0].file_name);

@@ -57,6 +57,10 @@ pub struct Args {
     /// Print the report as JSON instead of a text table.
     #[arg(long)]
     pub json: bool,
+    /// Also write the figures as SVG into this folder: periodogram.svg and one
+    /// phase-c1.svg, phase-c2.svg, ... per companion.
+    #[arg(long, value_name = "DIR")]
+    pub plots: Option<PathBuf>,
 }
 
 /// Build the fit options from the arguments (checks what clap cannot).
@@ -130,6 +134,12 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     }
     for warning in &report.warnings {
         eprintln!("eccaudit: warning: {warning}");
+    }
+    if let Some(dir) = &args.plots {
+        let label = table.time_convention().label();
+        for path in super::fit_plots::write_plots(dir, &data, &options, &report, &label)? {
+            eprintln!("eccaudit: wrote {}", path.display());
+        }
     }
     Ok(())
 }

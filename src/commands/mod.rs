@@ -5,6 +5,7 @@ pub mod bench;
 pub mod bench_posterior;
 pub mod curve;
 pub mod fit;
+pub mod fit_plots;
 pub mod inject;
 pub mod input;
 pub mod priors;

@@ -36,3 +36,24 @@ for (const file of ["velka17-nearly-circular.csv", "corvin4-eccentric.tsv"]) {
     assert.deepEqual(wasm, native);
   });
 }
+
+// The least-squares fit: the wasm report equals `eccaudit fit --json` for the same file and
+// settings, number for number (JSON on both sides: NaN and infinities become null).
+const FIT_CASES = [
+  { file: "corvin4-eccentric.tsv", settings: {}, args: [] },
+  {
+    file: "velka17-nearly-circular.csv",
+    settings: { jitter: true, trend: true, minPeriod: 2, maxPeriod: 300, seed: 7 },
+    args: ["--jitter", "--trend", "--min-period", "2", "--max-period", "300", "--seed", "7"],
+  },
+];
+for (const { file, settings, args } of FIT_CASES) {
+  test(`least-squares fit of ${file} ${JSON.stringify(settings)}: same report in wasm and native`, () => {
+    const rel = path.join("demo-data", file);
+    const native = JSON.parse(cli("fit", "--json", rel, ...args));
+    const dataset = Dataset.parse(readFileSync(path.join(ROOT, rel), "utf8"), rel, "", "");
+    const wasm = JSON.parse(JSON.stringify(dataset.fit(settings)));
+    dataset.free();
+    assert.deepEqual(wasm, native);
+  });
+}

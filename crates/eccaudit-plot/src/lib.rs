@@ -9,6 +9,8 @@ mod bias;
 mod corner;
 mod legend;
 mod palette;
+mod periodogram;
+mod phase;
 mod posterior;
 mod traces;
 mod velocity;
@@ -20,6 +22,8 @@ pub use bias::{
 pub use corner::{draw_corner, CornerFigure};
 pub use legend::{draw_legend, LegendMark};
 pub use palette::{instrument_colour, INK, MUTED};
+pub use periodogram::{draw_periodogram, MarkedPeak, PeriodogramFigure, PowerLevel};
+pub use phase::{draw_phase_fold, PhaseFoldFigure, PhaseSeries};
 /// plotters itself, so adapters can build drawing areas on their own backend.
 pub use plotters;
 pub use posterior::{draw_eccentricity_posteriors, EccentricityFigure, EccentricityPanel};
@@ -59,6 +63,21 @@ pub fn padded_range(values: impl IntoIterator<Item = f64>, pad: f64) -> (f64, f6
     }
     let width = if hi > lo { hi - lo } else { 1.0 };
     (lo - pad * width, hi + pad * width)
+}
+
+/// The text of every `<text>` element of an SVG written by plotters (one line inside each).
+#[cfg(test)]
+pub(crate) fn svg_texts(svg: &str) -> Vec<String> {
+    let mut lines = svg.lines();
+    let mut texts = Vec::new();
+    while let Some(line) = lines.next() {
+        if line.starts_with("<text") {
+            if let Some(content) = lines.next() {
+                texts.push(content.trim().to_string());
+            }
+        }
+    }
+    texts
 }
 
 #[cfg(test)]

@@ -39,6 +39,8 @@ pub struct CurveElements {
 #[wasm_bindgen]
 pub struct Dataset {
     table: VelocityTable,
+    /// The last successful least-squares fit of this table (see `fit.rs`).
+    fit: Option<crate::fit::StoredFit>,
 }
 
 /// An empty string means "not chosen"; anything else must parse.
@@ -71,7 +73,7 @@ impl Dataset {
             delimiter: None,
         };
         let table = parse_table(text, &options).map_err(js_error)?;
-        Ok(Dataset { table })
+        Ok(Dataset { table, fit: None })
     }
 
     /// The table summary (`TableSummary` of the core, as a plain object).
@@ -126,7 +128,19 @@ impl Dataset {
         series
     }
 
-    fn time_label(&self) -> String {
+    pub(crate) fn table(&self) -> &VelocityTable {
+        &self.table
+    }
+
+    pub(crate) fn stored_fit(&self) -> Option<&crate::fit::StoredFit> {
+        self.fit.as_ref()
+    }
+
+    pub(crate) fn set_fit(&mut self, fit: Option<crate::fit::StoredFit>) {
+        self.fit = fit;
+    }
+
+    pub(crate) fn time_label(&self) -> String {
         self.table.time_convention().label()
     }
 

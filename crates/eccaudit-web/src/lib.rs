@@ -10,10 +10,12 @@ mod bench;
 mod canvas;
 mod dataset;
 mod demo;
+mod fit;
 
 pub use bench::KeplerBench;
 pub use dataset::{CurveElements, Dataset};
 pub use demo::demo_tables;
+pub use fit::FitSettings;
 
 use serde::Serialize;
 use wasm_bindgen::prelude::*;

@@ -87,3 +87,54 @@ fn demo_tables_are_listed_with_their_text() {
     let text = js_sys::Reflect::get(&first, &JsValue::from_str("text")).unwrap();
     assert_eq!(text.as_string().as_deref(), Some(VELKA));
 }
+
+const CORVIN: &str = include_str!("../../../demo-data/corvin4-eccentric.tsv");
+
+fn error_message(err: JsValue) -> String {
+    String::from(err.dyn_into::<js_sys::Error>().unwrap().message())
+}
+
+#[wasm_bindgen_test]
+fn fit_returns_the_report_and_its_figures_paint() {
+    let mut dataset = Dataset::parse(CORVIN, "corvin4.tsv", "", "").unwrap();
+    assert!(!dataset.has_fit());
+    let err = dataset.draw_periodogram(canvas()).err().unwrap();
+    assert!(error_message(err).contains("no fit yet"));
+
+    let settings = js_sys::JSON::parse(r#"{"companions": 1, "jitter": false}"#).unwrap();
+    let report = dataset.fit(settings).unwrap();
+    assert!(dataset.has_fit());
+    // The demo header's truth is P = 112.6 d, e = 0.47; the fit lands near it (cli_fit.rs).
+    let period = js_sys::Reflect::get(&report, &"eccentric".into())
+        .and_then(|s| js_sys::Reflect::get(&s, &"companions".into()))
+        .and_then(|c| js_sys::Reflect::get(&c, &0.into()))
+        .and_then(|c| js_sys::Reflect::get(&c, &"period".into()))
+        .and_then(|p| js_sys::Reflect::get(&p, &"value".into()))
+        .unwrap()
+        .as_f64()
+        .unwrap();
+    assert!((period - 112.6).abs() < 1.5, "P = {period}");
+
+    let periodogram = canvas();
+    dataset.draw_periodogram(periodogram.clone()).unwrap();
+    assert!(painted_pixels(&periodogram) > 5_000);
+    let fold = canvas();
+    dataset.draw_phase_fold(fold.clone(), 0).unwrap();
+    assert!(painted_pixels(&fold) > 5_000);
+    let err = dataset.draw_phase_fold(canvas(), 1).err().unwrap();
+    assert!(error_message(err).contains("companion 2 does not exist"));
+}
+
+#[wasm_bindgen_test]
+fn fit_settings_typos_and_failures_are_errors_that_keep_the_last_fit() {
+    let mut dataset = Dataset::parse(CORVIN, "corvin4.tsv", "", "").unwrap();
+    dataset.fit(JsValue::UNDEFINED).unwrap();
+    let typo = js_sys::JSON::parse(r#"{"companion": 2}"#).unwrap();
+    let message = error_message(dataset.fit(typo).err().unwrap());
+    assert!(message.contains("unknown field `companion`"), "{message}");
+    let range = js_sys::JSON::parse(r#"{"minPeriod": 50, "maxPeriod": 10}"#).unwrap();
+    let message = error_message(dataset.fit(range).err().unwrap());
+    assert!(message.contains("period range [50, 10] d"), "{message}");
+    assert!(dataset.has_fit(), "a failed fit keeps the previous one");
+    dataset.draw_phase_fold(canvas(), 0).unwrap();
+}

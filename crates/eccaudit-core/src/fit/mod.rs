@@ -6,6 +6,7 @@
 //! jitter → covariance → Lucy–Sweeney → circular refit); [`report`] holds what is returned;
 //! [`lucy_sweeney`] and [`jitter`] are the two statistical pieces.
 
+pub mod figures;
 pub mod jitter;
 pub mod lucy_sweeney;
 pub mod multistart;
