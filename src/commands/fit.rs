@@ -2,10 +2,10 @@
 
 use std::path::PathBuf;
 
+use super::input::{read_table, TableArgs};
 use anyhow::{bail, Context};
 use eccaudit_core::fit::{fit_orbit, FitData, FitOptions};
 use eccaudit_core::periodogram::FrequencyLimits;
-use eccaudit_core::table::{parse_table, Delimiter, ReadOptions, TimeSpec, VelocityUnit};
 
 /// Arguments of `eccaudit fit`.
 #[derive(Debug, clap::Args)]
@@ -45,15 +45,8 @@ pub struct Args {
     /// Stellar mass [solar masses]; adds m sin i and the semi-major axis to the report.
     #[arg(long)]
     pub stellar_mass: Option<f64>,
-    /// Unit of the velocity and uncertainty columns when the header does not state it: m/s or km/s.
-    #[arg(long, value_name = "UNIT")]
-    pub velocity_unit: Option<VelocityUnit>,
-    /// Time convention when the header does not state it: BJD, JD, MJD, BJD-2450000, ...
-    #[arg(long = "time", value_name = "CONVENTION")]
-    pub time: Option<TimeSpec>,
-    /// Field separator (detected when not given): comma, semicolon, tab or whitespace.
-    #[arg(long, value_name = "SEPARATOR")]
-    pub delimiter: Option<Delimiter>,
+    #[command(flatten)]
+    pub table: TableArgs,
     /// Print the report as JSON instead of a text table.
     #[arg(long)]
     pub json: bool,
@@ -106,17 +99,7 @@ fn options(args: &Args, baseline: f64) -> anyhow::Result<FitOptions> {
 /// Read the table, fit, print.
 pub fn run(args: Args) -> anyhow::Result<()> {
     let source_name = args.file.display().to_string();
-    let bytes =
-        std::fs::read(&args.file).with_context(|| format!("cannot read `{source_name}`"))?;
-    let text = String::from_utf8(bytes)
-        .with_context(|| format!("cannot read `{source_name}`: the file is not UTF-8 text"))?;
-    let read_options = ReadOptions {
-        source_name: source_name.clone(),
-        velocity_unit: args.velocity_unit,
-        time: args.time,
-        delimiter: args.delimiter,
-    };
-    let table = parse_table(&text, &read_options)?;
+    let table = read_table(&args.file, &args.table)?;
     let data = FitData::from_table(&table);
     let baseline = data
         .times()
