@@ -25,6 +25,8 @@
 //! groups them with defaults.
 
 use rand::{Rng, RngExt};
+use std::fmt;
+
 use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
@@ -530,6 +532,19 @@ pub enum ScalarPrior {
         /// Upper bound, > 0.
         max: f64,
     },
+}
+
+impl fmt::Display for ScalarPrior {
+    /// Plain words with the bounds, e.g. `modified Jeffreys (knee 1) on [0, 1000]`.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            ScalarPrior::Uniform { min, max } => write!(f, "uniform on [{min}, {max}]"),
+            ScalarPrior::LogUniform { min, max } => write!(f, "log-uniform on [{min}, {max}]"),
+            ScalarPrior::ModifiedJeffreys { knee, max } => {
+                write!(f, "modified Jeffreys (knee {knee}) on [0, {max}]")
+            }
+        }
+    }
 }
 
 impl ScalarPrior {

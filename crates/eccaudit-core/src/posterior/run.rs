@@ -322,7 +322,7 @@ impl fmt::Display for SensitivityReport {
         let p = &self.settings.priors;
         writeln!(
             f,
-            "Other priors: P {:?}; K {:?} m/s; jitter {} {:?} m/s; offset {:?} m/s{}",
+            "Other priors: P {} d; K {} m/s; jitter {} {} m/s; offset {} m/s{}",
             p.period,
             p.semi_amplitude,
             if self.settings.jitter {
