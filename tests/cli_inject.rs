@@ -175,7 +175,23 @@ fn audit_writes_the_statement() {
     let statement: serde_json::Value =
         serde_json::from_str(&read(&out.join("statement.json"))).unwrap();
     assert_eq!(statement["circular_excluded"], false);
-    assert_eq!(statement["calibrations"].as_array().unwrap().len(), 2);
+    // Least squares, Lucy–Sweeney, and the default posterior (uniform prior) three ways.
+    let names: Vec<&str> = statement["calibrations"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["name"].as_str().unwrap())
+        .collect();
+    assert_eq!(
+        names,
+        [
+            "lsq",
+            "lucy_sweeney",
+            "posterior_uniform_median",
+            "posterior_uniform_mean",
+            "posterior_uniform_mode"
+        ]
+    );
     assert!(out.join("bias.svg").exists() && out.join("trials.csv").exists());
 }
 

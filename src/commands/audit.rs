@@ -15,7 +15,7 @@ use eccaudit_core::audit::{
 };
 use eccaudit_core::table::{parse_table, ReadOptions};
 
-use super::inject::{run_design, write_outputs, RunArgs};
+use super::inject::{posterior_settings, run_design, write_outputs, RunArgs};
 use super::input::TableArgs;
 
 /// Arguments of `eccaudit audit`.
@@ -62,6 +62,7 @@ fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
             start_eccentricities: run.start_e.clone(),
             n_omega_starts: run.omega_starts,
             lucy_sweeney: !run.no_lucy_sweeney,
+            posterior: posterior_settings(run),
         },
         seed: run.seed,
         ..AuditSettings::default()

@@ -9,6 +9,7 @@ use std::sync::Mutex;
 
 use super::input::{read_table, TableArgs};
 use anyhow::{bail, Context};
+use eccaudit_core::audit::PosteriorInjectionSettings;
 use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use eccaudit_core::inject::{
     csv_header, default_eccentricity_grid, record_from_csv_row, record_to_csv_row, run_trial,
@@ -71,6 +72,23 @@ pub struct RunArgs {
     /// Leave out the Lucy-Sweeney output.
     #[arg(long)]
     pub no_lucy_sweeney: bool,
+    /// Posterior estimators: one eccentricity prior spec per flag (`uniform`, `kipping2013`,
+    /// `beta(0.867,3.03):0..0.8`, `rayleigh(0.3)`, …); each gives the posterior median, mean and
+    /// mode of e from a short sampler run per trial. Default: `uniform` (on [0, 0.99]).
+    #[arg(long = "posterior", value_name = "PRIOR")]
+    pub posterior_priors: Vec<String>,
+    /// Least squares only: no posterior estimators (much faster).
+    #[arg(long, conflicts_with = "posterior_priors")]
+    pub no_posterior: bool,
+    /// Walkers of each posterior run.
+    #[arg(long, default_value_t = 24)]
+    pub posterior_walkers: usize,
+    /// Steps of each posterior run, after burn-in.
+    #[arg(long, default_value_t = 600)]
+    pub posterior_steps: usize,
+    /// Burn-in steps of each posterior run.
+    #[arg(long, default_value_t = 300)]
+    pub posterior_burn: usize,
     /// Hide the progress bar (it is hidden anyway when standard error is not a terminal).
     #[arg(long)]
     pub quiet: bool,
@@ -141,6 +159,22 @@ pub fn estimator(run: &RunArgs) -> LeastSquaresEstimator {
             lucy_sweeney: !run.no_lucy_sweeney,
             ..LeastSquaresSettings::default()
         },
+    }
+}
+
+/// The posterior estimators of the run arguments (the same settings type the audit replay uses).
+pub fn posterior_settings(run: &RunArgs) -> PosteriorInjectionSettings {
+    PosteriorInjectionSettings {
+        priors: if run.no_posterior {
+            Vec::new()
+        } else if run.posterior_priors.is_empty() {
+            PosteriorInjectionSettings::default().priors
+        } else {
+            run.posterior_priors.clone()
+        },
+        n_walkers: run.posterior_walkers,
+        n_steps: run.posterior_steps,
+        n_burn: run.posterior_burn,
     }
 }
 
@@ -473,7 +507,10 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     design.validate()?;
     let lsq = estimator(&args.run);
-    let estimators: [&dyn Estimator; 1] = [&lsq];
+    let posteriors = posterior_settings(&args.run).estimators(args.run.seed)?;
+    let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
+        .chain(posteriors.iter().map(|p| p as &dyn Estimator))
+        .collect();
     let (records, complete) = run_design(&design, &estimators, &args.run)?;
     let summary = summarise(&design, &estimators, &records);
     write_outputs(&summary, &args.run.out, None)?;

@@ -21,9 +21,12 @@ use crate::fit::{fit_orbit, FitData, FitError, FitOptions, FitReport};
 use crate::inject::{
     default_eccentricity_grid, eccentricity_statement, run_trials, summarise, EccentricityEstimate,
     EccentricityStatement, Estimator, FittedOrbit, InjectError, InjectionDesign, InjectionSummary,
-    LeastSquaresEstimator, LeastSquaresSettings, Sampling, TrialPeriod, TrialRecord,
+    LeastSquaresEstimator, LeastSquaresSettings, PosteriorEstimator, Sampling, TrialPeriod,
+    TrialRecord,
 };
 use crate::periodogram::FrequencyLimits;
+use crate::posterior::{fast_sampler_settings, parse_prior_spec};
+use crate::sampler::SamplerSettings;
 use crate::table::{TimeSpec, VelocityTable, VelocityUnit};
 
 /// The `format` field of a settings file.
@@ -98,6 +101,76 @@ pub struct InjectionSettings {
     pub n_omega_starts: usize,
     /// Also report the Lucy–Sweeney decision as an estimator.
     pub lucy_sweeney: bool,
+    /// Posterior estimators run on every simulation.
+    pub posterior: PosteriorInjectionSettings,
+}
+
+/// Posterior estimators of injection–recovery: one per eccentricity prior, each giving the
+/// posterior median, mean and mode of e from a short sampler run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct PosteriorInjectionSettings {
+    /// Eccentricity priors as specs (`uniform`, `kipping2013`, `beta(0.867,3.03):0..0.8`, …);
+    /// empty = no posterior estimators.
+    pub priors: Vec<String>,
+    /// Walkers of each run.
+    pub n_walkers: usize,
+    /// Steps kept after burn-in.
+    pub n_steps: usize,
+    /// Burn-in steps.
+    pub n_burn: usize,
+}
+
+impl Default for PosteriorInjectionSettings {
+    /// One prior, uniform on [0, 0.99], with the fast sampler preset of
+    /// [`crate::posterior::fast_sampler_settings`] (24 walkers × (300 + 600) steps).
+    fn default() -> Self {
+        let fast = fast_sampler_settings(0);
+        PosteriorInjectionSettings {
+            priors: vec!["uniform".to_string()],
+            n_walkers: fast.n_walkers,
+            n_steps: fast.n_steps,
+            n_burn: fast.n_burn,
+        }
+    }
+}
+
+impl PosteriorInjectionSettings {
+    /// The estimators, named `posterior_<spec>` (spec characters other than letters, digits
+    /// and dots become `_`).
+    pub fn estimators(&self, seed: u64) -> Result<Vec<PosteriorEstimator>, AuditError> {
+        let sampler = SamplerSettings {
+            n_walkers: self.n_walkers,
+            n_steps: self.n_steps,
+            n_burn: self.n_burn,
+            ..fast_sampler_settings(seed)
+        };
+        self.priors
+            .iter()
+            .enumerate()
+            .map(|(idx, spec)| {
+                let prior = parse_prior_spec(spec).map_err(|e| {
+                    AuditError::Settings(format!("injection.posterior.priors[{idx}]: {e}"))
+                })?;
+                let tag: String = spec
+                    .trim()
+                    .chars()
+                    .map(|c| {
+                        if c.is_ascii_alphanumeric() || c == '.' {
+                            c.to_ascii_lowercase()
+                        } else {
+                            '_'
+                        }
+                    })
+                    .collect();
+                Ok(PosteriorEstimator::new(
+                    prior,
+                    sampler,
+                    format!("posterior_{tag}"),
+                ))
+            })
+            .collect()
+    }
 }
 
 impl Default for InjectionSettings {
@@ -112,6 +185,7 @@ impl Default for InjectionSettings {
             start_eccentricities: lsq.start_eccentricities,
             n_omega_starts: lsq.n_omega_starts,
             lucy_sweeney: lsq.lucy_sweeney,
+            posterior: PosteriorInjectionSettings::default(),
         }
     }
 }
@@ -285,6 +359,7 @@ pub struct AuditPlan {
     fit: FitReport,
     design: InjectionDesign,
     least_squares: LeastSquaresEstimator,
+    posteriors: Vec<PosteriorEstimator>,
     observed: Vec<Option<EccentricityEstimate>>,
     fitted: FittedOrbit,
 }
@@ -310,12 +385,19 @@ impl AuditPlan {
         };
         design.validate()?;
         let least_squares = settings.least_squares();
+        let posteriors = settings.injection.posterior.estimators(settings.seed)?;
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
-        let observed: Vec<Option<EccentricityEstimate>> = least_squares
-            .estimate(&data, &design, &mut rng)
-            .map(|estimates| estimates.into_iter().map(Some).collect())
-            .unwrap_or_else(|_| vec![None; least_squares.outputs().len()]);
+        let mut observed: Vec<Option<EccentricityEstimate>> = Vec::new();
+        let estimators: Vec<&dyn Estimator> = std::iter::once(&least_squares as &dyn Estimator)
+            .chain(posteriors.iter().map(|p| p as &dyn Estimator))
+            .collect();
+        for estimator in estimators {
+            match estimator.estimate(&data, &design, &mut rng) {
+                Ok(estimates) => observed.extend(estimates.into_iter().map(Some)),
+                Err(_) => observed.extend(std::iter::repeat_n(None, estimator.outputs().len())),
+            }
+        }
         let lucy_sweeney_p = companion.lucy_sweeney.as_ref().map(|ls| ls.probability);
         let fitted = FittedOrbit {
             period,
@@ -327,6 +409,7 @@ impl AuditPlan {
             fit,
             design,
             least_squares,
+            posteriors,
             observed,
             fitted,
         })
@@ -344,7 +427,9 @@ impl AuditPlan {
 
     /// The estimators run on every simulation, in output order.
     pub fn estimators(&self) -> Vec<&dyn Estimator> {
-        vec![&self.least_squares]
+        std::iter::once(&self.least_squares as &dyn Estimator)
+            .chain(self.posteriors.iter().map(|p| p as &dyn Estimator))
+            .collect()
     }
 
     /// Trials in the design.
@@ -436,20 +521,54 @@ mod tests {
         let settings = AuditSettings {
             injection: InjectionSettings {
                 eccentricities: vec![0.0, 0.4],
-                trials_per_cell: 6,
+                trials_per_cell: 3,
+                posterior: PosteriorInjectionSettings {
+                    priors: vec!["uniform".into(), "kipping2013:0..0.8".into()],
+                    n_walkers: 16,
+                    n_steps: 100,
+                    n_burn: 50,
+                },
                 ..InjectionSettings::default()
             },
             seed: 11,
             ..AuditSettings::default()
         };
         let plan = AuditPlan::new(&table, &settings).unwrap();
-        assert_eq!(plan.n_trials(), 12);
-        let whole = plan.run_trials(0..12, &mut |_| {}).unwrap();
-        let mut pieces = plan.run_trials(7..12, &mut |_| {}).unwrap();
-        pieces.extend(plan.run_trials(0..7, &mut |_| {}).unwrap());
+        assert_eq!(plan.n_trials(), 6);
+        let outputs: Vec<String> = plan
+            .estimators()
+            .iter()
+            .flat_map(|e| e.outputs())
+            .map(|o| o.name)
+            .collect();
+        assert_eq!(
+            outputs,
+            [
+                "lsq",
+                "lucy_sweeney",
+                "posterior_uniform_median",
+                "posterior_uniform_mean",
+                "posterior_uniform_mode",
+                "posterior_kipping2013_0..0.8_median",
+                "posterior_kipping2013_0..0.8_mean",
+                "posterior_kipping2013_0..0.8_mode"
+            ]
+        );
+        let whole = plan.run_trials(0..6, &mut |_| {}).unwrap();
+        let mut pieces = plan.run_trials(4..6, &mut |_| {}).unwrap();
+        pieces.extend(plan.run_trials(0..4, &mut |_| {}).unwrap());
         let a = serde_json::to_string(&plan.finish(&whole).unwrap()).unwrap();
         let b = serde_json::to_string(&plan.finish(&pieces).unwrap()).unwrap();
         assert_eq!(a, b);
-        assert!(a.contains("\"trials_done\":12"));
+        assert!(a.contains("\"trials_done\":6"));
+        // The truncated prior keeps every posterior estimate below its e_max.
+        for record in &whole {
+            for estimate in record.outcomes.iter().skip(5).filter_map(|o| o.estimate()) {
+                assert!(
+                    estimate.point <= 0.8 && estimate.upper95 <= 0.8,
+                    "{estimate:?}"
+                );
+            }
+        }
     }
 }

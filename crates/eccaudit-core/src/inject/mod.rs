@@ -11,6 +11,7 @@
 pub mod design;
 pub mod engine;
 pub mod estimators;
+pub mod posterior_estimator;
 pub mod statement;
 pub mod summary;
 
@@ -27,6 +28,7 @@ pub use estimators::{
     all_outputs, EccentricityEstimate, Estimator, EstimatorError, LeastSquaresEstimator,
     LeastSquaresSettings, OutputInfo, TrialPeriod,
 };
+pub use posterior_estimator::PosteriorEstimator;
 pub use statement::{
     eccentricity_statement, EccentricityStatement, FittedOrbit, MonteCarloP, OutputCalibration,
 };

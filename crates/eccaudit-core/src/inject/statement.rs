@@ -352,8 +352,15 @@ impl EccentricityStatement {
             self.trials_per_cell,
             self.seed
         ));
+        let width = self
+            .calibrations
+            .iter()
+            .map(|c| c.name.chars().count())
+            .max()
+            .unwrap_or(0)
+            .max(9);
         out.push_str(&format!(
-            "  {:<13} {:>7} {:>15} {:>7} {:>8} {:>7} {:>10} {:>13}\n",
+            "  {:<width$} {:>7} {:>15} {:>7} {:>8} {:>7} {:>10} {:>13}\n",
             "estimator", "value", "68% interval", "at e", "bias", "scatter", "p(circ)", "95% belt"
         ));
         for c in &self.calibrations {
@@ -366,7 +373,7 @@ impl EccentricityStatement {
                 (None, false) => "none".to_string(),
             };
             out.push_str(&format!(
-                "  {:<13} {:>7.4} {:>15} {:>7} {:>+8.4} {:>7.4} {:>10} {:>13}\n",
+                "  {:<width$} {:>7.4} {:>15} {:>7} {:>+8.4} {:>7.4} {:>10} {:>13}\n",
                 c.name,
                 c.observed.point,
                 format!("{:.3}-{:.3}", c.observed.lower68, c.observed.upper68),
