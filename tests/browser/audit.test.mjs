@@ -118,6 +118,20 @@ test("Cancel stops the workers, keeps nothing of the cancelled run, and the page
   await page.waitForFunction(() => /^[1-9]\d* \/ 1200 trials/.test(document.getElementById("audit-progress-text").textContent),
     null, { timeout: 120_000 });
   assert.ok(page.workers().length >= 1, "workers are running");
+  // The main thread stays responsive while the workers run: a 20 ms timer, watched for 1 s,
+  // never fires more than 250 ms late (a trial in the main thread would block it for longer).
+  const worstLateness = await page.evaluate(() => new Promise((resolve) => {
+    let last = performance.now();
+    let worst = 0;
+    const timer = setInterval(() => {
+      const now = performance.now();
+      worst = Math.max(worst, now - last - 20);
+      last = now;
+    }, 20);
+    setTimeout(() => { clearInterval(timer); resolve(worst); }, 1000);
+  }));
+  assert.ok(worstLateness < 250, `timer up to ${worstLateness.toFixed(0)} ms late`);
+  assert.equal(await page.evaluate(() => document.body.dataset.auditState), "running");
   await page.screenshot({ path: path.join(ARTIFACTS, "audit-running.png") });
   await page.click("#audit-cancel");
   await page.waitForSelector("body[data-audit-state='cancelled']");
