@@ -1,5 +1,6 @@
 // eccaudit page: DOM and events only. Every number comes from the wasm core.
 import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
+import { wireAudit } from "./audit-view.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -7,6 +8,8 @@ const state = {
   dataset: null,      // the loaded table (a wasm handle); kept when a new load fails
   model: null,        // elements of the overlaid curve, or null
   fit: null,          // the last fit report of this table (plain object), or null
+  table: null,        // {text, name, velocityUnit, timeConvention} of the loaded table
+  audit: null,        // the injection–recovery view (audit-view.js)
 };
 
 // Build DOM nodes from text only: user strings never become HTML.
@@ -58,6 +61,8 @@ function tryLoadTable(text, sourceName) {
   hideError($("load-error"));
   if (state.dataset) state.dataset.free();
   state.dataset = dataset;
+  state.table = { text, name: sourceName, velocityUnit: $("velocity-unit").value, timeConvention: $("time-convention").value };
+  state.audit?.tableChanged();
   state.model = null;
   clearFit();
   renderSummary(dataset.summary());
@@ -368,11 +373,16 @@ async function main() {
   const { demos, select } = wireLoader();
   wireModelForm();
   wireFit();
+  state.audit = wireAudit({ currentTable: () => state.table, el });
   if (demos.length > 0) {
     select.value = "0";
     loadTable(demos[0].text, demos[0].file_name);
   }
   document.body.dataset.ready = "true";
+  // Offline use: the service worker keeps copies of the page's own files.
+  if ("serviceWorker" in navigator) {
+    navigator.serviceWorker.register("./sw.js").catch((err) => console.warn(`offline copy unavailable: ${messageOf(err)}`));
+  }
 }
 
 main().catch((err) => {

@@ -8,6 +8,8 @@ const APP_SHELL = [
   "./",
   "./index.html",
   "./app.js",
+  "./audit-view.js",
+  "./audit-worker.js",
   "./style.css",
   "./pkg/eccaudit_web.js",
   "./pkg/eccaudit_web_bg.wasm",

@@ -19,10 +19,7 @@ use eccaudit_core::inject::{
 };
 use eccaudit_core::table::VelocityTable;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
-use eccaudit_plot::{
-    draw_bias_curve, draw_distributions, BiasCurve, BiasFigure, DistributionFigure,
-    DistributionPanel, EstimateHistogram,
-};
+use eccaudit_plot::{bias_figure, distribution_figure, draw_bias_curve, draw_distributions};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
@@ -383,68 +380,16 @@ pub fn write_outputs(
     let json_path = out.join("summary.json");
     fs::write(&json_path, serde_json::to_string_pretty(summary)?)
         .with_context(|| format!("cannot write `{}`", json_path.display()))?;
-    let design = &summary.design;
-    let first_omega = design.omegas.first().copied();
-    let mut curves = Vec::new();
-    for &k in &design.semi_amplitudes {
-        let cells: Vec<_> = summary
-            .cells
-            .iter()
-            .filter(|c| c.cell.semi_amplitude == k && c.cell.omega == first_omega)
-            .filter(|c| c.n_trials > 0)
-            .collect();
-        for (i, o) in summary.outputs.iter().enumerate() {
-            let usable: Vec<_> = cells
-                .iter()
-                .filter(|c| c.outputs[i].n_estimates > 0)
-                .collect();
-            let pick = |f: fn(&eccaudit_core::inject::Quantiles) -> f64| {
-                usable.iter().map(|c| f(&c.outputs[i].quantiles)).collect()
-            };
-            let name = if design.semi_amplitudes.len() > 1 {
-                format!("{}, K/σ = {:.2}", o.name, design.signal_to_noise(k))
-            } else {
-                o.name.clone()
-            };
-            curves.push(BiasCurve {
-                name,
-                true_e: usable.iter().map(|c| c.cell.eccentricity).collect(),
-                q025: pick(|q| q.q025),
-                q16: pick(|q| q.q16),
-                median: pick(|q| q.q50),
-                q84: pick(|q| q.q84),
-                q975: pick(|q| q.q975),
-            });
-        }
-    }
     let bias_path = out.join("bias.svg");
     {
         let root = SVGBackend::new(&bias_path, (760, 560)).into_drawing_area();
-        draw_bias_curve(&root, &BiasFigure { curves, observed })
+        draw_bias_curve(&root, &bias_figure(summary, observed))
             .map_err(|e| anyhow::anyhow!("cannot draw `{}`: {e}", bias_path.display()))?;
     }
-    let k0 = design.semi_amplitudes[0];
-    let panels = summary
-        .cells
-        .iter()
-        .filter(|c| c.cell.semi_amplitude == k0 && c.cell.omega == first_omega)
-        .map(|c| DistributionPanel {
-            true_e: c.cell.eccentricity,
-            histograms: c
-                .outputs
-                .iter()
-                .map(|o| EstimateHistogram {
-                    name: o.name.clone(),
-                    bin_width: eccaudit_core::inject::summary::HISTOGRAM_BIN_WIDTH,
-                    counts: o.histogram.clone(),
-                })
-                .collect(),
-        })
-        .collect();
     let dist_path = out.join("distributions.svg");
     {
         let root = SVGBackend::new(&dist_path, (1000, 640)).into_drawing_area();
-        draw_distributions(&root, &DistributionFigure { panels })
+        draw_distributions(&root, &distribution_figure(summary))
             .map_err(|e| anyhow::anyhow!("cannot draw `{}`: {e}", dist_path.display()))?;
     }
     Ok(())

@@ -7,6 +7,8 @@
 
 mod bias;
 mod corner;
+#[cfg(feature = "core")]
+mod injection;
 mod legend;
 mod palette;
 mod periodogram;
@@ -20,6 +22,8 @@ pub use bias::{
     DistributionPanel, EstimateHistogram,
 };
 pub use corner::{draw_corner, CornerFigure};
+#[cfg(feature = "core")]
+pub use injection::{bias_figure, distribution_figure};
 pub use legend::{draw_legend, LegendMark};
 pub use palette::{instrument_colour, INK, MUTED};
 pub use periodogram::{draw_periodogram, MarkedPeak, PeriodogramFigure, PowerLevel};

@@ -6,12 +6,14 @@
 //! reported to the page through `globalThis.eccauditReportPanic` (see
 //! [`install_panic_hook`]) instead of dying silently in the console.
 
+mod audit;
 mod bench;
 mod canvas;
 mod dataset;
 mod demo;
 mod fit;
 
+pub use audit::{audit_settings_for, default_audit_settings, AuditRun};
 pub use bench::KeplerBench;
 pub use dataset::{CurveElements, Dataset};
 pub use demo::demo_tables;

@@ -1,0 +1,177 @@
+// The whole audit in the page: injection–recovery in Web Workers, the statement, the downloads;
+// the page's numbers equal `eccaudit audit --settings` on the downloaded replay file; Cancel
+// stops the workers and keeps nothing; the page starts offline once loaded (service worker).
+import { test, before, after } from "node:test";
+import assert from "node:assert/strict";
+import { execFileSync } from "node:child_process";
+import { existsSync, mkdtempSync, readFileSync, rmSync } from "node:fs";
+import { tmpdir } from "node:os";
+import path from "node:path";
+import { fileURLToPath } from "node:url";
+import { openApp, ARTIFACTS } from "./harness.mjs";
+
+const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
+const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
+const CLI = path.join(TARGET, "release", "eccaudit");
+const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-audit-test-"));
+
+let app;
+before(async () => {
+  app = await openApp();
+  await app.load();
+});
+after(async () => {
+  await app?.close();
+  rmSync(TMP, { recursive: true, force: true });
+});
+
+async function selectDemo(index) {
+  const { page } = app;
+  const attempts = await page.evaluate(() => Number(document.body.dataset.loadAttempts ?? 0));
+  await page.selectOption("#demo-select", String(index));
+  await page.waitForFunction((n) => Number(document.body.dataset.loadAttempts) > n, attempts);
+}
+
+async function setGrid({ e, trials, seed }) {
+  const { page } = app;
+  await page.fill("#audit-settings [name='eccentricities']", e);
+  await page.fill("#audit-settings [name='trials']", String(trials));
+  await page.fill("#audit-settings [name='seed']", String(seed));
+}
+
+async function runToEnd() {
+  const { page } = app;
+  await page.click("#audit-run");
+  await page.waitForSelector("body[data-audit-state='done'], body[data-audit-state='error']", { timeout: 300_000 });
+  assert.equal(await page.isHidden("#audit-error"), true, await page.textContent("#audit-error"));
+}
+
+async function saveDownload(buttonId, name) {
+  const { page } = app;
+  const [download] = await Promise.all([page.waitForEvent("download"), page.click(buttonId)]);
+  const file = path.join(TMP, name);
+  await download.saveAs(file);
+  return { file, suggested: download.suggestedFilename() };
+}
+
+test("a small audit of Corvin 4 in the page gives exactly the command line's report", async () => {
+  const { page } = app;
+  await selectDemo(1);
+  await setGrid({ e: "0, 0.3", trials: 4, seed: 5 });
+  await runToEnd();
+  assert.match(await page.textContent("#audit-status"), /^Done: 8 trials in /);
+
+  const paragraph = await page.textContent("#statement-paragraph");
+  assert.ok(paragraph.length > 100, paragraph);
+  // Two cells × the estimator outputs (least squares, Lucy–Sweeney).
+  const rows = await page.$$eval("#audit-summary tbody tr", (trs) => trs.map((tr) => [...tr.children].map((td) => td.textContent)));
+  assert.equal(rows.length, 4, JSON.stringify(rows));
+  assert.deepEqual(rows.map((r) => r[1]), ["0.000", "0.000", "0.300", "0.300"]);
+  assert.ok(await app.paintedPixels("#bias-canvas") > 5000);
+  assert.ok(await app.paintedPixels("#distributions-canvas") > 5000);
+
+  // The replay file the page offers, replayed by the command line.
+  const settings = await saveDownload("#download-settings", "settings.json");
+  assert.equal(settings.suggested, "corvin4-eccentric-eccaudit-settings.json");
+  const replay = JSON.parse(readFileSync(settings.file, "utf8"));
+  assert.deepEqual(replay.injection.eccentricities, [0, 0.3]);
+  assert.equal(replay.injection.trials_per_cell, 4);
+  assert.equal(replay.seed, 5);
+  assert.equal(replay.data.file_name, "corvin4-eccentric.tsv");
+  assert.ok(existsSync(CLI), `${CLI} is missing: run cargo build --release first`);
+  const out = path.join(TMP, "cli-out");
+  const cliJson = execFileSync(CLI, [
+    "audit", "demo-data/corvin4-eccentric.tsv", "--settings", settings.file, "--json", "--quiet", "--out", out,
+  ], { cwd: ROOT, encoding: "utf8" });
+  const native = JSON.parse(cliJson);
+  const shown = JSON.parse(await page.textContent("#audit-report-json"));
+  // Deep equality of the whole report: fit, every cell's numbers, the statement.
+  assert.deepEqual(shown, native);
+  assert.equal(paragraph, native.statement.paragraph);
+  assert.equal(native.trials_done, 8);
+
+  // The downloads: the same report, and the trial file the command line wrote (byte for byte).
+  const results = await saveDownload("#download-results", "results.json");
+  assert.equal(results.suggested, "corvin4-eccentric-eccaudit-results.json");
+  assert.deepEqual(JSON.parse(readFileSync(results.file, "utf8")), native);
+  const trials = await saveDownload("#download-trials", "trials.csv");
+  assert.equal(trials.suggested, "corvin4-eccentric-eccaudit-trials.csv");
+  assert.equal(readFileSync(trials.file, "utf8"), readFileSync(path.join(out, "trials.csv"), "utf8"));
+
+  await page.click("#copy-statement");
+  await page.waitForFunction(() => document.getElementById("copy-status").textContent !== "");
+  assert.match(await page.textContent("#copy-status"), /Copied|copy it by hand/);
+
+  await page.locator("#audit-section").screenshot({ path: path.join(ARTIFACTS, "audit-injection-recovery.png") });
+  await page.locator("#statement-section").screenshot({ path: path.join(ARTIFACTS, "audit-statement.png") });
+  assert.deepEqual(app.consoleErrors, []);
+});
+
+test("Cancel stops the workers, keeps nothing of the cancelled run, and the page goes on working", async () => {
+  const { page } = app;
+  const before = await page.textContent("#statement-paragraph");
+  const reportBefore = await page.textContent("#audit-report-json");
+  await setGrid({ e: "0, 0.1, 0.2, 0.3, 0.4, 0.5", trials: 200, seed: 9 });
+  await page.click("#audit-run");
+  await page.waitForSelector("body[data-audit-state='running']");
+  // Wait until the workers report trials.
+  await page.waitForFunction(() => /^[1-9]\d* \/ 1200 trials/.test(document.getElementById("audit-progress-text").textContent),
+    null, { timeout: 120_000 });
+  assert.ok(page.workers().length >= 1, "workers are running");
+  // The main thread stays responsive while the workers run: a 20 ms timer, watched for 1 s,
+  // never fires more than 250 ms late (a trial in the main thread would block it for longer).
+  const worstLateness = await page.evaluate(() => new Promise((resolve) => {
+    let last = performance.now();
+    let worst = 0;
+    const timer = setInterval(() => {
+      const now = performance.now();
+      worst = Math.max(worst, now - last - 20);
+      last = now;
+    }, 20);
+    setTimeout(() => { clearInterval(timer); resolve(worst); }, 1000);
+  }));
+  assert.ok(worstLateness < 250, `timer up to ${worstLateness.toFixed(0)} ms late`);
+  assert.equal(await page.evaluate(() => document.body.dataset.auditState), "running");
+  await page.screenshot({ path: path.join(ARTIFACTS, "audit-running.png") });
+  await page.click("#audit-cancel");
+  await page.waitForSelector("body[data-audit-state='cancelled']");
+  const status = await page.textContent("#audit-status");
+  assert.match(status, /^Cancelled \(by you\) after \d+ of 1200 trials; those trials were discarded and nothing changed/);
+  assert.equal(await page.evaluate(() => document.body.dataset.auditWorkers), "0");
+  // The terminated workers are gone and nothing moves afterwards.
+  for (let i = 0; i < 200 && page.workers().length > 0; i++) await page.waitForTimeout(100);
+  assert.equal(page.workers().length, 0, "no worker left");
+  await page.waitForTimeout(1500);
+  assert.equal(await page.textContent("#audit-status"), status);
+  assert.equal(await page.isHidden("#audit-progress-box"), true);
+  // The earlier complete result is still the one shown.
+  assert.equal(await page.textContent("#statement-paragraph"), before);
+  assert.equal(await page.textContent("#audit-report-json"), reportBefore);
+  assert.equal(await page.isDisabled("#audit-cancel"), true);
+
+  // Still working: a tiny run again finishes.
+  await setGrid({ e: "0, 0.3", trials: 2, seed: 5 });
+  await runToEnd();
+  assert.match(await page.textContent("#audit-status"), /^Done: 4 trials/);
+  assert.deepEqual(app.consoleErrors, []);
+});
+
+test("after the first visit the page starts with no network (service worker)", async () => {
+  const { page } = app;
+  const cached = await page.evaluate(async () => {
+    await navigator.serviceWorker.ready;
+    const names = ["./", "./app.js", "./audit-view.js", "./audit-worker.js", "./pkg/eccaudit_web_bg.wasm"];
+    return Promise.all(names.map(async (n) => [n, Boolean(await caches.match(n))]));
+  });
+  assert.deepEqual(cached.filter(([, ok]) => !ok), [], "every file of the page is cached");
+  await page.context().setOffline(true);
+  try {
+    await page.reload();
+    await page.waitForSelector("body[data-ready='true']", { timeout: 20_000 });
+    assert.match(await page.textContent("[data-testid='summary-facts']"), /velka17-nearly-circular\.csv/);
+  } finally {
+    await page.context().setOffline(false);
+  }
+  assert.deepEqual(app.consoleErrors, []);
+  assert.deepEqual(app.foreignRequests, []);
+});

@@ -1,0 +1,335 @@
+// eccaudit page: the injection–recovery run and the statement (DOM and workers only; every
+// number comes from the wasm core).
+//
+// The main thread builds one AuditRun (the fit of the table, the design); a pool of module Web
+// Workers, each with its own AuditRun of the same table and settings, takes small chunks of
+// trial indices from a shared queue until none is left; the main thread's AuditRun summarises
+// the rows and draws. Results depend only on the settings and the table, never on the split.
+import { AuditRun, auditSettingsFor, defaultAuditSettings } from "./pkg/eccaudit_web.js";
+
+const $ = (id) => document.getElementById(id);
+const messageOf = (err) => (err instanceof Error ? err.message : String(err));
+const tick = () => new Promise((resolve) => setTimeout(resolve, 0));
+
+/** Trials per chunk: a few, so progress moves smoothly and idle workers find work. */
+function chunkSize(nTrials, nWorkers) {
+  return Math.max(1, Math.min(4, Math.ceil(nTrials / (nWorkers * 16))));
+}
+
+function clockText(seconds) {
+  if (!Number.isFinite(seconds)) return "–";
+  const s = Math.max(0, Math.round(seconds));
+  const m = Math.floor(s / 60);
+  return m >= 60 ? `${Math.floor(m / 60)} h ${String(m % 60).padStart(2, "0")} min` : `${m}:${String(s % 60).padStart(2, "0")}`;
+}
+
+const fixed = (v, digits) => (v === null || v === undefined || !Number.isFinite(v) ? "–" : v.toFixed(digits));
+const rate = (r) => (r ? `${(100 * r.value).toFixed(1)}% ± ${(100 * r.standard_error).toFixed(1)}` : "–");
+
+/** The stem of a file name ("corvin4-eccentric.tsv" → "corvin4-eccentric"). */
+function stem(name) {
+  const base = name.split(/[\\/]/).pop() || "table";
+  const dot = base.lastIndexOf(".");
+  return dot > 0 ? base.slice(0, dot) : base;
+}
+
+function download(text, fileName, type) {
+  const url = URL.createObjectURL(new Blob([text], { type }));
+  const link = document.createElement("a");
+  link.href = url;
+  link.download = fileName;
+  document.body.append(link);
+  link.click();
+  link.remove();
+  setTimeout(() => URL.revokeObjectURL(url), 10_000);
+}
+
+async function copyText(text) {
+  try {
+    await navigator.clipboard.writeText(text);
+    return "Copied to the clipboard.";
+  } catch {
+    // Fallback for pages without the asynchronous clipboard (e.g. not a secure context).
+    const area = document.createElement("textarea");
+    area.className = "offscreen";
+    area.value = text;
+    document.body.append(area);
+    area.select();
+    let ok = false;
+    try { ok = document.execCommand("copy"); } catch { ok = false; }
+    area.remove();
+    return ok ? "Copied to the clipboard." : "Could not copy: select the paragraph and copy it by hand.";
+  }
+}
+
+/**
+ * Wire the "Injection–recovery" and "Statement" sections.
+ * `currentTable()` returns the loaded table as {text, name, velocityUnit, timeConvention} or null;
+ * `el` builds DOM nodes from text. Returns {tableChanged()} for the loader to call.
+ */
+export function wireAudit({ currentTable, el }) {
+  const form = $("audit-settings");
+  const defaults = JSON.parse(defaultAuditSettings());
+  form.elements.eccentricities.value = defaults.injection.eccentricities.join(", ");
+  form.elements.trials.value = String(defaults.injection.trials_per_cell);
+  form.elements.seed.value = String(defaults.seed);
+  form.elements.jitter.value = String(defaults.injection.jitter);
+  form.elements.period_search.checked = defaults.injection.period_search;
+
+  let job = null;      // the run in progress: {run, workers, ...}
+  let shown = null;    // the result on the page: {run, report, settingsJson, tableName}
+  const setState = (s) => { document.body.dataset.auditState = s; };
+  const setWorkers = (n) => { document.body.dataset.auditWorkers = String(n); };
+  setState("idle");
+  setWorkers(0);
+
+  function readSettings(table) {
+    const data = new FormData(form);
+    const number = (name, label, check) => {
+      const raw = String(data.get(name) ?? "").trim();
+      const value = Number(raw);
+      if (raw === "" || !Number.isFinite(value) || !check(value)) throw new Error(`${label}: '${raw}' ${check.need}`);
+      return value;
+    };
+    const whole = Object.assign((v) => Number.isSafeInteger(v) && v >= 0, { need: "must be a whole number ≥ 0" });
+    const positiveWhole = Object.assign((v) => Number.isSafeInteger(v) && v >= 1, { need: "must be a whole number ≥ 1" });
+    const nonNegative = Object.assign((v) => v >= 0, { need: "must be a number ≥ 0" });
+    const grid = String(data.get("eccentricities") ?? "").split(/[,\s]+/).filter((s) => s !== "").map((s) => {
+      const v = Number(s);
+      if (!Number.isFinite(v)) throw new Error(`true e: '${s}' is not a number`);
+      return v;
+    });
+    if (grid.length === 0) throw new Error("true e: give at least one eccentricity");
+    const settings = JSON.parse(defaultAuditSettings());
+    settings.injection.eccentricities = grid;
+    settings.injection.trials_per_cell = number("trials", "trials per e", positiveWhole);
+    settings.injection.jitter = number("jitter", "jitter", nonNegative);
+    settings.injection.period_search = data.get("period_search") === "on";
+    settings.seed = number("seed", "seed", whole);
+    return auditSettingsFor(table.text, table.name, table.velocityUnit, table.timeConvention, JSON.stringify(settings));
+  }
+
+  function showError(message) {
+    const box = $("audit-error");
+    box.textContent = message;
+    box.hidden = !message;
+  }
+
+  function setRunning(running) {
+    $("audit-run").disabled = running;
+    $("audit-cancel").disabled = !running;
+    $("audit-progress-box").hidden = !running && !job;
+  }
+
+  function progress(done, total, startedAt) {
+    const bar = $("audit-progress");
+    bar.max = Math.max(1, total);
+    bar.value = done;
+    let eta = "";
+    if (startedAt !== null && done > 0 && done < total) {
+      const perTrial = (performance.now() - startedAt) / 1000 / done;
+      eta = ` · about ${clockText(perTrial * (total - done))} left`;
+    }
+    $("audit-progress-text").textContent = `${done} / ${total} trials${eta}`;
+  }
+
+  function stopWorkers(j) {
+    for (const w of j.workers) w.terminate();
+    j.workers = [];
+    setWorkers(0);
+  }
+
+  function cancel(reason) {
+    if (!job) return;
+    const j = job;
+    job = null;
+    stopWorkers(j);
+    j.run.free();
+    const kept = shown ? "the result below is the earlier, complete run" : "no result is shown";
+    $("audit-status").textContent =
+      `Cancelled (${reason}) after ${j.done} of ${j.total} trials; those trials were discarded and nothing changed: ${kept}.`;
+    setState("cancelled");
+    setRunning(false);
+    $("audit-progress-box").hidden = true;
+  }
+
+  function fail(message) {
+    if (job) {
+      stopWorkers(job);
+      job.run.free();
+      job = null;
+    }
+    showError(`Injection–recovery not run: ${message}`);
+    $("audit-status").textContent = "";
+    setState("error");
+    setRunning(false);
+    $("audit-progress-box").hidden = true;
+  }
+
+  function renderSummary(report) {
+    const head = el("tr", {}, ...["estimator", "true e", "trials", "bias", "scatter", "RMSE",
+      "68% coverage", "95% coverage", "false-eccentric rate"].map((h) => el("th", {}, h)));
+    const rows = [];
+    for (const cell of report.injection.cells) {
+      cell.outputs.forEach((o) => {
+        rows.push(el("tr", {},
+          el("td", {}, o.name),
+          el("td", {}, fixed(cell.cell.eccentricity, 3)),
+          el("td", {}, o.n_failed > 0 ? `${o.n_estimates} (+${o.n_failed} failed)` : String(o.n_estimates)),
+          el("td", {}, o.n_estimates > 0 ? `${fixed(o.bias, 3)} ± ${fixed(o.bias_standard_error, 3)}` : "–"),
+          el("td", {}, fixed(o.scatter, 3)),
+          el("td", {}, fixed(o.rmse, 3)),
+          el("td", {}, rate(o.coverage68)),
+          el("td", {}, rate(o.coverage95)),
+          el("td", {}, cell.cell.eccentricity === 0 ? rate(o.false_eccentric_rate) : "–")));
+      });
+    }
+    $("audit-summary").replaceChildren(el("thead", {}, head), el("tbody", {}, ...rows));
+  }
+
+  function render() {
+    const { run, report, tableName } = shown;
+    $("audit-results").hidden = false;
+    renderSummary(report);
+    run.drawBias($("bias-canvas"));
+    run.drawDistributions($("distributions-canvas"));
+    const s = report.statement;
+    $("statement-source").textContent =
+      `${tableName}: ${report.trials_done} of ${report.trials_total} trials, ${s.trials_per_cell} per e, seed ${s.seed}.`;
+    $("statement-paragraph").textContent = s.paragraph;
+    $("statement-text").textContent = run.statementText();
+    $("audit-report-json").textContent = run.reportJson();
+    $("statement-empty").hidden = true;
+    $("statement-body").hidden = false;
+  }
+
+  function clearShown() {
+    if (shown) shown.run.free();
+    shown = null;
+    $("audit-results").hidden = true;
+    $("statement-body").hidden = true;
+    $("statement-empty").hidden = false;
+    $("audit-report-json").textContent = "";
+    $("copy-status").textContent = "";
+  }
+
+  function finishJob(j) {
+    stopWorkers(j);
+    job = null;
+    try {
+      const report = j.run.finish(j.rows);
+      if (shown) shown.run.free();
+      shown = { run: j.run, report, settingsJson: j.settingsJson, tableName: j.tableName };
+      render();
+      const seconds = (performance.now() - j.createdAt) / 1000;
+      $("audit-status").textContent =
+        `Done: ${report.trials_done} trials in ${clockText(seconds)} on ${j.nWorkers} worker${j.nWorkers === 1 ? "" : "s"}.`;
+      setState("done");
+    } catch (err) {
+      j.run.free();
+      showError(`Injection–recovery not summarised: ${messageOf(err)}`);
+      setState("error");
+    }
+    setRunning(false);
+    $("audit-progress-box").hidden = true;
+  }
+
+  function feed(j, worker) {
+    if (j.next >= j.total) return;
+    const start = j.next;
+    const end = Math.min(j.total, start + j.chunk);
+    j.next = end;
+    worker.postMessage({ type: "run", start, end });
+  }
+
+  async function start() {
+    if (job) return;
+    showError("");
+    const table = currentTable();
+    if (!table) { fail("load a velocity table first"); return; }
+    let settingsJson;
+    try {
+      settingsJson = readSettings(table);
+    } catch (err) {
+      fail(messageOf(err));
+      return;
+    }
+    setState("running");
+    setRunning(true);
+    $("audit-progress-box").hidden = false;
+    $("audit-status").textContent = "Fitting the table and fixing the simulations…";
+    progress(0, 0, null);
+    await tick();
+    let run;
+    try {
+      run = new AuditRun(table.text, table.name, settingsJson);
+    } catch (err) {
+      fail(messageOf(err));
+      return;
+    }
+    const total = run.nTrials;
+    const nWorkers = Math.max(1, Math.min(navigator.hardwareConcurrency || 1, total));
+    const j = {
+      run, settingsJson, tableName: table.name, total, nWorkers, chunk: chunkSize(total, nWorkers),
+      next: 0, done: 0, rows: [], workers: [], createdAt: performance.now(), startedAt: null,
+    };
+    job = j;
+    $("audit-status").textContent = `Running ${total} trials on ${nWorkers} worker${nWorkers === 1 ? "" : "s"}…`;
+    progress(0, total, null);
+    for (let i = 0; i < nWorkers; i++) {
+      const worker = new Worker(new URL("./audit-worker.js", import.meta.url), { type: "module", name: `audit-${i}` });
+      j.workers.push(worker);
+      worker.onmessage = (event) => {
+        if (job !== j) return;  // a cancelled run's late message
+        const msg = event.data;
+        if (msg.type === "ready") {
+          if (j.startedAt === null) j.startedAt = performance.now();
+          feed(j, worker);
+        } else if (msg.type === "rows") {
+          for (const row of msg.rows) j.rows.push(row);
+          j.done += msg.rows.length;
+          progress(j.done, j.total, j.startedAt);
+          if (j.done >= j.total) finishJob(j);
+          else feed(j, worker);
+        } else if (msg.type === "error") {
+          fail(msg.message);
+        }
+      };
+      worker.onerror = (event) => {
+        event.preventDefault();
+        if (job === j) fail(`a worker stopped: ${event.message || "it could not start"}`);
+      };
+      worker.postMessage({ type: "init", text: table.text, name: table.name, settings: settingsJson });
+    }
+    setWorkers(j.workers.length);
+  }
+
+  form.addEventListener("submit", (ev) => {
+    ev.preventDefault();
+    start();
+  });
+  $("audit-cancel").addEventListener("click", () => cancel("by you"));
+
+  $("copy-statement").addEventListener("click", async () => {
+    if (!shown) return;
+    $("copy-status").textContent = await copyText(shown.report.statement.paragraph);
+  });
+  $("download-settings").addEventListener("click", () => {
+    if (shown) download(shown.settingsJson, `${stem(shown.tableName)}-eccaudit-settings.json`, "application/json");
+  });
+  $("download-results").addEventListener("click", () => {
+    if (shown) download(shown.run.reportJson(), `${stem(shown.tableName)}-eccaudit-results.json`, "application/json");
+  });
+  $("download-trials").addEventListener("click", () => {
+    if (shown) download(shown.run.trialsCsv(), `${stem(shown.tableName)}-eccaudit-trials.csv`, "text/csv");
+  });
+
+  return {
+    /** A new table was loaded: stop any run and drop the result of the old table. */
+    tableChanged() {
+      if (job) cancel("a new table was loaded");
+      clearShown();
+      if (document.body.dataset.auditState !== "cancelled") $("audit-status").textContent = "";
+    },
+  };
+}
