@@ -1,5 +1,6 @@
 // eccaudit page: DOM and events only. Every number comes from the wasm core.
 import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
+import { initPriorsView } from "./priors-view.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -7,6 +8,7 @@ const state = {
   dataset: null,      // the loaded table (a wasm handle); kept when a new load fails
   model: null,        // elements of the overlaid curve, or null
   fit: null,          // the last fit report of this table (plain object), or null
+  source: null,       // text and read options of the loaded table (for workers), or null
 };
 
 // Build DOM nodes from text only: user strings never become HTML.
@@ -58,6 +60,9 @@ function tryLoadTable(text, sourceName) {
   hideError($("load-error"));
   if (state.dataset) state.dataset.free();
   state.dataset = dataset;
+  state.source = {
+    text, sourceName, velocityUnit: $("velocity-unit").value, timeConvention: $("time-convention").value,
+  };
   state.model = null;
   clearFit();
   renderSummary(dataset.summary());
@@ -368,6 +373,7 @@ async function main() {
   const { demos, select } = wireLoader();
   wireModelForm();
   wireFit();
+  initPriorsView({ currentTable: () => state.source });
   if (demos.length > 0) {
     select.value = "0";
     loadTable(demos[0].text, demos[0].file_name);
