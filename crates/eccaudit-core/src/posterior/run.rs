@@ -482,3 +482,99 @@ impl fmt::Display for SensitivityReport {
         Ok(())
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::RvModel;
+    use crate::orbit::OrbitalElements;
+    use crate::posterior::SensitivityRequest;
+
+    /// An eccentric orbit (P = 40 d, K = 30 m/s, e = 0.3) at 30 uneven epochs, with a
+    /// deterministic ±1.5 m/s wiggle standing in for noise.
+    fn data() -> FitData {
+        let times: Vec<f64> = (0..30)
+            .map(|i| 100.0 + 7.3 * i as f64 + 2.1 * libm::sin(1.3 * i as f64))
+            .collect();
+        let orbit = OrbitalElements::new(40.0, 30.0, 0.3, 1.0, 95.0).unwrap();
+        let model = RvModel::new(vec![orbit], vec![5.0], 0.0, 100.0).unwrap();
+        let mut velocities = vec![0.0; times.len()];
+        model
+            .velocities_one_instrument(&times, 0, &mut velocities)
+            .unwrap();
+        for (i, v) in velocities.iter_mut().enumerate() {
+            *v += 1.5 * libm::sin(2.7 * i as f64);
+        }
+        let errors = vec![2.0; times.len()];
+        FitData::new(&times, &velocities, &errors, &[0; 30], &["a".into()])
+    }
+
+    fn short_settings() -> SensitivitySettings {
+        SensitivityRequest {
+            priors: vec!["uniform:0..0.8".into(), "rayleigh(0.3)".into()],
+            walkers: 16,
+            steps: 60,
+            burn: 20,
+            seed: 5,
+            period: Some(40.0),
+            ..SensitivityRequest::default()
+        }
+        .to_settings()
+        .unwrap()
+    }
+
+    #[test]
+    fn runs_done_separately_and_in_any_order_assemble_to_the_same_report() {
+        // What the page relies on when it spreads the priors over workers: each run depends
+        // only on the data, the settings and its index, not on the runs before it.
+        let data = data();
+        let settings = short_settings();
+        let whole =
+            prior_sensitivity(&data, &settings, &mut |_| ControlFlow::Continue(())).unwrap();
+        let start = sensitivity_start(&data, &settings).unwrap();
+        let mut continue_ = |_| ControlFlow::Continue(());
+        let second = sensitivity_run(&data, &settings, &start, 1, &mut continue_).unwrap();
+        let first = sensitivity_run(&data, &settings, &start, 0, &mut continue_).unwrap();
+        let parts = assemble_sensitivity_report(
+            data.n_points(),
+            start.least_squares,
+            &settings,
+            vec![first, second],
+        )
+        .unwrap();
+        // Debug text compares every field bit for bit (f64 Debug is shortest-round-trip) and
+        // treats NaN (e.g. an undefined Bayes-factor error) as equal to NaN, unlike `==`.
+        assert_eq!(format!("{parts:?}"), format!("{whole:?}"));
+        assert_eq!(
+            whole.median_spread,
+            (whole.runs[0].summary.median - whole.runs[1].summary.median).abs()
+        );
+    }
+
+    #[test]
+    fn wrong_index_and_wrong_run_count_are_errors() {
+        let data = data();
+        let settings = short_settings();
+        let start = sensitivity_start(&data, &settings).unwrap();
+        let err = sensitivity_run(&data, &settings, &start, 2, &mut |_| {
+            ControlFlow::Continue(())
+        })
+        .unwrap_err();
+        assert_eq!(
+            err,
+            PosteriorError::PriorIndex {
+                index: 2,
+                n_priors: 2
+            }
+        );
+        let err = assemble_sensitivity_report(30, start.least_squares, &settings, Vec::new())
+            .unwrap_err();
+        assert_eq!(
+            err,
+            PosteriorError::RunCount {
+                runs: 0,
+                n_priors: 2
+            }
+        );
+    }
+}
