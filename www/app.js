@@ -1,6 +1,7 @@
 // eccaudit page: DOM and events only. Every number comes from the wasm core.
 import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
 import { wireAudit } from "./audit-view.js";
+import { initPriorsView } from "./priors-view.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -10,6 +11,7 @@ const state = {
   fit: null,          // the last fit report of this table (plain object), or null
   table: null,        // {text, name, velocityUnit, timeConvention} of the loaded table
   audit: null,        // the injection–recovery view (audit-view.js)
+  source: null,       // text and read options of the loaded table (for workers), or null
 };
 
 // Build DOM nodes from text only: user strings never become HTML.
@@ -63,6 +65,9 @@ function tryLoadTable(text, sourceName) {
   state.dataset = dataset;
   state.table = { text, name: sourceName, velocityUnit: $("velocity-unit").value, timeConvention: $("time-convention").value };
   state.audit?.tableChanged();
+  state.source = {
+    text, sourceName, velocityUnit: $("velocity-unit").value, timeConvention: $("time-convention").value,
+  };
   state.model = null;
   clearFit();
   renderSummary(dataset.summary());
@@ -374,6 +379,7 @@ async function main() {
   wireModelForm();
   wireFit();
   state.audit = wireAudit({ currentTable: () => state.table, el });
+  initPriorsView({ currentTable: () => state.source });
   if (demos.length > 0) {
     select.value = "0";
     loadTable(demos[0].text, demos[0].file_name);

@@ -9,6 +9,8 @@ const APP_SHELL = [
   "./index.html",
   "./app.js",
   "./audit-view.js",
+  "./priors-worker.js",
+  "./priors-view.js",
   "./audit-worker.js",
   "./style.css",
   "./pkg/eccaudit_web.js",

@@ -5,18 +5,15 @@ use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
 
 use super::input::{read_table, TableArgs};
-use anyhow::{bail, Context};
-use eccaudit_core::fit::{FitData, FitOptions};
+use anyhow::Context;
+use eccaudit_core::fit::FitData;
 use eccaudit_core::posterior::{
-    default_prior_set, parse_prior_spec, prior_sensitivity, PosteriorSettings, SensitivityReport,
-    SensitivitySettings,
+    prior_sensitivity, SensitivityReport, SensitivityRequest, SensitivitySettings,
 };
-use eccaudit_core::priors::ScalarPrior;
-use eccaudit_core::sampler::SamplerSettings;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
-    draw_corner, draw_eccentricity_posteriors, draw_traces, CornerFigure, EccentricityFigure,
-    EccentricityPanel, ParameterTraces, TraceFigure,
+    corner_figure, corner_figure_size, draw_corner, draw_eccentricity_posteriors, draw_traces,
+    eccentricity_figure, eccentricity_figure_size, trace_figure, trace_figure_size, CORNER_POINTS,
 };
 
 /// Arguments of `eccaudit priors`.
@@ -69,53 +66,22 @@ pub struct Args {
     pub json: bool,
 }
 
+/// The flags as a core request: the page builds its settings through the same request.
 fn settings(args: &Args) -> anyhow::Result<SensitivitySettings> {
-    let priors = if args.priors.is_empty() {
-        default_prior_set()
-    } else {
-        args.priors
-            .iter()
-            .map(|spec| parse_prior_spec(spec))
-            .collect::<Result<Vec<_>, _>>()?
-    };
-    let mut posterior = PosteriorSettings {
+    let request = SensitivityRequest {
+        priors: args.priors.clone(),
+        walkers: args.walkers,
+        steps: args.steps,
+        burn: args.burn,
+        seed: args.seed,
+        period: args.period,
+        period_range: [args.period_range[0], args.period_range[1]],
+        k_max: args.k_max,
+        jitter_max: args.jitter_max,
         jitter: !args.no_jitter,
         trend: args.trend,
-        ..PosteriorSettings::default()
     };
-    posterior.priors.period = ScalarPrior::LogUniform {
-        min: args.period_range[0],
-        max: args.period_range[1],
-    };
-    posterior.priors.semi_amplitude = ScalarPrior::ModifiedJeffreys {
-        knee: 1.0,
-        max: args.k_max,
-    };
-    posterior.priors.jitter = ScalarPrior::ModifiedJeffreys {
-        knee: 1.0,
-        max: args.jitter_max,
-    };
-    posterior.priors.validate()?;
-    if let Some(p) = args.period {
-        if !(p > 0.0 && p.is_finite()) {
-            bail!("--period {p}: must be a positive number of days");
-        }
-    }
-    Ok(SensitivitySettings {
-        posterior,
-        priors,
-        sampler: SamplerSettings {
-            n_walkers: args.walkers,
-            n_steps: args.steps,
-            n_burn: args.burn,
-            seed: args.seed,
-            ..SamplerSettings::default()
-        },
-        fit: FitOptions {
-            initial_periods: args.period.into_iter().collect(),
-            ..FitOptions::default()
-        },
-    })
+    Ok(request.to_settings()?)
 }
 
 /// Read the table, run the set, print; write the figures when asked.
@@ -138,72 +104,28 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Stored samples drawn in the corner plot at most (thinned evenly).
-const CORNER_POINTS: usize = 1000;
-
 fn write_plots(dir: &Path, report: &SensitivityReport) -> anyhow::Result<()> {
     std::fs::create_dir_all(dir)?;
-    let figure = EccentricityFigure {
-        panels: report
-            .runs
-            .iter()
-            .map(|run| EccentricityPanel {
-                title: run.summary.prior_label.clone(),
-                e: run.summary.density.e.clone(),
-                posterior: run.summary.density.posterior.clone(),
-                prior: run.summary.density.prior.clone(),
-                median: Some(run.summary.median),
-            })
-            .collect(),
-        columns: 3,
-        reference: Some(("least squares".into(), report.least_squares.e)),
-    };
-    let rows = report.runs.len().div_ceil(3).max(1) as u32;
     let path = dir.join("posterior-e.svg");
     {
-        let root = SVGBackend::new(&path, (1200, 300 * rows)).into_drawing_area();
-        draw_eccentricity_posteriors(&root, &figure)
+        let size = eccentricity_figure_size(report.runs.len());
+        let root = SVGBackend::new(&path, size).into_drawing_area();
+        draw_eccentricity_posteriors(&root, &eccentricity_figure(report))
             .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
     }
     for (i, run) in report.runs.iter().enumerate() {
-        let chains = &run.chains;
-        let dim = chains.dim;
-        let names = &run.parameter_names;
-        let total = chains.n_walkers * chains.n_stored_steps;
-        let stride = total.div_ceil(CORNER_POINTS).max(1);
-        let samples: Vec<Vec<f64>> = (0..dim)
-            .map(|p| {
-                chains
-                    .flat_parameter(p)
-                    .into_iter()
-                    .step_by(stride)
-                    .collect()
-            })
-            .collect();
-        let corner = CornerFigure {
-            names: names.clone(),
-            samples,
-            reference: Some(run.start.point.clone()),
-        };
+        let dim = run.chains.dim;
         let path = dir.join(format!("corner-{}.svg", i + 1));
         {
-            let side = (160 * dim as u32).max(480);
-            let root = SVGBackend::new(&path, (side, side)).into_drawing_area();
-            draw_corner(&root, &corner).map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
+            let root = SVGBackend::new(&path, corner_figure_size(dim)).into_drawing_area();
+            draw_corner(&root, &corner_figure(run, CORNER_POINTS))
+                .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
         }
-        let traces = TraceFigure {
-            parameters: (0..dim)
-                .map(|p| ParameterTraces {
-                    name: names[p].clone(),
-                    walkers: chains.parameter_traces(p),
-                })
-                .collect(),
-            step_label: "stored step after burn-in".into(),
-        };
         let path = dir.join(format!("traces-{}.svg", i + 1));
         {
-            let root = SVGBackend::new(&path, (1000, 110 * dim as u32 + 40)).into_drawing_area();
-            draw_traces(&root, &traces).map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
+            let root = SVGBackend::new(&path, trace_figure_size(dim)).into_drawing_area();
+            draw_traces(&root, &trace_figure(run))
+                .map_err(|e| anyhow::anyhow!("{}: {e}", path.display()))?;
         }
     }
     Ok(())

@@ -14,6 +14,8 @@ mod palette;
 mod periodogram;
 mod phase;
 mod posterior;
+#[cfg(feature = "core")]
+mod sensitivity;
 mod traces;
 mod velocity;
 
@@ -31,6 +33,11 @@ pub use phase::{draw_phase_fold, PhaseFoldFigure, PhaseSeries};
 /// plotters itself, so adapters can build drawing areas on their own backend.
 pub use plotters;
 pub use posterior::{draw_eccentricity_posteriors, EccentricityFigure, EccentricityPanel};
+#[cfg(feature = "core")]
+pub use sensitivity::{
+    corner_figure, corner_figure_size, eccentricity_figure, eccentricity_figure_size, trace_figure,
+    trace_figure_size, CORNER_POINTS, ECCENTRICITY_COLUMNS,
+};
 pub use traces::{draw_traces, ParameterTraces, TraceFigure};
 pub use velocity::{draw_velocities, ModelCurve, VelocityFigure, VelocitySeries};
 

@@ -12,12 +12,14 @@ mod canvas;
 mod dataset;
 mod demo;
 mod fit;
+mod priors;
 
 pub use audit::{audit_settings_for, default_audit_settings, AuditRun};
 pub use bench::KeplerBench;
 pub use dataset::{CurveElements, Dataset};
 pub use demo::demo_tables;
 pub use fit::FitSettings;
+pub use priors::{default_prior_specs, PriorSet};
 
 use serde::Serialize;
 use wasm_bindgen::prelude::*;

@@ -25,7 +25,7 @@
 //! limit is given: BF₀₁ < 3/(ESS · q) at 95 % ("rule of three", Hanley & Lippman-Hand 1983,
 //! JAMA 249, 1743). The ratio at the next larger ball is compared as a stability check.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::priors::EccentricityPrior;
 
@@ -36,7 +36,7 @@ pub const BALL_PRIOR_MASSES: [f64; 5] = [0.005, 0.01, 0.02, 0.05, 0.1];
 pub const MIN_BALL_SAMPLES: usize = 100;
 
 /// The mass ratio at one ball.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct BallRatio {
     /// Ball radius in e (ball = {e < ε}).
     pub epsilon: f64,
@@ -53,7 +53,7 @@ pub struct BallRatio {
 }
 
 /// How the Bayes factor came out.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum BayesFactorStatus {
     /// BF₀₁ estimated with its error.
@@ -65,7 +65,7 @@ pub enum BayesFactorStatus {
 }
 
 /// The Bayes factor BF₀₁ (circular over eccentric) by the Savage–Dickey ball ratio.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SavageDickey {
     /// Outcome.
     pub status: BayesFactorStatus,

@@ -10,11 +10,14 @@
 //! * [`run`] — one run ([`posterior_eccentricity`], [`run_posterior`]) and the set
 //!   ([`prior_sensitivity`], [`default_prior_set`]).
 //! * [`spec`] — priors written as text ([`parse_prior_spec`]).
+//! * [`request`] — a set asked for in plain terms ([`SensitivityRequest`]), shared by the command
+//!   line and the page.
 //!
 //! The point, as the project puts it: an eccentricity must not be quoted from one estimator
 //! under one prior.
 
 pub mod bayes;
+pub mod request;
 pub mod run;
 pub mod spec;
 pub mod start;
@@ -30,12 +33,14 @@ use crate::sampler::SamplerError;
 pub use bayes::{
     savage_dickey, savage_dickey_ball_ratio, BallRatio, BayesFactorStatus, SavageDickey,
 };
+pub use request::SensitivityRequest;
 pub use run::{
-    default_prior_set, fast_sampler_settings, method_notes, posterior_eccentricity,
-    prior_sensitivity, run_posterior, LeastSquaresEccentricity, PosteriorProgress, PosteriorRun,
-    SensitivityReport, SensitivitySettings,
+    assemble_sensitivity_report, default_prior_set, fast_sampler_settings, method_notes,
+    posterior_eccentricity, prior_sensitivity, run_posterior, sensitivity_run, sensitivity_start,
+    LeastSquaresEccentricity, PosteriorProgress, PosteriorRun, SensitivityReport,
+    SensitivitySettings, SensitivityStart,
 };
-pub use spec::{parse_prior_spec, SPEC_SHAPES};
+pub use spec::{parse_prior_spec, DEFAULT_PRIOR_SPECS, SPEC_SHAPES};
 pub use start::{start_from_fit, PosteriorStart};
 pub use summary::{
     kl_divergence_binned, kl_divergence_histogram, prior_label, summarise_eccentricity,
@@ -108,6 +113,40 @@ pub enum PosteriorError {
          compared through the Bayes factor BF01 reported for each prior with e_min = 0"
     )]
     CircularInSet,
+    /// A prior index beyond the set.
+    #[error("prior {index} asked for, but the set has {n_priors} prior(s) (0-based index)")]
+    PriorIndex {
+        /// The index asked for (0-based).
+        index: usize,
+        /// Priors in the set.
+        n_priors: usize,
+    },
+    /// A report was to be assembled from the wrong number of runs.
+    #[error("{runs} run(s) given for a set of {n_priors} prior(s)")]
+    RunCount {
+        /// Runs given.
+        runs: usize,
+        /// Priors in the set.
+        n_priors: usize,
+    },
+    /// An entry of a list of priors is wrong.
+    #[error("prior {number} of the list: {error}")]
+    PriorInList {
+        /// 1-based position in the list as given.
+        number: usize,
+        /// What is wrong with it.
+        error: Box<PosteriorError>,
+    },
+    /// A sampler or start setting of a request is impossible.
+    #[error("{setting} = {value}: {reason}")]
+    RequestSetting {
+        /// The setting, as named in the request.
+        setting: &'static str,
+        /// The value given.
+        value: f64,
+        /// What it must be.
+        reason: &'static str,
+    },
     /// The observer cancelled.
     #[error("cancelled while sampling prior {prior_index} after {steps_done} steps")]
     Cancelled {

@@ -4,7 +4,7 @@
 use std::fmt;
 use std::ops::ControlFlow;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use crate::priors::{EccentricityPriorSettings, EccentricityShape};
@@ -49,7 +49,7 @@ pub struct PosteriorProgress {
 }
 
 /// One run's result: the summary of e, the chains and the parameter names.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PosteriorRun {
     /// What the run says about e (companion 1).
     pub summary: EccentricitySummary,
@@ -193,7 +193,7 @@ impl Default for SensitivitySettings {
 }
 
 /// The least-squares figures shown beside the posteriors.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct LeastSquaresEccentricity {
     /// Period [d].
     pub period: f64,
@@ -235,13 +235,23 @@ pub fn method_notes() -> Vec<String> {
     ]
 }
 
-/// Runs the least-squares fit (for the start) and then the sampler under each prior of
-/// `settings.priors`, all with the same seed. `observer` sees progress and may cancel.
-pub fn prior_sensitivity(
+/// The shared start of a prior-sensitivity set: the least-squares fit every prior's run starts
+/// from (see [`sensitivity_start`]).
+#[derive(Debug, Clone)]
+pub struct SensitivityStart {
+    /// The least-squares report.
+    pub fit: FitReport,
+    /// Its figures for e, as reported.
+    pub least_squares: LeastSquaresEccentricity,
+}
+
+/// Checks the set (not empty, no circular prior, every prior valid) and runs the least-squares
+/// fit that every run of [`sensitivity_run`] starts from. Deterministic: the same data and
+/// settings give the same start in every process, so runs may be spread over workers.
+pub fn sensitivity_start(
     data: &FitData,
     settings: &SensitivitySettings,
-    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
-) -> Result<SensitivityReport, PosteriorError> {
+) -> Result<SensitivityStart, PosteriorError> {
     if settings.priors.is_empty() {
         return Err(PosteriorError::EmptyPriorSet);
     }
@@ -262,39 +272,73 @@ pub fn prior_sensitivity(
         trend: settings.posterior.trend,
         ..settings.fit.clone()
     };
-    let report: FitReport = fit_orbit(data, &fit_options)?;
-    let first = &report.eccentric.companions[0];
+    let fit: FitReport = fit_orbit(data, &fit_options)?;
+    let first = &fit.eccentric.companions[0];
     let least_squares = LeastSquaresEccentricity {
         period: first.period.value,
         e: first.eccentricity.value,
         e_error: first.eccentricity.error,
         lucy_sweeney_probability: first.lucy_sweeney.map(|l| l.probability),
     };
-    let mut runs = Vec::with_capacity(settings.priors.len());
-    for (i, prior) in settings.priors.iter().enumerate() {
-        let posterior = settings.posterior.with_eccentricity(*prior);
-        let effective = posterior.effective_eccentricity().validate()?;
-        let start = start_from_fit(
-            &report,
-            &posterior,
-            &effective,
-            data.uncertainties(),
-            data.n_instruments(),
-        )?;
-        runs.push(run_posterior(
-            data,
-            &posterior,
-            &settings.sampler,
-            &start,
-            observer,
-            (i, settings.priors.len()),
-        )?);
+    Ok(SensitivityStart { fit, least_squares })
+}
+
+/// The run of prior `prior_index` of the set, from the shared `start`; `observer` sees progress
+/// (with this prior's index) and may cancel. Independent of the other priors' runs.
+pub fn sensitivity_run(
+    data: &FitData,
+    settings: &SensitivitySettings,
+    start: &SensitivityStart,
+    prior_index: usize,
+    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+) -> Result<PosteriorRun, PosteriorError> {
+    let n_priors = settings.priors.len();
+    let prior = settings
+        .priors
+        .get(prior_index)
+        .ok_or(PosteriorError::PriorIndex {
+            index: prior_index,
+            n_priors,
+        })?;
+    let posterior = settings.posterior.with_eccentricity(*prior);
+    let effective = posterior.effective_eccentricity().validate()?;
+    let walker_start = start_from_fit(
+        &start.fit,
+        &posterior,
+        &effective,
+        data.uncertainties(),
+        data.n_instruments(),
+    )?;
+    run_posterior(
+        data,
+        &posterior,
+        &settings.sampler,
+        &walker_start,
+        observer,
+        (prior_index, n_priors),
+    )
+}
+
+/// Assembles the report of a set from its runs, given in prior order (one per prior of
+/// `settings`): the spread of the medians and the method notes are added here, so a set run in
+/// one process and a set run prior by prior elsewhere give the same report.
+pub fn assemble_sensitivity_report(
+    n_points: usize,
+    least_squares: LeastSquaresEccentricity,
+    settings: &SensitivitySettings,
+    runs: Vec<PosteriorRun>,
+) -> Result<SensitivityReport, PosteriorError> {
+    if runs.len() != settings.priors.len() {
+        return Err(PosteriorError::RunCount {
+            runs: runs.len(),
+            n_priors: settings.priors.len(),
+        });
     }
     let medians = runs.iter().map(|r| r.summary.median);
     let median_spread =
         medians.clone().fold(f64::NEG_INFINITY, f64::max) - medians.fold(f64::INFINITY, f64::min);
     Ok(SensitivityReport {
-        n_points: data.n_points(),
+        n_points,
         least_squares,
         settings: settings.posterior,
         sampler: settings.sampler,
@@ -302,6 +346,22 @@ pub fn prior_sensitivity(
         median_spread,
         methods: method_notes(),
     })
+}
+
+/// Runs the least-squares fit (for the start) and then the sampler under each prior of
+/// `settings.priors`, all with the same seed. `observer` sees progress and may cancel.
+/// Composed of [`sensitivity_start`], [`sensitivity_run`] per prior and
+/// [`assemble_sensitivity_report`].
+pub fn prior_sensitivity(
+    data: &FitData,
+    settings: &SensitivitySettings,
+    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+) -> Result<SensitivityReport, PosteriorError> {
+    let start = sensitivity_start(data, settings)?;
+    let runs = (0..settings.priors.len())
+        .map(|i| sensitivity_run(data, settings, &start, i, observer))
+        .collect::<Result<Vec<_>, _>>()?;
+    assemble_sensitivity_report(data.n_points(), start.least_squares, settings, runs)
 }
 
 fn interval(i: [f64; 2]) -> String {
@@ -420,5 +480,101 @@ impl fmt::Display for SensitivityReport {
             writeln!(f, "- {note}")?;
         }
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::RvModel;
+    use crate::orbit::OrbitalElements;
+    use crate::posterior::SensitivityRequest;
+
+    /// An eccentric orbit (P = 40 d, K = 30 m/s, e = 0.3) at 30 uneven epochs, with a
+    /// deterministic ±1.5 m/s wiggle standing in for noise.
+    fn data() -> FitData {
+        let times: Vec<f64> = (0..30)
+            .map(|i| 100.0 + 7.3 * i as f64 + 2.1 * libm::sin(1.3 * i as f64))
+            .collect();
+        let orbit = OrbitalElements::new(40.0, 30.0, 0.3, 1.0, 95.0).unwrap();
+        let model = RvModel::new(vec![orbit], vec![5.0], 0.0, 100.0).unwrap();
+        let mut velocities = vec![0.0; times.len()];
+        model
+            .velocities_one_instrument(&times, 0, &mut velocities)
+            .unwrap();
+        for (i, v) in velocities.iter_mut().enumerate() {
+            *v += 1.5 * libm::sin(2.7 * i as f64);
+        }
+        let errors = vec![2.0; times.len()];
+        FitData::new(&times, &velocities, &errors, &[0; 30], &["a".into()])
+    }
+
+    fn short_settings() -> SensitivitySettings {
+        SensitivityRequest {
+            priors: vec!["uniform:0..0.8".into(), "rayleigh(0.3)".into()],
+            walkers: 16,
+            steps: 60,
+            burn: 20,
+            seed: 5,
+            period: Some(40.0),
+            ..SensitivityRequest::default()
+        }
+        .to_settings()
+        .unwrap()
+    }
+
+    #[test]
+    fn runs_done_separately_and_in_any_order_assemble_to_the_same_report() {
+        // What the page relies on when it spreads the priors over workers: each run depends
+        // only on the data, the settings and its index, not on the runs before it.
+        let data = data();
+        let settings = short_settings();
+        let whole =
+            prior_sensitivity(&data, &settings, &mut |_| ControlFlow::Continue(())).unwrap();
+        let start = sensitivity_start(&data, &settings).unwrap();
+        let mut continue_ = |_| ControlFlow::Continue(());
+        let second = sensitivity_run(&data, &settings, &start, 1, &mut continue_).unwrap();
+        let first = sensitivity_run(&data, &settings, &start, 0, &mut continue_).unwrap();
+        let parts = assemble_sensitivity_report(
+            data.n_points(),
+            start.least_squares,
+            &settings,
+            vec![first, second],
+        )
+        .unwrap();
+        // Debug text compares every field bit for bit (f64 Debug is shortest-round-trip) and
+        // treats NaN (e.g. an undefined Bayes-factor error) as equal to NaN, unlike `==`.
+        assert_eq!(format!("{parts:?}"), format!("{whole:?}"));
+        assert_eq!(
+            whole.median_spread,
+            (whole.runs[0].summary.median - whole.runs[1].summary.median).abs()
+        );
+    }
+
+    #[test]
+    fn wrong_index_and_wrong_run_count_are_errors() {
+        let data = data();
+        let settings = short_settings();
+        let start = sensitivity_start(&data, &settings).unwrap();
+        let err = sensitivity_run(&data, &settings, &start, 2, &mut |_| {
+            ControlFlow::Continue(())
+        })
+        .unwrap_err();
+        assert_eq!(
+            err,
+            PosteriorError::PriorIndex {
+                index: 2,
+                n_priors: 2
+            }
+        );
+        let err = assemble_sensitivity_report(30, start.least_squares, &settings, Vec::new())
+            .unwrap_err();
+        assert_eq!(
+            err,
+            PosteriorError::RunCount {
+                runs: 0,
+                n_priors: 2
+            }
+        );
     }
 }

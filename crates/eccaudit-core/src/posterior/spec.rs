@@ -10,6 +10,17 @@ use super::PosteriorError;
 pub const SPEC_SHAPES: &str = "uniform, beta(a,b), kipping2013, rayleigh(sigma), \
 halfnormal(sigma), loguniform (needs :E_MIN..E_MAX with E_MIN > 0), ecosw (p ∝ e), sqrtecosw";
 
+/// [`super::default_prior_set`] written as specs, in the same order (for the page's editable
+/// list and the command line's help).
+pub const DEFAULT_PRIOR_SPECS: [&str; 6] = [
+    "uniform:0..0.99",
+    "uniform:0..0.8",
+    "uniform:0..0.5",
+    "kipping2013",
+    "rayleigh(0.3)",
+    "ecosw",
+];
+
 /// Parses one prior spec and validates it. Without a truncation the range is [0, 0.99] (the
 /// model's domain).
 pub fn parse_prior_spec(spec: &str) -> Result<EccentricityPriorSettings, PosteriorError> {
@@ -117,6 +128,15 @@ pub fn parse_prior_spec(spec: &str) -> Result<EccentricityPriorSettings, Posteri
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn default_specs_read_as_the_default_set() {
+        let parsed: Vec<_> = DEFAULT_PRIOR_SPECS
+            .iter()
+            .map(|s| parse_prior_spec(s).unwrap())
+            .collect();
+        assert_eq!(parsed, super::super::default_prior_set());
+    }
 
     #[test]
     fn specs_parse_to_the_named_shapes() {

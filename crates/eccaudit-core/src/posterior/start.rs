@@ -1,7 +1,7 @@
 //! Where the walkers start: the least-squares optimum, a ball from its formal errors, and the
 //! eccentricity moved inside the prior's truncation when the optimum lies outside it.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::fit::{FitReport, Solution};
 use crate::priors::EccentricityPrior;
@@ -11,7 +11,7 @@ use super::PosteriorError;
 
 /// Start point and initial-ball scales for [`crate::sampler::EnsembleState::new`], in the
 /// parameter order of [`super::RvPosterior`].
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PosteriorStart {
     /// The centre of the walker ball.
     pub point: Vec<f64>,

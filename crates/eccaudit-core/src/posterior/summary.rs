@@ -2,7 +2,7 @@
 //! intervals, P(e < 0.05), the information gain prior → posterior, the Savage–Dickey Bayes
 //! factor, and density curves for plotting — each with its Monte-Carlo error and stated method.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::priors::{EccentricityPrior, EccentricityPriorSettings};
 use crate::sampler::{ess_bulk, ess_tail, Diagnostics};
@@ -32,7 +32,7 @@ const KDE_BIN_WIDTH: f64 = 1e-3;
 /// Information Theory, 2nd ed., §2.8 data-processing inequality), so the binned value is a lower
 /// bound of the continuous one, close when the posterior is wider than a few bins
 /// (bin width (e_max − e_min)/50).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct KlEstimate {
     /// Bias-corrected estimate [nats].
     pub nats: f64,
@@ -106,7 +106,7 @@ pub fn kl_divergence_binned(
 }
 
 /// Posterior and prior densities of e on a fixed grid, for plotting.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DensityCurves {
     /// The grid: [`DENSITY_GRID_POINTS`] values 0, 0.005, …, 1.
     pub e: Vec<f64>,
@@ -119,7 +119,7 @@ pub struct DensityCurves {
 }
 
 /// The cost of a run.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct SamplerCost {
     /// Walkers.
     pub n_walkers: usize,
@@ -132,7 +132,7 @@ pub struct SamplerCost {
 }
 
 /// What one posterior run says about the eccentricity of one companion.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct EccentricitySummary {
     /// The eccentricity prior as sampled (e_max lowered to the model's domain if needed).
     pub prior: EccentricityPriorSettings,

@@ -21,7 +21,7 @@
 
 use std::cell::{Cell, RefCell};
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::fit::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
 use crate::kepler::TWO_PI;
@@ -35,7 +35,7 @@ use super::PosteriorError;
 const LN_TWO_PI: f64 = 1.837_877_066_409_345_5;
 
 /// What is sampled and under which priors.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct PosteriorSettings {
     /// Priors on P, K, jitter, γ and e (every bound explicit; see [`OrbitPriorSettings`]).
     pub priors: OrbitPriorSettings,

@@ -183,7 +183,7 @@ pub struct Progress {
 /// `samples[(step * n_walkers + walker) * dim ..][..dim]` and its
 /// log-density is `log_densities[step * n_walkers + walker]`; `step` counts
 /// stored (thinned, post-burn-in) steps.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
 pub struct Chains {
     /// Number of walkers.
     pub n_walkers: usize,

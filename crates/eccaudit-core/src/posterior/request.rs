@@ -1,0 +1,181 @@
+//! A prior-sensitivity set asked for in plain terms (prior specs as text, walkers, steps, seed,
+//! bounds of the other priors), turned into [`SensitivitySettings`] in one place so that the
+//! command line (`eccaudit priors`) and the page build identical settings from identical input.
+
+use serde::{Deserialize, Serialize};
+
+use crate::fit::FitOptions;
+use crate::priors::ScalarPrior;
+use crate::sampler::SamplerSettings;
+
+use super::run::{default_prior_set, SensitivitySettings};
+use super::spec::parse_prior_spec;
+use super::target::PosteriorSettings;
+use super::PosteriorError;
+
+/// What a user asks for. Absent fields take the defaults below; an unknown field is an error.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct SensitivityRequest {
+    /// Eccentricity priors as text specs (see [`parse_prior_spec`]); empty means
+    /// [`default_prior_set`].
+    pub priors: Vec<String>,
+    /// Walkers (default 32).
+    pub walkers: usize,
+    /// Stored steps per walker after burn-in (default 4000).
+    pub steps: usize,
+    /// Burn-in steps (default 1000).
+    pub burn: usize,
+    /// Seed of the sampler, the same for every prior (default 1).
+    pub seed: u64,
+    /// Starting period [d] of the least-squares start (skips the period search); none by default.
+    pub period: Option<f64>,
+    /// Period prior, log-uniform on [min, max] days (default [1, 10⁴]).
+    pub period_range: [f64; 2],
+    /// Largest K [m/s] of its modified Jeffreys prior with knee 1 m/s (default 2·10⁵).
+    pub k_max: f64,
+    /// Largest jitter [m/s] of its modified Jeffreys prior with knee 1 m/s (default 10³).
+    pub jitter_max: f64,
+    /// Sample a jitter (default true).
+    pub jitter: bool,
+    /// Sample a linear trend, uniform on ±10 m/s/d (default false).
+    pub trend: bool,
+}
+
+impl Default for SensitivityRequest {
+    fn default() -> Self {
+        Self {
+            priors: Vec::new(),
+            walkers: 32,
+            steps: 4000,
+            burn: 1000,
+            seed: 1,
+            period: None,
+            period_range: [1.0, 1.0e4],
+            k_max: 2.0e5,
+            jitter_max: 1.0e3,
+            jitter: true,
+            trend: false,
+        }
+    }
+}
+
+impl SensitivityRequest {
+    /// The settings of [`super::prior_sensitivity`] for this request. A bad prior spec is
+    /// reported as [`PosteriorError::PriorInList`] with its 1-based position in `priors`.
+    pub fn to_settings(&self) -> Result<SensitivitySettings, PosteriorError> {
+        let priors = if self.priors.is_empty() {
+            default_prior_set()
+        } else {
+            self.priors
+                .iter()
+                .enumerate()
+                .map(|(i, spec)| {
+                    parse_prior_spec(spec).map_err(|error| PosteriorError::PriorInList {
+                        number: i + 1,
+                        error: Box::new(error),
+                    })
+                })
+                .collect::<Result<Vec<_>, _>>()?
+        };
+        let mut posterior = PosteriorSettings {
+            jitter: self.jitter,
+            trend: self.trend,
+            ..PosteriorSettings::default()
+        };
+        posterior.priors.period = ScalarPrior::LogUniform {
+            min: self.period_range[0],
+            max: self.period_range[1],
+        };
+        posterior.priors.semi_amplitude = ScalarPrior::ModifiedJeffreys {
+            knee: 1.0,
+            max: self.k_max,
+        };
+        posterior.priors.jitter = ScalarPrior::ModifiedJeffreys {
+            knee: 1.0,
+            max: self.jitter_max,
+        };
+        posterior.priors.validate()?;
+        if let Some(p) = self.period {
+            if !(p > 0.0 && p.is_finite()) {
+                return Err(PosteriorError::RequestSetting {
+                    setting: "period",
+                    value: p,
+                    reason: "must be a positive number of days",
+                });
+            }
+        }
+        Ok(SensitivitySettings {
+            posterior,
+            priors,
+            sampler: SamplerSettings {
+                n_walkers: self.walkers,
+                n_steps: self.steps,
+                n_burn: self.burn,
+                seed: self.seed,
+                ..SamplerSettings::default()
+            },
+            fit: FitOptions {
+                initial_periods: self.period.into_iter().collect(),
+                ..FitOptions::default()
+            },
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::priors::EccentricityShape;
+
+    #[test]
+    fn empty_request_gives_the_default_set_and_sampler() {
+        let settings = SensitivityRequest::default().to_settings().unwrap();
+        assert_eq!(settings.priors, default_prior_set());
+        assert_eq!(settings.sampler.n_walkers, 32);
+        assert_eq!(settings.sampler.n_steps, 4000);
+        assert_eq!(settings.sampler.n_burn, 1000);
+        assert!(settings.posterior.jitter);
+        assert!(settings.fit.initial_periods.is_empty());
+    }
+
+    #[test]
+    fn specs_are_read_in_order_and_a_bad_one_is_named_by_position() {
+        let request = SensitivityRequest {
+            priors: vec!["uniform:0..0.5".into(), "rayleigh(0.2)".into()],
+            ..SensitivityRequest::default()
+        };
+        let settings = request.to_settings().unwrap();
+        assert_eq!(settings.priors[0].e_max, 0.5);
+        assert_eq!(
+            settings.priors[1].shape,
+            EccentricityShape::Rayleigh { sigma: 0.2 }
+        );
+        let bad = SensitivityRequest {
+            priors: vec!["uniform".into(), "beta(2)".into()],
+            ..SensitivityRequest::default()
+        };
+        match bad.to_settings() {
+            Err(PosteriorError::PriorInList { number, error }) => {
+                assert_eq!(number, 2);
+                assert!(matches!(*error, PosteriorError::PriorSpec { .. }));
+            }
+            other => panic!("expected PriorInList, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn unknown_fields_and_bad_periods_are_refused() {
+        assert!(serde_json::from_str::<SensitivityRequest>(r#"{"walker": 8}"#).is_err());
+        let request: SensitivityRequest =
+            serde_json::from_str(r#"{"walkers": 16, "period": -3}"#).unwrap();
+        assert_eq!(request.walkers, 16);
+        assert!(matches!(
+            request.to_settings(),
+            Err(PosteriorError::RequestSetting {
+                setting: "period",
+                ..
+            })
+        ));
+    }
+}

@@ -1,0 +1,25 @@
+// eccaudit prior-set worker: runs ONE prior of a sensitivity set off the main thread.
+// Message in: { requestJson, priorIndex, table: { text, sourceName, velocityUnit, timeConvention } }.
+// Messages out: { type: "progress", done, total }, then { type: "result", part } or
+// { type: "error", message }. The page cancels by terminating the worker.
+import init, { Dataset } from "./pkg/eccaudit_web.js";
+
+const ready = init();
+
+self.addEventListener("message", async (event) => {
+  const { requestJson, priorIndex, table } = event.data;
+  let dataset = null;
+  try {
+    await ready;
+    dataset = Dataset.parse(table.text, table.sourceName, table.velocityUnit, table.timeConvention);
+    const part = dataset.runPriorOfSet(requestJson, priorIndex, (done, total) => {
+      self.postMessage({ type: "progress", done, total });
+    });
+    const chains = part.chains;
+    self.postMessage({ type: "result", part }, [chains.samples.buffer, chains.log_densities.buffer]);
+  } catch (err) {
+    self.postMessage({ type: "error", message: err instanceof Error ? err.message : String(err) });
+  } finally {
+    if (dataset) dataset.free();
+  }
+});
