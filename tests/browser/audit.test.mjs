@@ -63,10 +63,12 @@ test("a small audit of Corvin 4 in the page gives exactly the command line's rep
 
   const paragraph = await page.textContent("#statement-paragraph");
   assert.ok(paragraph.length > 100, paragraph);
-  // Two cells × the estimator outputs (least squares, Lucy–Sweeney).
+  // Two cells × the estimator outputs: least squares, Lucy–Sweeney, and the default
+  // posterior (uniform prior) as median, mean and mode.
   const rows = await page.$$eval("#audit-summary tbody tr", (trs) => trs.map((tr) => [...tr.children].map((td) => td.textContent)));
-  assert.equal(rows.length, 4, JSON.stringify(rows));
-  assert.deepEqual(rows.map((r) => r[1]), ["0.000", "0.000", "0.300", "0.300"]);
+  const outputs = ["lsq", "lucy_sweeney", "posterior_uniform_median", "posterior_uniform_mean", "posterior_uniform_mode"];
+  assert.deepEqual(rows.map((r) => r[0]), [...outputs, ...outputs], JSON.stringify(rows));
+  assert.deepEqual(rows.map((r) => r[1]), [...outputs.map(() => "0.000"), ...outputs.map(() => "0.300")]);
   assert.ok(await app.paintedPixels("#bias-canvas") > 5000);
   assert.ok(await app.paintedPixels("#distributions-canvas") > 5000);
 
