@@ -73,6 +73,7 @@ impl Estimator for PosteriorEstimator {
         let extra_names = vec![
             "p_e_below_0.05".to_string(),
             "bf01".to_string(),
+            "bf01_is_upper_limit".to_string(),
             "converged".to_string(),
         ];
         ["median", "mean", "mode"]
@@ -135,8 +136,15 @@ impl Estimator for PosteriorEstimator {
         let extra = vec![
             summary.p_nearly_circular,
             match summary.bayes_factor.status {
-                BayesFactorStatus::Estimated => summary.bayes_factor.bf01,
-                BayesFactorStatus::UpperLimit | BayesFactorStatus::Undefined => f64::NAN,
+                BayesFactorStatus::Estimated | BayesFactorStatus::UpperLimit => {
+                    summary.bayes_factor.bf01
+                }
+                BayesFactorStatus::Undefined => f64::NAN,
+            },
+            if summary.bayes_factor.status == BayesFactorStatus::UpperLimit {
+                1.0
+            } else {
+                0.0
             },
             if summary.converged { 1.0 } else { 0.0 },
         ];

@@ -337,6 +337,50 @@ fn paragraph(s: &EccentricityStatement, summary: &InjectionSummary) -> String {
         )),
         (None, _) => {}
     }
+    // The Savage–Dickey Bayes factor of each posterior estimator (once per prior).
+    for (calibration, info) in s.calibrations.iter().zip(&summary.outputs) {
+        let Some(bf_index) = info.extra_names.iter().position(|n| n == "bf01") else {
+            continue;
+        };
+        if !calibration.name.ends_with("_median") {
+            continue;
+        }
+        let upper_limit = calibration
+            .observed
+            .extra
+            .get(bf_index + 1)
+            .is_some_and(|&flag| flag == 1.0);
+        match calibration.observed.extra.get(bf_index) {
+            Some(bf01) if bf01.is_finite() && upper_limit => text.push_str(&format!(
+                " Under the prior {}, no posterior sample lies near e = 0, so the Savage–Dickey \
+                 Bayes factor of a circular over an eccentric orbit is only bounded: BF01 < {bf01:.3} \
+                 ({}).",
+                calibration.prior,
+                if *bf01 < 1.0 / 3.0 {
+                    "the data favour an eccentric orbit"
+                } else {
+                    "the bound does not decide between them"
+                }
+            )),
+            Some(bf01) if bf01.is_finite() => text.push_str(&format!(
+                " Under the prior {}, the Savage–Dickey Bayes factor of a circular over an eccentric \
+                 orbit is BF01 = {bf01:.3} ({}).",
+                calibration.prior,
+                if *bf01 < 1.0 / 3.0 {
+                    "the data favour an eccentric orbit"
+                } else if *bf01 > 3.0 {
+                    "the data favour a circular orbit"
+                } else {
+                    "the data do not decide between them"
+                }
+            )),
+            _ => text.push_str(&format!(
+                " Under the prior {}, the Savage–Dickey Bayes factor is not defined (the prior \
+                 excludes e = 0).",
+                calibration.prior
+            )),
+        }
+    }
     text.trim_end().to_string()
 }
 
