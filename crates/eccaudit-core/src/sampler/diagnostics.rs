@@ -30,7 +30,7 @@ const SOKAL_WINDOW_C: f64 = 5.0;
 /// CAMCOS 5, 65, §4), with the normalised autocorrelation function averaged
 /// over walkers before summing, as in Foreman-Mackey et al. (2013, PASP 125,
 /// 306, §3 and their `autocorr` module): M is the smallest lag with
-/// M ≥ 5 τ(M). Autocovariances by FFT.
+/// M ≥ 5 τ(M). Autocovariances by direct sums, only up to the window.
 pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEstimate {
     let n = common_length(traces);
     if n < 2 {
@@ -40,31 +40,32 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
             window_found: false,
         };
     }
-    let mut mean_rho = vec![0.0; n];
-    let mut used = 0usize;
-    for trace in traces {
-        let acov = autocovariance(&trace[..n]);
-        if acov[0].is_nan() || acov[0] <= 0.0 {
-            continue;
-        }
-        for (m, a) in mean_rho.iter_mut().zip(&acov) {
-            *m += a / acov[0];
-        }
-        used += 1;
-    }
-    if used == 0 {
+    // Only chains with positive variance contribute; their autocorrelations are averaged.
+    let acov = LazyAutocovariance::new(traces, n);
+    let used: Vec<usize> = (0..traces.len())
+        .filter(|&c| {
+            let v = acov.at(c, 0);
+            !v.is_nan() && v > 0.0
+        })
+        .collect();
+    if used.is_empty() {
         return AutocorrelationEstimate {
             tau: f64::NAN,
             window: 0,
             window_found: false,
         };
     }
-    for m in &mut mean_rho {
-        *m /= used as f64;
-    }
+    let variances: Vec<f64> = used.iter().map(|&c| acov.at(c, 0)).collect();
+    let mean_rho = |lag: usize| {
+        used.iter()
+            .zip(&variances)
+            .map(|(&c, v)| acov.at(c, lag) / v)
+            .sum::<f64>()
+            / used.len() as f64
+    };
     let mut tau = 1.0;
-    for (window, rho) in mean_rho.iter().enumerate().skip(1) {
-        tau += 2.0 * rho;
+    for window in 1..n {
+        tau += 2.0 * mean_rho(window);
         if window as f64 >= SOKAL_WINDOW_C * tau {
             return AutocorrelationEstimate {
                 tau,
@@ -158,10 +159,11 @@ pub fn effective_sample_size(traces: &[Vec<f64>]) -> f64 {
     if m == 0 || n < 4 {
         return f64::NAN;
     }
-    let acov: Vec<Vec<f64>> = traces.iter().map(|t| autocovariance(&t[..n])).collect();
+    let acov = LazyAutocovariance::new(traces, n);
     let chain_means: Vec<f64> = traces.iter().map(|t| mean(&t[..n])).collect();
     let nf = n as f64;
-    let mean_var = acov.iter().map(|a| a[0]).sum::<f64>() / m as f64 * nf / (nf - 1.0);
+    let mean_acov = |t: usize| (0..m).map(|c| acov.at(c, t)).sum::<f64>() / m as f64;
+    let mean_var = mean_acov(0) * nf / (nf - 1.0);
     let mut var_plus = mean_var * (nf - 1.0) / nf;
     if m > 1 {
         var_plus += sample_variance(&chain_means);
@@ -169,7 +171,6 @@ pub fn effective_sample_size(traces: &[Vec<f64>]) -> f64 {
     if var_plus.is_nan() || var_plus <= 0.0 || !mean_var.is_finite() {
         return f64::NAN;
     }
-    let mean_acov = |t: usize| acov.iter().map(|a| a[t]).sum::<f64>() / m as f64;
     let rho_at = |t: usize| 1.0 - (mean_var - mean_acov(t)) / var_plus;
     let mut rho = vec![0.0; n];
     rho[0] = 1.0;
@@ -564,69 +565,42 @@ fn rank_normalize(chains: &[Vec<f64>]) -> Vec<Vec<f64>> {
     z.chunks(n.max(1)).map(<[f64]>::to_vec).collect()
 }
 
-/// Biased autocovariance γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄) for t = 0..n−1,
-/// by zero-padded FFT (Wiener–Khinchin).
-fn autocovariance(x: &[f64]) -> Vec<f64> {
-    let n = x.len();
-    let size = (2 * n).next_power_of_two();
-    let m = mean(x);
-    let mut re = vec![0.0; size];
-    let mut im = vec![0.0; size];
-    for (r, v) in re.iter_mut().zip(x) {
-        *r = v - m;
-    }
-    fft_in_place(&mut re, &mut im, false);
-    for (r, i) in re.iter_mut().zip(im.iter_mut()) {
-        *r = *r * *r + *i * *i;
-        *i = 0.0;
-    }
-    fft_in_place(&mut re, &mut im, true);
-    re.truncate(n);
-    for r in &mut re {
-        *r /= (size * n) as f64;
-    }
-    re
+/// Biased autocovariances γ_c(t) = (1/n) Σ_{i<n−t} (x_i − x̄)(x_{i+t} − x̄) of several chains,
+/// each computed directly when asked for.
+///
+/// The windows that use them (Sokal's for τ, Geyer's initial sequence for the ESS) stop after a
+/// few autocorrelation times, so the direct sums up to that lag cost less than full FFTs of every
+/// chain (an FFT computes all n lags of each chain whether they are needed or not).
+struct LazyAutocovariance {
+    centred: Vec<Vec<f64>>,
+    n: usize,
 }
 
-/// Iterative radix-2 Cooley–Tukey FFT (Cooley & Tukey 1965, Math. Comp. 19,
-/// 297); `inverse` flips the sign of the exponent and does not scale.
-fn fft_in_place(re: &mut [f64], im: &mut [f64], inverse: bool) {
-    let n = re.len();
-    let mut j = 0;
-    for i in 1..n {
-        let mut bit = n >> 1;
-        while j & bit != 0 {
-            j ^= bit;
-            bit >>= 1;
-        }
-        j |= bit;
-        if i < j {
-            re.swap(i, j);
-            im.swap(i, j);
-        }
+impl LazyAutocovariance {
+    /// The first `n` draws of each trace, centred on their own mean.
+    fn new(traces: &[Vec<f64>], n: usize) -> Self {
+        let centred = traces
+            .iter()
+            .map(|t| {
+                let m = mean(&t[..n]);
+                t[..n].iter().map(|x| x - m).collect()
+            })
+            .collect();
+        LazyAutocovariance { centred, n }
     }
-    let sign = if inverse { 1.0 } else { -1.0 };
-    let mut len = 2;
-    while len <= n {
-        let angle = sign * 2.0 * std::f64::consts::PI / len as f64;
-        let (w_im, w_re) = libm::sincos(angle);
-        for start in (0..n).step_by(len) {
-            let (mut cur_re, mut cur_im) = (1.0, 0.0);
-            for k in 0..len / 2 {
-                let a = start + k;
-                let b = a + len / 2;
-                let t_re = re[b] * cur_re - im[b] * cur_im;
-                let t_im = re[b] * cur_im + im[b] * cur_re;
-                re[b] = re[a] - t_re;
-                im[b] = im[a] - t_im;
-                re[a] += t_re;
-                im[a] += t_im;
-                let next_re = cur_re * w_re - cur_im * w_im;
-                cur_im = cur_re * w_im + cur_im * w_re;
-                cur_re = next_re;
-            }
+
+    /// γ_chain(lag); 0 beyond the last lag.
+    fn at(&self, chain: usize, lag: usize) -> f64 {
+        if lag >= self.n {
+            return 0.0;
         }
-        len <<= 1;
+        let x = &self.centred[chain];
+        let sum: f64 = x[..self.n - lag]
+            .iter()
+            .zip(&x[lag..])
+            .map(|(a, b)| a * b)
+            .sum();
+        sum / self.n as f64
     }
 }
 
@@ -667,13 +641,14 @@ mod tests {
         }
     }
 
-    /// FFT autocovariance equals the direct sum (definition, common practice).
+    /// The lazy autocovariance is the biased estimator γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄)
+    /// (definition, common practice), and 0 beyond the last lag.
     #[test]
-    fn fft_autocovariance_matches_direct_sum() {
+    fn lazy_autocovariance_is_the_biased_estimator() {
         let x: Vec<f64> = (0..37)
             .map(|i| libm::sin(i as f64 * 0.7) + 0.1 * i as f64)
             .collect();
-        let acov = autocovariance(&x);
+        let acov = LazyAutocovariance::new(std::slice::from_ref(&x), x.len());
         let m = mean(&x);
         for t in [0, 1, 5, 36] {
             let direct: f64 = (0..x.len() - t)
@@ -681,11 +656,12 @@ mod tests {
                 .sum::<f64>()
                 / x.len() as f64;
             assert!(
-                (acov[t] - direct).abs() < 1e-12,
+                (acov.at(0, t) - direct).abs() < 1e-12,
                 "lag {t}: {} vs {direct}",
-                acov[t]
+                acov.at(0, t)
             );
         }
+        assert_eq!(acov.at(0, 37), 0.0);
     }
 
     #[test]
