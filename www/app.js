@@ -2,6 +2,7 @@
 import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
 import { wireAudit } from "./audit-view.js";
 import { initPriorsView } from "./priors-view.js";
+import { addFigureExports, addTableExports, stem } from "./exports.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -370,6 +371,34 @@ function wireFit() {
   });
 }
 
+// PNG/SVG under each figure, CSV/JSON under each table of this view (exports.js).
+function wireExports() {
+  const named = (what) => () => `${stem(state.table?.name)}-${what}`;
+  const dataset = () => {
+    if (!state.dataset) throw new Error("load a velocity table first");
+    return state.dataset;
+  };
+  addFigureExports($("velocity-canvas"), {
+    fileStem: named("velocities"),
+    svg: (w, h) => dataset().drawSvg(w, h, state.model),
+  });
+  addFigureExports($("periodogram-canvas"), {
+    fileStem: named("periodogram"),
+    svg: (w, h) => dataset().drawPeriodogramSvg(w, h),
+  });
+  addFigureExports($("phase-canvas"), {
+    fileStem: () => `${named("phase-fold")()}-${Number($("fold-companion").value || "0") + 1}`,
+    svg: (w, h) => dataset().drawPhaseFoldSvg(w, h, Number($("fold-companion").value || "0")),
+  });
+  addTableExports($("summary"), {
+    name: "summary-table",
+    table: () => $("summary").querySelector("table"),
+    fileStem: named("summary"),
+    json: () => state.dataset?.summary(),
+  });
+  addTableExports($("fit-elements"), { fileStem: named("elements"), json: () => state.fit });
+}
+
 async function main() {
   // A panic inside the wasm module reports here instead of vanishing in the console.
   globalThis.eccauditReportPanic = (message) => showError($("load-error"), `internal error: ${message}`);
@@ -378,6 +407,7 @@ async function main() {
   const { demos, select } = wireLoader();
   wireModelForm();
   wireFit();
+  wireExports();
   state.audit = wireAudit({ currentTable: () => state.table, el });
   initPriorsView({ currentTable: () => state.source });
   if (demos.length > 0) {
