@@ -45,9 +45,14 @@ function messageOf(err) {
 
 // Counts finished load attempts (good or bad), so tests can wait for one.
 let loadAttempts = 0;
-function loadTable(text, sourceName) {
+async function loadTable(text, sourceName) {
   try {
-    return tryLoadTable(text, sourceName);
+    if (!tryLoadTable(text, sourceName)) return false;
+    // Draw in a task of its own, so parsing and drawing a large table do not hold the main
+    // thread in one piece.
+    await new Promise((resolve) => setTimeout(resolve, 0));
+    redraw();
+    return true;
   } finally {
     document.body.dataset.loadAttempts = String(++loadAttempts);
   }
@@ -72,7 +77,6 @@ function tryLoadTable(text, sourceName) {
   state.model = null;
   clearFit();
   renderSummary(dataset.summary());
-  redraw();
   return true;
 }
 
@@ -412,7 +416,7 @@ async function main() {
   initPriorsView({ currentTable: () => state.source });
   if (demos.length > 0) {
     select.value = "0";
-    loadTable(demos[0].text, demos[0].file_name);
+    await loadTable(demos[0].text, demos[0].file_name);
   }
   document.body.dataset.ready = "true";
   // Offline use: the service worker keeps copies of the page's own files.
