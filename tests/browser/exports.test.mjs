@@ -32,6 +32,22 @@ function demoRows(fileName) {
   return lines.slice(1).map((line) => line.split(/[,\t]/));
 }
 
+/** The fields of one CSV line (RFC 4180 quoting). */
+function csvFields(line) {
+  const fields = [];
+  let field = "";
+  let quoted = false;
+  for (let i = 0; i < line.length; i++) {
+    const c = line[i];
+    if (quoted) {
+      if (c === '"' && line[i + 1] === '"') { field += '"'; i++; } else if (c === '"') quoted = false; else field += c;
+    } else if (c === '"') quoted = true;
+    else if (c === ",") { fields.push(field); field = ""; } else field += c;
+  }
+  fields.push(field);
+  return fields;
+}
+
 // The PNG file signature (ISO/IEC 15948:2004, PNG specification, section 5.2).
 const PNG_SIGNATURE = Buffer.from([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a]);
 
@@ -107,7 +123,7 @@ test("after fitting Corvin 4 the periodogram exports as SVG and the elements as 
 
   const csv = await download("[data-testid='export-csv-fit-elements']");
   assert.equal(csv.name, "corvin4-eccentric-elements.csv");
-  const rows = csv.bytes.toString("utf8").trim().split("\r\n").map((l) => l.split(","));
+  const rows = csv.bytes.toString("utf8").trim().split("\r\n").map(csvFields);
   const pRow = rows.find((r) => r[0] === "P [d]");
   assert.ok(pRow, `P row in ${rows.map((r) => r[0])}`);
   const shownP = await page.$eval("#fit-elements tbody tr td:nth-child(2)", (td) => td.textContent);
@@ -119,6 +135,43 @@ test("after fitting Corvin 4 the periodogram exports as SVG and the elements as 
 
   const phase = await download("[data-testid='export-png-phase-canvas']");
   assert.ok(phase.bytes.subarray(0, 8).equals(PNG_SIGNATURE));
+  assert.equal(app.consoleErrors.length, 0, app.consoleErrors.join("\n"));
+});
+
+test("a short prior set of Corvin 4 exports its figures as SVG and its table as CSV and JSON", async () => {
+  const { page } = app;
+  // As priors.test.mjs: two priors, 16 walkers × (100 burn-in + 300 steps), seed 3.
+  await page.fill("#priors-specs", "uniform:0..0.8\nrayleigh(0.3)");
+  for (const [name, value] of Object.entries({ walkers: "16", steps: "300", burn: "100", seed: "3" })) {
+    await page.fill(`#priors-settings input[name='${name}']`, value);
+  }
+  const before = await page.evaluate(() => Number(document.body.dataset.priorsAttempts ?? 0));
+  await page.click("#priors-run");
+  await page.waitForFunction((n) => Number(document.body.dataset.priorsAttempts ?? 0) > n, before, { timeout: 120_000 });
+  assert.equal(await page.evaluate(() => document.body.dataset.priorsOutcome), "done");
+
+  const posteriors = await download("[data-testid='export-svg-priors-canvas']");
+  assert.equal(posteriors.name, "corvin4-eccentric-posteriors.svg");
+  const size = await page.$eval("#priors-canvas", (c) => [c.width, c.height]);
+  const text = posteriors.bytes.toString("utf8");
+  assert.ok(text.startsWith("<svg"));
+  assert.match(text, new RegExp(`width="${size[0]}" height="${size[1]}"`));
+  const corner = await download("[data-testid='export-svg-priors-corner']");
+  assert.equal(corner.name, "corvin4-eccentric-corner-prior-1.svg");
+  assert.ok(corner.bytes.toString("utf8").startsWith("<svg"));
+  const traces = await download("[data-testid='export-png-priors-traces']");
+  assert.ok(traces.bytes.subarray(0, 8).equals(PNG_SIGNATURE));
+
+  const csv = (await download("[data-testid='export-csv-priors-table']")).bytes.toString("utf8");
+  const rows = csv.trim().split("\r\n");
+  assert.equal(rows.length, 3, csv);
+  assert.match(rows[0], /^#,prior on e,median,/);
+  const json = JSON.parse((await download("[data-testid='export-json-priors-table']")).bytes.toString("utf8"));
+  assert.equal(json.runs.length, 2);
+  // The CSV's median cell is the report's median as the table shows it (3 decimals).
+  const first = csvFields(rows[1]);
+  assert.equal(first[1], json.runs[0].summary.prior_label);
+  assert.equal(first[2].split(" ± ")[0], json.runs[0].summary.median.toFixed(3));
   assert.equal(app.consoleErrors.length, 0, app.consoleErrors.join("\n"));
 });
 
