@@ -176,10 +176,11 @@ test("a short prior set of Corvin 4 exports its figures as SVG and its table as 
 });
 
 // Worst lateness of a 20 ms main-thread timer while a 100,000-row table loads. Measured on the
-// shared 2-core test machine (headless Chromium, other builds running): 1121, 1317 and 1329 ms
-// in three runs, almost all of it the one task that draws the 100,000 points and error bars
-// (parsing runs in an earlier task). Bound: the worst seen × 1.5, rounded up.
-const MAX_LATENESS_MS = 2000;
+// shared 2-core test machine (headless Chromium, load average ≈ 3): 294, 474, 659 and 687 ms in
+// four runs; the longest task is parsing (≈ 0.2 s) or drawing (≈ 0.3 s, one canvas path per
+// colour, see crates/eccaudit-web/src/canvas.rs), plus time given to other processes.
+// Bound: 1000 ms, about 1.45 × the worst seen.
+const MAX_LATENESS_MS = 1000;
 
 test("a 100,000-row table loads through the file input while the page stays responsive", async () => {
   const { page } = app;

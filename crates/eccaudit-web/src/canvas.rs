@@ -6,11 +6,13 @@
 //! delegates every drawing call to plotters-canvas and answers text-size
 //! questions with `CanvasRenderingContext2D.measureText`, which needs no DOM.
 //!
-//! It also batches runs of opaque lines of one colour and width, and of opaque filled circles of
-//! one colour, into a single canvas path each (one `stroke()`/`fill()` per run instead of one per
-//! mark): a table of 100 000 points is 400 000 marks, and one path per mark made drawing it
-//! take seconds of the page's main thread. A mark already in the run (same pixels) is not added
-//! again: one path paints the union of its sub-paths once, so the picture is the same.
+//! It also batches runs of opaque lines and paths of one colour and width,
+//! and of opaque filled circles of one colour, into a single canvas path each
+//! (one `stroke()`/`fill()` per run instead of one per mark): a table of
+//! 100 000 points is some 300 000 marks, and one path per mark made drawing
+//! it take seconds of the page's main thread. A line or dot already in the
+//! run (same pixels) is not added again: one path paints the union of its
+//! sub-paths once, so the picture is the same.
 
 use std::collections::HashSet;
 
@@ -30,7 +32,7 @@ pub struct MeasuredCanvas {
     /// The run of marks collected in the context's current path, not yet painted.
     batch: Option<Batch>,
     /// The marks of the pending run (end points of a line; centre and radius of a dot).
-    marks: HashSet<(i32, i32, i32, i32)>,
+    marks: HashSet<Mark>,
 }
 
 /// A run of marks painted together.
@@ -40,6 +42,13 @@ enum Batch {
     Lines { rgb: (u8, u8, u8), width: u32 },
     /// Circles filled in one colour.
     Dots { rgb: (u8, u8, u8) },
+}
+
+/// A line (end points) or circle (centre, radius, filled) in pixels, to skip repeats in a run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+enum Mark {
+    Line(BackendCoord, BackendCoord),
+    Circle(BackendCoord, u32, bool),
 }
 
 fn css_colour((r, g, b): (u8, u8, u8)) -> String {
@@ -108,7 +117,7 @@ impl DrawingBackend for MeasuredCanvas {
     }
 
     fn ensure_prepared(&mut self) -> Result<(), DrawingErrorKind<CanvasError>> {
-        self.flush();
+        // plotters calls this before every mark; it paints nothing, so the run goes on.
         self.inner.ensure_prepared()
     }
 
@@ -138,7 +147,7 @@ impl DrawingBackend for MeasuredCanvas {
                 rgb: colour.rgb,
                 width: style.stroke_width(),
             });
-            if !self.marks.insert((from.0, from.1, to.0, to.1)) {
+            if !self.marks.insert(Mark::Line(from, to)) {
                 return Ok(());
             }
             // plotters-canvas's half-pixel shift of horizontal and vertical lines.
@@ -175,6 +184,22 @@ impl DrawingBackend for MeasuredCanvas {
         path: I,
         style: &S,
     ) -> Result<(), DrawingErrorKind<CanvasError>> {
+        let colour = style.color();
+        if colour.alpha == 1.0 {
+            // As plotters-canvas, one sub-path through the points, without the half-pixel shift.
+            self.join(Batch::Lines {
+                rgb: colour.rgb,
+                width: style.stroke_width(),
+            });
+            let mut points = path.into_iter();
+            if let Some(start) = points.next() {
+                self.context.move_to(f64::from(start.0), f64::from(start.1));
+                for next in points {
+                    self.context.line_to(f64::from(next.0), f64::from(next.1));
+                }
+            }
+            return Ok(());
+        }
         self.flush();
         self.inner.draw_path(path, style)
     }
@@ -196,9 +221,19 @@ impl DrawingBackend for MeasuredCanvas {
         fill: bool,
     ) -> Result<(), DrawingErrorKind<CanvasError>> {
         let colour = style.color();
-        if fill && colour.alpha == 1.0 {
-            self.join(Batch::Dots { rgb: colour.rgb });
-            if !self.marks.insert((center.0, center.1, radius as i32, 0)) {
+        if colour.alpha == 1.0 {
+            // A filled circle joins the dots; an outline joins the lines of its colour and width
+            // (plotters' error bars draw one around each point).
+            let batch = if fill {
+                Batch::Dots { rgb: colour.rgb }
+            } else {
+                Batch::Lines {
+                    rgb: colour.rgb,
+                    width: style.stroke_width(),
+                }
+            };
+            self.join(batch);
+            if !self.marks.insert(Mark::Circle(center, radius, fill)) {
                 return Ok(());
             }
             let (x, y, r) = (f64::from(center.0), f64::from(center.1), f64::from(radius));
