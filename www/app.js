@@ -2,6 +2,7 @@
 import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
 import { wireAudit } from "./audit-view.js";
 import { initPriorsView } from "./priors-view.js";
+import { addFigureExports, addTableExports, stem } from "./exports.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -44,9 +45,14 @@ function messageOf(err) {
 
 // Counts finished load attempts (good or bad), so tests can wait for one.
 let loadAttempts = 0;
-function loadTable(text, sourceName) {
+async function loadTable(text, sourceName) {
   try {
-    return tryLoadTable(text, sourceName);
+    if (!tryLoadTable(text, sourceName)) return false;
+    // Draw in a task of its own, so parsing and drawing a large table do not hold the main
+    // thread in one piece.
+    await new Promise((resolve) => setTimeout(resolve, 0));
+    redraw();
+    return true;
   } finally {
     document.body.dataset.loadAttempts = String(++loadAttempts);
   }
@@ -71,7 +77,6 @@ function tryLoadTable(text, sourceName) {
   state.model = null;
   clearFit();
   renderSummary(dataset.summary());
-  redraw();
   return true;
 }
 
@@ -370,6 +375,34 @@ function wireFit() {
   });
 }
 
+// PNG/SVG under each figure, CSV/JSON under each table of this view (exports.js).
+function wireExports() {
+  const named = (what) => () => `${stem(state.table?.name)}-${what}`;
+  const dataset = () => {
+    if (!state.dataset) throw new Error("load a velocity table first");
+    return state.dataset;
+  };
+  addFigureExports($("velocity-canvas"), {
+    fileStem: named("velocities"),
+    svg: (w, h) => dataset().drawSvg(w, h, state.model),
+  });
+  addFigureExports($("periodogram-canvas"), {
+    fileStem: named("periodogram"),
+    svg: (w, h) => dataset().drawPeriodogramSvg(w, h),
+  });
+  addFigureExports($("phase-canvas"), {
+    fileStem: () => `${named("phase-fold")()}-${Number($("fold-companion").value || "0") + 1}`,
+    svg: (w, h) => dataset().drawPhaseFoldSvg(w, h, Number($("fold-companion").value || "0")),
+  });
+  addTableExports($("summary"), {
+    name: "summary-table",
+    table: () => $("summary").querySelector("table"),
+    fileStem: named("summary"),
+    json: () => state.dataset?.summary(),
+  });
+  addTableExports($("fit-elements"), { fileStem: named("elements"), json: () => state.fit });
+}
+
 async function main() {
   // A panic inside the wasm module reports here instead of vanishing in the console.
   globalThis.eccauditReportPanic = (message) => showError($("load-error"), `internal error: ${message}`);
@@ -378,11 +411,12 @@ async function main() {
   const { demos, select } = wireLoader();
   wireModelForm();
   wireFit();
+  wireExports();
   state.audit = wireAudit({ currentTable: () => state.table, el });
   initPriorsView({ currentTable: () => state.source });
   if (demos.length > 0) {
     select.value = "0";
-    loadTable(demos[0].text, demos[0].file_name);
+    await loadTable(demos[0].text, demos[0].file_name);
   }
   document.body.dataset.ready = "true";
   // Offline use: the service worker keeps copies of the page's own files.

@@ -6,6 +6,7 @@
 // trial indices from a shared queue until none is left; the main thread's AuditRun summarises
 // the rows and draws. Results depend only on the settings and the table, never on the split.
 import { AuditRun, auditSettingsFor, defaultAuditSettings } from "./pkg/eccaudit_web.js";
+import { addFigureExports, addTableExports } from "./exports.js";
 
 const $ = (id) => document.getElementById(id);
 const messageOf = (err) => (err instanceof Error ? err.message : String(err));
@@ -323,6 +324,17 @@ export function wireAudit({ currentTable, el }) {
   $("download-trials").addEventListener("click", () => {
     if (shown) download(shown.run.trialsCsv(), `${stem(shown.tableName)}-eccaudit-trials.csv`, "text/csv");
   });
+
+  const result = () => {
+    if (!shown) throw new Error("run an audit first");
+    return shown;
+  };
+  const named = (what) => () => `${stem(result().tableName)}-${what}`;
+  addFigureExports($("bias-canvas"), { fileStem: named("bias"), svg: (w, h) => result().run.drawBiasSvg(w, h) });
+  addFigureExports($("distributions-canvas"), {
+    fileStem: named("distributions"), svg: (w, h) => result().run.drawDistributionsSvg(w, h),
+  });
+  addTableExports($("audit-summary"), { fileStem: named("injection-summary"), json: () => result().report.injection });
 
   return {
     /** A new table was loaded: stop any run and drop the result of the old table. */

@@ -3,6 +3,7 @@
 // PriorSet collects the runs in prior order and assembles the same report as
 // `eccaudit priors --json`, which is kept in window.eccauditPriorsReport for inspection.
 import { PriorSet, defaultPriorSpecs } from "./pkg/eccaudit_web.js";
+import { addFigureExports, addTableExports, stem } from "./exports.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -290,5 +291,26 @@ export function initPriorsView({ currentTable }) {
   $("priors-choice").addEventListener("change", drawChosen);
   $("priors-reset").addEventListener("click", () => {
     $("priors-specs").value = defaultPriorSpecs().join("\n");
+  });
+  wireExports();
+}
+
+// PNG/SVG under each figure and CSV/JSON under the table (exports.js).
+function wireExports() {
+  const set = () => {
+    if (!view.shown) throw new Error("run the prior set first");
+    return view.shown;
+  };
+  const chosen = () => Number($("priors-choice").value);
+  const named = (what) => () => `${stem(view.currentTable()?.sourceName)}-${what}`;
+  addFigureExports($("priors-canvas"), { fileStem: named("posteriors"), svg: (w, h) => set().drawPosteriorsSvg(w, h) });
+  addFigureExports($("priors-corner"), {
+    fileStem: () => named("corner")() + `-prior-${chosen() + 1}`, svg: (w, h) => set().drawCornerSvg(w, h, chosen()),
+  });
+  addFigureExports($("priors-traces"), {
+    fileStem: () => named("traces")() + `-prior-${chosen() + 1}`, svg: (w, h) => set().drawTracesSvg(w, h, chosen()),
+  });
+  addTableExports($("priors-table").parentElement, {
+    name: "priors-table", table: () => $("priors-table"), fileStem: named("priors"), json: () => set().reportJson(),
   });
 }

@@ -11,6 +11,7 @@ const APP_SHELL = [
   "./audit-view.js",
   "./priors-worker.js",
   "./priors-view.js",
+  "./exports.js",
   "./audit-worker.js",
   "./style.css",
   "./pkg/eccaudit_web.js",

@@ -11,12 +11,11 @@ use eccaudit_core::inject::{
     csv_header, record_from_csv_row, record_to_csv_row, settings_fingerprint, TrialRecord,
 };
 use eccaudit_core::table::{parse_table, ReadOptions, TimeSpec, VelocityUnit};
-use eccaudit_plot::plotters::prelude::IntoDrawingArea;
-use eccaudit_plot::{bias_figure, distribution_figure, draw_bias_curve, draw_distributions};
+use eccaudit_plot::{bias_figure, distribution_figure, BiasFigure};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::canvas::MeasuredCanvas;
+use crate::render;
 use crate::{js_error, to_js};
 
 /// First line of a trial CSV, as `eccaudit inject`/`audit` write it (so `--resume` reads the
@@ -188,36 +187,45 @@ impl AuditRun {
     /// Draw the last report's bias curve on `canvas`.
     #[wasm_bindgen(js_name = drawBias)]
     pub fn draw_bias(&self, canvas: HtmlCanvasElement) -> Result<(), JsValue> {
+        render::on_canvas(&self.bias_figure()?, canvas)
+    }
+
+    /// The same figure as [`AuditRun::draw_bias`], as SVG text of `width` × `height` pixels.
+    #[wasm_bindgen(js_name = drawBiasSvg)]
+    pub fn draw_bias_svg(&self, width: u32, height: u32) -> Result<String, JsValue> {
+        render::to_svg(&self.bias_figure()?, width, height)
+    }
+
+    /// Draw the last report's distributions of the estimates on `canvas`.
+    #[wasm_bindgen(js_name = drawDistributions)]
+    pub fn draw_distributions(&self, canvas: HtmlCanvasElement) -> Result<(), JsValue> {
+        render::on_canvas(&distribution_figure(&self.report()?.1.injection), canvas)
+    }
+
+    /// The same figure as [`AuditRun::draw_distributions`], as SVG text of `width` × `height`
+    /// pixels.
+    #[wasm_bindgen(js_name = drawDistributionsSvg)]
+    pub fn draw_distributions_svg(&self, width: u32, height: u32) -> Result<String, JsValue> {
+        render::to_svg(
+            &distribution_figure(&self.report()?.1.injection),
+            width,
+            height,
+        )
+    }
+}
+
+impl AuditRun {
+    /// The bias curve of the last report, marked at the observed estimate.
+    fn bias_figure(&self) -> Result<BiasFigure, JsValue> {
         let report = &self.report()?.1;
         let observed = report
             .statement
             .calibrations
             .first()
             .map(|c| c.observed.point);
-        let backend = MeasuredCanvas::new(canvas)
-            .ok_or_else(|| js_error("the canvas has no 2-D drawing context"))?;
-        draw_bias_curve(
-            &backend.into_drawing_area(),
-            &bias_figure(&report.injection, observed),
-        )
-        .map_err(js_error)
+        Ok(bias_figure(&report.injection, observed))
     }
 
-    /// Draw the last report's distributions of the estimates on `canvas`.
-    #[wasm_bindgen(js_name = drawDistributions)]
-    pub fn draw_distributions(&self, canvas: HtmlCanvasElement) -> Result<(), JsValue> {
-        let report = &self.report()?.1;
-        let backend = MeasuredCanvas::new(canvas)
-            .ok_or_else(|| js_error("the canvas has no 2-D drawing context"))?;
-        draw_distributions(
-            &backend.into_drawing_area(),
-            &distribution_figure(&report.injection),
-        )
-        .map_err(js_error)
-    }
-}
-
-impl AuditRun {
     fn report(&self) -> Result<&(Vec<TrialRecord>, AuditReport), JsValue> {
         self.finished
             .as_ref()

@@ -3,13 +3,12 @@
 use eccaudit_core::model::RvModel;
 use eccaudit_core::orbit::OrbitalElements;
 use eccaudit_core::table::{parse_table, ReadOptions, TimeSpec, VelocityTable, VelocityUnit};
-use eccaudit_plot::plotters::prelude::IntoDrawingArea;
-use eccaudit_plot::{draw_velocities, ModelCurve, VelocityFigure, VelocitySeries};
+use eccaudit_plot::{ModelCurve, VelocityFigure, VelocitySeries};
 use serde::Deserialize;
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::canvas::MeasuredCanvas;
+use crate::render;
 use crate::{js_error, to_js};
 
 /// Points in a model curve drawn over the data: at least this many…
@@ -90,6 +89,19 @@ impl Dataset {
     /// Draw the velocities on `canvas`, with a model curve when `model` is
     /// an object of [`CurveElements`] (`null`/`undefined` for none).
     pub fn draw(&self, canvas: HtmlCanvasElement, model: JsValue) -> Result<(), JsValue> {
+        render::on_canvas(&self.velocity_figure(model)?, canvas)
+    }
+
+    /// The same figure as [`Dataset::draw`], as SVG text of `width` × `height` pixels.
+    #[wasm_bindgen(js_name = drawSvg)]
+    pub fn draw_svg(&self, width: u32, height: u32, model: JsValue) -> Result<String, JsValue> {
+        render::to_svg(&self.velocity_figure(model)?, width, height)
+    }
+}
+
+impl Dataset {
+    /// The velocity figure, with the typed-in model curve when `model` is not null.
+    fn velocity_figure(&self, model: JsValue) -> Result<VelocityFigure, JsValue> {
         let curve = if model.is_null() || model.is_undefined() {
             None
         } else {
@@ -97,18 +109,13 @@ impl Dataset {
                 serde_wasm_bindgen::from_value(model).map_err(js_error)?;
             Some(self.model_curve(&elements).map_err(js_error)?)
         };
-        let figure = VelocityFigure {
+        Ok(VelocityFigure {
             series: self.series(),
             curve,
             time_label: self.time_label(),
-        };
-        let backend = MeasuredCanvas::new(canvas)
-            .ok_or_else(|| js_error("the canvas has no 2-D drawing context"))?;
-        draw_velocities(&backend.into_drawing_area(), &figure).map_err(js_error)
+        })
     }
-}
 
-impl Dataset {
     fn series(&self) -> Vec<VelocitySeries> {
         let table = &self.table;
         let mut series: Vec<VelocitySeries> = table

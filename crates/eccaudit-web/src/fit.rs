@@ -4,17 +4,13 @@
 use eccaudit_core::fit::figures::{phase_fold, search_periodogram, PhaseFold, PhaseZero};
 use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use eccaudit_core::periodogram::{FrequencyLimits, Periodogram};
-use eccaudit_plot::plotters::prelude::IntoDrawingArea;
-use eccaudit_plot::{
-    draw_periodogram, draw_phase_fold, MarkedPeak, PeriodogramFigure, PhaseFoldFigure, PhaseSeries,
-    PowerLevel,
-};
+use eccaudit_plot::{MarkedPeak, PeriodogramFigure, PhaseFoldFigure, PhaseSeries, PowerLevel};
 use serde::{Deserialize, Serialize};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::canvas::MeasuredCanvas;
 use crate::dataset::Dataset;
+use crate::render;
 use crate::{js_error, to_js};
 
 /// Shortest period searched when only the longest is given [d] (as `eccaudit fit`).
@@ -160,14 +156,17 @@ impl Dataset {
     /// Draw the periodogram of the kept fit's period search on `canvas`.
     #[wasm_bindgen(js_name = drawPeriodogram)]
     pub fn draw_periodogram(&self, canvas: HtmlCanvasElement) -> Result<(), JsValue> {
-        let fit = self.fit_or_error()?;
-        let backend = MeasuredCanvas::new(canvas)
-            .ok_or_else(|| js_error("the canvas has no 2-D drawing context"))?;
-        draw_periodogram(
-            &backend.into_drawing_area(),
-            &periodogram_figure(&fit.periodogram),
+        render::on_canvas(
+            &periodogram_figure(&self.fit_or_error()?.periodogram),
+            canvas,
         )
-        .map_err(js_error)
+    }
+
+    /// The same figure as [`Dataset::draw_periodogram`], as SVG text of `width` × `height` pixels.
+    #[wasm_bindgen(js_name = drawPeriodogramSvg)]
+    pub fn draw_periodogram_svg(&self, width: u32, height: u32) -> Result<String, JsValue> {
+        let figure = periodogram_figure(&self.fit_or_error()?.periodogram);
+        render::to_svg(&figure, width, height)
     }
 
     /// Draw companion `companion_idx` (0-based) of the kept fit's adopted solution folded on its
@@ -178,6 +177,24 @@ impl Dataset {
         canvas: HtmlCanvasElement,
         companion_idx: usize,
     ) -> Result<(), JsValue> {
+        render::on_canvas(&self.phase_fold_figure(companion_idx)?, canvas)
+    }
+
+    /// The same figure as [`Dataset::draw_phase_fold`], as SVG text of `width` × `height` pixels.
+    #[wasm_bindgen(js_name = drawPhaseFoldSvg)]
+    pub fn draw_phase_fold_svg(
+        &self,
+        width: u32,
+        height: u32,
+        companion_idx: usize,
+    ) -> Result<String, JsValue> {
+        render::to_svg(&self.phase_fold_figure(companion_idx)?, width, height)
+    }
+}
+
+impl Dataset {
+    /// The phase-fold figure of companion `companion_idx` (0-based) of the kept fit.
+    fn phase_fold_figure(&self, companion_idx: usize) -> Result<PhaseFoldFigure, JsValue> {
         let fit = self.fit_or_error()?;
         let fold = phase_fold(
             &fit.data,
@@ -187,10 +204,7 @@ impl Dataset {
             CURVE_POINTS,
         )
         .map_err(js_error)?;
-        let figure = phase_figure(&fold, &fit.data, &self.time_label());
-        let backend = MeasuredCanvas::new(canvas)
-            .ok_or_else(|| js_error("the canvas has no 2-D drawing context"))?;
-        draw_phase_fold(&backend.into_drawing_area(), &figure).map_err(js_error)
+        Ok(phase_figure(&fold, &fit.data, &self.time_label()))
     }
 }
 

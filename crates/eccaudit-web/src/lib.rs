@@ -13,6 +13,7 @@ mod dataset;
 mod demo;
 mod fit;
 mod priors;
+mod render;
 
 pub use audit::{audit_settings_for, default_audit_settings, AuditRun};
 pub use bench::KeplerBench;

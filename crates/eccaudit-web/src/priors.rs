@@ -12,17 +12,16 @@ use eccaudit_core::posterior::{
     SensitivitySettings, DEFAULT_PRIOR_SPECS,
 };
 use eccaudit_core::sampler::Chains;
-use eccaudit_plot::plotters::prelude::IntoDrawingArea;
 use eccaudit_plot::{
-    corner_figure, corner_figure_size, draw_corner, draw_eccentricity_posteriors, draw_traces,
-    eccentricity_figure, eccentricity_figure_size, trace_figure, trace_figure_size, CORNER_POINTS,
+    corner_figure, corner_figure_size, eccentricity_figure, eccentricity_figure_size, trace_figure,
+    trace_figure_size, CORNER_POINTS,
 };
 use serde::{Deserialize, Serialize};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::canvas::MeasuredCanvas;
 use crate::dataset::Dataset;
+use crate::render;
 use crate::{js_error, to_js};
 
 /// Shortest time between two progress calls to JavaScript [ms].
@@ -271,10 +270,15 @@ impl PriorSet {
     #[wasm_bindgen(js_name = drawPosteriors)]
     pub fn draw_posteriors(&self, canvas: HtmlCanvasElement) -> Result<(), JsValue> {
         let report = self.report_or_error()?;
-        let (width, height) = eccentricity_figure_size(report.runs.len());
-        let backend = sized_canvas(canvas, width, height)?;
-        draw_eccentricity_posteriors(&backend.into_drawing_area(), &eccentricity_figure(report))
-            .map_err(js_error)
+        let size = eccentricity_figure_size(report.runs.len());
+        render::on_sized_canvas(&eccentricity_figure(report), canvas, size)
+    }
+
+    /// The same figure as [`PriorSet::draw_posteriors`], as SVG text of `width` × `height` pixels
+    /// (the canvas's size after drawing).
+    #[wasm_bindgen(js_name = drawPosteriorsSvg)]
+    pub fn draw_posteriors_svg(&self, width: u32, height: u32) -> Result<String, JsValue> {
+        render::to_svg(&eccentricity_figure(self.report_or_error()?), width, height)
     }
 
     /// Corner plot of prior `prior_index`'s samples; sizes the canvas.
@@ -285,13 +289,20 @@ impl PriorSet {
         prior_index: usize,
     ) -> Result<(), JsValue> {
         let run = self.run_or_error(prior_index)?;
-        let (width, height) = corner_figure_size(run.chains.dim);
-        let backend = sized_canvas(canvas, width, height)?;
-        draw_corner(
-            &backend.into_drawing_area(),
-            &corner_figure(run, CORNER_POINTS),
-        )
-        .map_err(js_error)
+        let size = corner_figure_size(run.chains.dim);
+        render::on_sized_canvas(&corner_figure(run, CORNER_POINTS), canvas, size)
+    }
+
+    /// The same figure as [`PriorSet::draw_corner`], as SVG text of `width` × `height` pixels.
+    #[wasm_bindgen(js_name = drawCornerSvg)]
+    pub fn draw_corner_svg(
+        &self,
+        width: u32,
+        height: u32,
+        prior_index: usize,
+    ) -> Result<String, JsValue> {
+        let run = self.run_or_error(prior_index)?;
+        render::to_svg(&corner_figure(run, CORNER_POINTS), width, height)
     }
 
     /// Walker traces of prior `prior_index`; sizes the canvas.
@@ -302,9 +313,23 @@ impl PriorSet {
         prior_index: usize,
     ) -> Result<(), JsValue> {
         let run = self.run_or_error(prior_index)?;
-        let (width, height) = trace_figure_size(run.chains.dim);
-        let backend = sized_canvas(canvas, width, height)?;
-        draw_traces(&backend.into_drawing_area(), &trace_figure(run)).map_err(js_error)
+        let size = trace_figure_size(run.chains.dim);
+        render::on_sized_canvas(&trace_figure(run), canvas, size)
+    }
+
+    /// The same figure as [`PriorSet::draw_traces`], as SVG text of `width` × `height` pixels.
+    #[wasm_bindgen(js_name = drawTracesSvg)]
+    pub fn draw_traces_svg(
+        &self,
+        width: u32,
+        height: u32,
+        prior_index: usize,
+    ) -> Result<String, JsValue> {
+        render::to_svg(
+            &trace_figure(self.run_or_error(prior_index)?),
+            width,
+            height,
+        )
     }
 }
 
@@ -321,14 +346,4 @@ impl PriorSet {
             .and_then(Option::as_ref)
             .ok_or_else(|| js_error(format!("no run for prior {} yet", prior_index + 1)))
     }
-}
-
-fn sized_canvas(
-    canvas: HtmlCanvasElement,
-    width: u32,
-    height: u32,
-) -> Result<MeasuredCanvas, JsValue> {
-    canvas.set_width(width);
-    canvas.set_height(height);
-    MeasuredCanvas::new(canvas).ok_or_else(|| js_error("the canvas has no 2-D drawing context"))
 }
