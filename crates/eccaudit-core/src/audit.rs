@@ -487,11 +487,13 @@ mod tests {
 
     #[test]
     fn settings_round_trip_and_refuse_typos_and_other_data() {
-        let mut settings = AuditSettings::default();
-        settings.data = Some(DataIdentity {
-            file_name: "t.csv".into(),
-            sha256: data_fingerprint(b"x"),
-        });
+        let settings = AuditSettings {
+            data: Some(DataIdentity {
+                file_name: "t.csv".into(),
+                sha256: data_fingerprint(b"x"),
+            }),
+            ..AuditSettings::default()
+        };
         let back = AuditSettings::from_json(&settings.to_json()).unwrap();
         assert_eq!(back, settings);
         assert!(back.check_data(b"x").is_ok());

@@ -8,6 +8,8 @@
 mod bias;
 mod corner;
 #[cfg(feature = "core")]
+pub mod fit;
+#[cfg(feature = "core")]
 mod injection;
 mod legend;
 mod palette;

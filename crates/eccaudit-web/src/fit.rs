@@ -1,10 +1,11 @@
 //! The least-squares orbit fit for the page: `Dataset.fit(settings)` runs the core fit and keeps
 //! it, `drawPeriodogram` and `drawPhaseFold` draw it with eccaudit-plot.
 
-use eccaudit_core::fit::figures::{phase_fold, search_periodogram, PhaseFold, PhaseZero};
+use eccaudit_core::fit::figures::{phase_fold, search_periodogram};
 use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use eccaudit_core::periodogram::{FrequencyLimits, Periodogram};
-use eccaudit_plot::{MarkedPeak, PeriodogramFigure, PhaseFoldFigure, PhaseSeries, PowerLevel};
+use eccaudit_plot::fit::{periodogram_figure, phase_figure};
+use eccaudit_plot::PhaseFoldFigure;
 use serde::{Deserialize, Serialize};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
@@ -157,7 +158,7 @@ impl Dataset {
     #[wasm_bindgen(js_name = drawPeriodogram)]
     pub fn draw_periodogram(&self, canvas: HtmlCanvasElement) -> Result<(), JsValue> {
         render::on_canvas(
-            &periodogram_figure(&self.fit_or_error()?.periodogram),
+            &periodogram_figure(&self.fit_or_error()?.periodogram, ""),
             canvas,
         )
     }
@@ -165,7 +166,7 @@ impl Dataset {
     /// The same figure as [`Dataset::draw_periodogram`], as SVG text of `width` × `height` pixels.
     #[wasm_bindgen(js_name = drawPeriodogramSvg)]
     pub fn draw_periodogram_svg(&self, width: u32, height: u32) -> Result<String, JsValue> {
-        let figure = periodogram_figure(&self.fit_or_error()?.periodogram);
+        let figure = periodogram_figure(&self.fit_or_error()?.periodogram, "");
         render::to_svg(&figure, width, height)
     }
 
@@ -204,7 +205,7 @@ impl Dataset {
             CURVE_POINTS,
         )
         .map_err(js_error)?;
-        Ok(phase_figure(&fold, &fit.data, &self.time_label()))
+        Ok(phase_figure(&fold, &fit.data, &self.time_label(), ""))
     }
 }
 
@@ -212,71 +213,6 @@ impl Dataset {
     fn fit_or_error(&self) -> Result<&StoredFit, JsValue> {
         self.stored_fit()
             .ok_or_else(|| js_error("no fit yet: run a fit before drawing its figures"))
-    }
-}
-
-/// "FAP 1%" for 0.01: the percentage with at most six decimals, trailing zeros dropped.
-fn level_label(false_alarm_probability: f64) -> String {
-    let percent = (false_alarm_probability * 100.0 * 1e6).round() / 1e6;
-    format!("FAP {percent}%")
-}
-
-/// The periodogram figure of the period search (the same as `eccaudit fit --plots`).
-fn periodogram_figure(pg: &Periodogram) -> PeriodogramFigure {
-    PeriodogramFigure {
-        periods: pg.periods.clone(),
-        power: pg.power.clone(),
-        window_power: Some(pg.window_power.clone()),
-        levels: pg
-            .fap_thresholds
-            .iter()
-            .filter_map(|t| {
-                t.power.map(|power| PowerLevel {
-                    label: level_label(t.false_alarm_probability),
-                    power,
-                })
-            })
-            .collect(),
-        best_peak: Some(MarkedPeak {
-            period: pg.best_peak.period,
-            power: pg.best_peak.power,
-            label: format!("P = {:.2} d", pg.best_peak.period),
-        }),
-        title: String::new(),
-    }
-}
-
-/// The phase-fold figure of one companion (the same as `eccaudit fit --plots`, without title).
-fn phase_figure(fold: &PhaseFold, data: &FitData, time_label: &str) -> PhaseFoldFigure {
-    let mut series: Vec<PhaseSeries> = data
-        .instrument_names()
-        .iter()
-        .map(|name| PhaseSeries {
-            name: name.clone(),
-            ..PhaseSeries::default()
-        })
-        .collect();
-    for i in 0..fold.phases.len() {
-        let s = &mut series[fold.instruments[i]];
-        s.phase.push(fold.phases[i]);
-        s.velocity.push(fold.velocities[i]);
-        s.error.push(fold.errors[i]);
-        s.residual.push(fold.residuals[i]);
-    }
-    let zero = match fold.zero {
-        PhaseZero::Periastron => "periastron",
-        PhaseZero::MaximumVelocity => "maximum velocity",
-    };
-    PhaseFoldFigure {
-        series,
-        curve_phase: fold.curve_phases.clone(),
-        curve_velocity: fold.curve_velocities.clone(),
-        phase_label: format!(
-            "phase (0 = {zero} at {:.3} [{time_label}]; P = {:.4} d)",
-            fold.zero_epoch, fold.period
-        ),
-        velocity_label: "velocity − γ − other terms [m/s]".to_string(),
-        title: String::new(),
     }
 }
 
