@@ -30,7 +30,7 @@ const SOKAL_WINDOW_C: f64 = 5.0;
 /// CAMCOS 5, 65, §4), with the normalised autocorrelation function averaged
 /// over walkers before summing, as in Foreman-Mackey et al. (2013, PASP 125,
 /// 306, §3 and their `autocorr` module): M is the smallest lag with
-/// M ≥ 5 τ(M). Autocovariances by direct sums, only up to the window.
+/// M ≥ 5 τ(M). Autocovariances only up to the window (direct sums, then FFT for long windows).
 pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEstimate {
     let n = common_length(traces);
     if n < 2 {
@@ -565,28 +565,38 @@ fn rank_normalize(chains: &[Vec<f64>]) -> Vec<Vec<f64>> {
     z.chunks(n.max(1)).map(<[f64]>::to_vec).collect()
 }
 
+/// Lags computed by direct sums before a chain switches to one FFT of all its lags.
+///
+/// A direct lag costs n multiply-adds, the FFT about 10 · 2n · log₂(2n) operations, so past a few
+/// dozen lags the FFT is cheaper; most windows stop well before this when chains mix fast.
+const DIRECT_LAGS: usize = 48;
+
 /// Biased autocovariances γ_c(t) = (1/n) Σ_{i<n−t} (x_i − x̄)(x_{i+t} − x̄) of several chains,
-/// each computed directly when asked for.
+/// each computed when asked for.
 ///
 /// The windows that use them (Sokal's for τ, Geyer's initial sequence for the ESS) stop after a
-/// few autocorrelation times, so the direct sums up to that lag cost less than full FFTs of every
-/// chain (an FFT computes all n lags of each chain whether they are needed or not).
+/// few autocorrelation times. Short lags are summed directly; a chain asked for a lag beyond
+/// [`DIRECT_LAGS`] gets all its lags at once by FFT, kept for later calls.
 struct LazyAutocovariance {
     centred: Vec<Vec<f64>>,
     n: usize,
+    by_fft: Vec<std::cell::OnceCell<Vec<f64>>>,
 }
 
 impl LazyAutocovariance {
     /// The first `n` draws of each trace, centred on their own mean.
     fn new(traces: &[Vec<f64>], n: usize) -> Self {
-        let centred = traces
+        let centred: Vec<Vec<f64>> = traces
             .iter()
             .map(|t| {
                 let m = mean(&t[..n]);
                 t[..n].iter().map(|x| x - m).collect()
             })
             .collect();
-        LazyAutocovariance { centred, n }
+        let by_fft = (0..centred.len())
+            .map(|_| std::cell::OnceCell::new())
+            .collect();
+        LazyAutocovariance { centred, n, by_fft }
     }
 
     /// γ_chain(lag); 0 beyond the last lag.
@@ -595,12 +605,81 @@ impl LazyAutocovariance {
             return 0.0;
         }
         let x = &self.centred[chain];
-        let sum: f64 = x[..self.n - lag]
-            .iter()
-            .zip(&x[lag..])
-            .map(|(a, b)| a * b)
-            .sum();
-        sum / self.n as f64
+        if lag < DIRECT_LAGS {
+            let sum: f64 = x[..self.n - lag]
+                .iter()
+                .zip(&x[lag..])
+                .map(|(a, b)| a * b)
+                .sum();
+            return sum / self.n as f64;
+        }
+        self.by_fft[chain].get_or_init(|| autocovariance(x))[lag]
+    }
+}
+
+/// Biased autocovariance γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄) for t = 0..n−1,
+/// by zero-padded FFT (Wiener–Khinchin).
+fn autocovariance(x: &[f64]) -> Vec<f64> {
+    let n = x.len();
+    let size = (2 * n).next_power_of_two();
+    let m = mean(x);
+    let mut re = vec![0.0; size];
+    let mut im = vec![0.0; size];
+    for (r, v) in re.iter_mut().zip(x) {
+        *r = v - m;
+    }
+    fft_in_place(&mut re, &mut im, false);
+    for (r, i) in re.iter_mut().zip(im.iter_mut()) {
+        *r = *r * *r + *i * *i;
+        *i = 0.0;
+    }
+    fft_in_place(&mut re, &mut im, true);
+    re.truncate(n);
+    for r in &mut re {
+        *r /= (size * n) as f64;
+    }
+    re
+}
+
+/// Iterative radix-2 Cooley–Tukey FFT (Cooley & Tukey 1965, Math. Comp. 19,
+/// 297); `inverse` flips the sign of the exponent and does not scale.
+fn fft_in_place(re: &mut [f64], im: &mut [f64], inverse: bool) {
+    let n = re.len();
+    let mut j = 0;
+    for i in 1..n {
+        let mut bit = n >> 1;
+        while j & bit != 0 {
+            j ^= bit;
+            bit >>= 1;
+        }
+        j |= bit;
+        if i < j {
+            re.swap(i, j);
+            im.swap(i, j);
+        }
+    }
+    let sign = if inverse { 1.0 } else { -1.0 };
+    let mut len = 2;
+    while len <= n {
+        let angle = sign * 2.0 * std::f64::consts::PI / len as f64;
+        let (w_im, w_re) = libm::sincos(angle);
+        for start in (0..n).step_by(len) {
+            let (mut cur_re, mut cur_im) = (1.0, 0.0);
+            for k in 0..len / 2 {
+                let a = start + k;
+                let b = a + len / 2;
+                let t_re = re[b] * cur_re - im[b] * cur_im;
+                let t_im = re[b] * cur_im + im[b] * cur_re;
+                re[b] = re[a] - t_re;
+                im[b] = im[a] - t_im;
+                re[a] += t_re;
+                im[a] += t_im;
+                let next_re = cur_re * w_re - cur_im * w_im;
+                cur_im = cur_re * w_im + cur_im * w_re;
+                cur_re = next_re;
+            }
+        }
+        len <<= 1;
     }
 }
 
@@ -641,16 +720,38 @@ mod tests {
         }
     }
 
+    /// FFT autocovariance equals the direct sum (definition, common practice).
+    #[test]
+    fn fft_autocovariance_matches_direct_sum() {
+        let x: Vec<f64> = (0..37)
+            .map(|i| libm::sin(i as f64 * 0.7) + 0.1 * i as f64)
+            .collect();
+        let acov = autocovariance(&x);
+        let m = mean(&x);
+        for t in [0, 1, 5, 36] {
+            let direct: f64 = (0..x.len() - t)
+                .map(|i| (x[i] - m) * (x[i + t] - m))
+                .sum::<f64>()
+                / x.len() as f64;
+            assert!(
+                (acov[t] - direct).abs() < 1e-12,
+                "lag {t}: {} vs {direct}",
+                acov[t]
+            );
+        }
+    }
+
     /// The lazy autocovariance is the biased estimator γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄)
     /// (definition, common practice), and 0 beyond the last lag.
     #[test]
     fn lazy_autocovariance_is_the_biased_estimator() {
-        let x: Vec<f64> = (0..37)
-            .map(|i| libm::sin(i as f64 * 0.7) + 0.1 * i as f64)
+        let x: Vec<f64> = (0..137)
+            .map(|i| libm::sin(i as f64 * 0.7) + 0.01 * i as f64)
             .collect();
         let acov = LazyAutocovariance::new(std::slice::from_ref(&x), x.len());
         let m = mean(&x);
-        for t in [0, 1, 5, 36] {
+        // Lags below DIRECT_LAGS by direct sums, the others from the FFT.
+        for t in [0, 1, 5, 47, 48, 100, 136] {
             let direct: f64 = (0..x.len() - t)
                 .map(|i| (x[i] - m) * (x[i + t] - m))
                 .sum::<f64>()
@@ -661,7 +762,7 @@ mod tests {
                 acov.at(0, t)
             );
         }
-        assert_eq!(acov.at(0, 37), 0.0);
+        assert_eq!(acov.at(0, 137), 0.0);
     }
 
     #[test]
