@@ -8,6 +8,7 @@
 use serde::Serialize;
 use thiserror::Error;
 
+use super::multistart::centred_velocities;
 use super::problem::{decode_companion, EccentricityCoordinates, FitData, ParameterLayout};
 use super::report::Solution;
 use super::FitOptions;
@@ -66,7 +67,7 @@ pub fn search_periodogram(
     data: &FitData,
     options: &FitOptions,
 ) -> Result<Periodogram, FigureError> {
-    let values = velocities_minus_instrument_means(data);
+    let values = centred_velocities(data);
     let pg_options = PeriodogramOptions {
         grid: GridOptions {
             limits: options.limits,
@@ -81,23 +82,6 @@ pub fn search_periodogram(
         data.uncertainties(),
         &pg_options,
     )?)
-}
-
-/// Velocities minus the inverse-variance weighted mean of their instrument.
-fn velocities_minus_instrument_means(data: &FitData) -> Vec<f64> {
-    let n_instruments = data.n_instruments();
-    let (mut sum, mut weight) = (vec![0.0; n_instruments], vec![0.0; n_instruments]);
-    for i in 0..data.n_points() {
-        let w = 1.0 / (data.uncertainties()[i] * data.uncertainties()[i]);
-        sum[data.instruments()[i]] += w * data.velocities()[i];
-        weight[data.instruments()[i]] += w;
-    }
-    (0..data.n_points())
-        .map(|i| {
-            let j = data.instruments()[i];
-            data.velocities()[i] - sum[j] / weight[j]
-        })
-        .collect()
 }
 
 /// The layout that `solution.parameters` follow.

@@ -320,8 +320,9 @@ fn start_grid(options: &FitOptions, period: f64, stream: u64) -> Vec<StartPoint>
     starts
 }
 
-/// Per-instrument weighted means subtracted (for the first periodogram).
-fn centred_velocities(data: &FitData) -> Vec<f64> {
+/// Velocities minus the inverse-variance weighted mean of their instrument: what the first
+/// period search (and its figure) examines.
+pub(crate) fn centred_velocities(data: &FitData) -> Vec<f64> {
     let n_inst = data.n_instruments();
     let (mut sum, mut weight) = (vec![0.0; n_inst], vec![0.0; n_inst]);
     for i in 0..data.n_points() {
