@@ -279,14 +279,12 @@ impl LmSolver {
         self.needs_jacobian
     }
 
-    /// Evaluates the Jacobian at the current point (analytic, else finite
-    /// differences), factorises it, updates the scaling `D` (Moré 1978 §6) and
-    /// returns the gradient cosine `max_j |J_jᵀ r| / (‖J_j‖ ‖r‖)` of MINPACK.
-    pub fn refresh_jacobian<P: LeastSquaresProblem + ?Sized>(
+    /// The Jacobian of the external parameters at the current point into `self.jacobian`
+    /// (analytic when the problem gives one, else finite differences in the solver's buffers).
+    fn fill_jacobian_at_current<P: LeastSquaresProblem + ?Sized>(
         &mut self,
         problem: &P,
-    ) -> Result<JacobianRefresh, LsqError> {
-        let (m, n) = (self.n_residuals, self.n_params);
+    ) -> Result<(), LsqError> {
         fill_external_jacobian(
             problem,
             &self.external,
@@ -298,7 +296,18 @@ impl LmSolver {
             &mut self.trial_residuals,
             &mut self.fd_minus,
             &mut self.n_finite_difference_evals,
-        )?;
+        )
+    }
+
+    /// Evaluates the Jacobian at the current point (analytic, else finite
+    /// differences), factorises it, updates the scaling `D` (Moré 1978 §6) and
+    /// returns the gradient cosine `max_j |J_jᵀ r| / (‖J_j‖ ‖r‖)` of MINPACK.
+    pub fn refresh_jacobian<P: LeastSquaresProblem + ?Sized>(
+        &mut self,
+        problem: &P,
+    ) -> Result<JacobianRefresh, LsqError> {
+        let (m, n) = (self.n_residuals, self.n_params);
+        self.fill_jacobian_at_current(problem)?;
         self.n_jacobian_evals += 1;
         self.needs_jacobian = false;
         // Chain rule to internal variables.
@@ -520,18 +529,7 @@ impl LmSolver {
         &mut self,
         problem: &P,
     ) -> Result<&DMatrix<f64>, LsqError> {
-        fill_external_jacobian(
-            problem,
-            &self.external,
-            &self.residuals,
-            self.finite_difference,
-            self.has_bounds.then_some(&self.bounds),
-            &mut self.jacobian,
-            &mut self.fd_params,
-            &mut self.trial_residuals,
-            &mut self.fd_minus,
-            &mut self.n_finite_difference_evals,
-        )?;
+        self.fill_jacobian_at_current(problem)?;
         self.needs_jacobian = true;
         Ok(&self.jacobian)
     }
