@@ -50,6 +50,30 @@ pub type DrawResult<DB> = Result<
     plotters::drawing::DrawingAreaErrorKind<<DB as plotters::prelude::DrawingBackend>::ErrorType>,
 >;
 
+/// Measurements `(x, y, σ)` as filled dots with vertical one-sigma error bars, in one colour:
+/// how every figure draws data points (velocities, phase folds, residuals).
+fn draw_measurements<DB: plotters::prelude::DrawingBackend>(
+    chart: &mut plotters::prelude::ChartContext<
+        '_,
+        DB,
+        plotters::prelude::Cartesian2d<
+            plotters::coord::types::RangedCoordf64,
+            plotters::coord::types::RangedCoordf64,
+        >,
+    >,
+    points: impl Iterator<Item = (f64, f64, f64)> + Clone,
+    colour: plotters::style::RGBColor,
+) -> DrawResult<DB> {
+    use plotters::prelude::{Circle, Color, ErrorBar};
+    chart.draw_series(
+        points
+            .clone()
+            .map(|(x, y, e)| ErrorBar::new_vertical(x, y - e, y, y + e, colour.stroke_width(1), 6)),
+    )?;
+    chart.draw_series(points.map(|(x, y, _)| Circle::new((x, y), 3, colour.filled())))?;
+    Ok(())
+}
+
 /// A readable axis offset for large time values: times such as
 /// 2 460 123.4 are drawn as 123.4 with the offset named in the axis label.
 ///

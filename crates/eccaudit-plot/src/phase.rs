@@ -5,7 +5,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::legend::{draw_legend, LegendMark};
-use crate::{instrument_colour, padded_range, DrawResult, INK, MUTED};
+use crate::{draw_measurements, instrument_colour, padded_range, DrawResult, INK, MUTED};
 
 /// One instrument's folded measurements.
 #[derive(Debug, Clone, Default)]
@@ -105,18 +105,13 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
     ))?;
     for (idx, series) in figure.series.iter().enumerate() {
         let colour = instrument_colour(idx);
-        let points = || {
-            series
-                .phase
-                .iter()
-                .zip(&series.velocity)
-                .zip(&series.error)
-                .map(|((p, v), e)| (*p, *v, *e))
-        };
-        chart.draw_series(points().map(|(p, v, e)| {
-            ErrorBar::new_vertical(p, v - e, v, v + e, colour.stroke_width(1), 6)
-        }))?;
-        chart.draw_series(points().map(|(p, v, _)| Circle::new((p, v), 3, colour.filled())))?;
+        let points = series
+            .phase
+            .iter()
+            .zip(&series.velocity)
+            .zip(&series.error)
+            .map(|((p, v), e)| (*p, *v, *e));
+        draw_measurements(&mut chart, points, colour)?;
     }
 
     let mut residual_chart = ChartBuilder::on(&bottom)
@@ -143,19 +138,13 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
     ))?;
     for (idx, series) in figure.series.iter().enumerate() {
         let colour = instrument_colour(idx);
-        let points = || {
-            series
-                .phase
-                .iter()
-                .zip(&series.residual)
-                .zip(&series.error)
-                .map(|((p, r), e)| (*p, *r, *e))
-        };
-        residual_chart.draw_series(points().map(|(p, r, e)| {
-            ErrorBar::new_vertical(p, r - e, r, r + e, colour.stroke_width(1), 6)
-        }))?;
-        residual_chart
-            .draw_series(points().map(|(p, r, _)| Circle::new((p, r), 3, colour.filled())))?;
+        let points = series
+            .phase
+            .iter()
+            .zip(&series.residual)
+            .zip(&series.error)
+            .map(|((p, r), e)| (*p, *r, *e));
+        draw_measurements(&mut residual_chart, points, colour)?;
     }
 
     let mut legend: Vec<(String, LegendMark)> = figure

@@ -5,7 +5,9 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::legend::{draw_legend, LegendMark};
-use crate::{instrument_colour, padded_range, time_axis_offset, DrawResult, INK, MUTED};
+use crate::{
+    draw_measurements, instrument_colour, padded_range, time_axis_offset, DrawResult, INK, MUTED,
+};
 
 /// One instrument's measurements.
 #[derive(Debug, Clone, Default)]
@@ -96,18 +98,13 @@ pub fn draw_velocities<DB: DrawingBackend>(
 
     for (idx, series) in figure.series.iter().enumerate() {
         let colour = instrument_colour(idx);
-        let points = || {
-            series
-                .time
-                .iter()
-                .zip(&series.velocity)
-                .zip(&series.uncertainty)
-                .map(|((t, v), e)| (t - t0, *v, *e))
-        };
-        chart.draw_series(points().map(|(t, v, e)| {
-            ErrorBar::new_vertical(t, v - e, v, v + e, colour.stroke_width(1), 6)
-        }))?;
-        chart.draw_series(points().map(|(t, v, _)| Circle::new((t, v), 3, colour.filled())))?;
+        let points = series
+            .time
+            .iter()
+            .zip(&series.velocity)
+            .zip(&series.uncertainty)
+            .map(|((t, v), e)| (t - t0, *v, *e));
+        draw_measurements(&mut chart, points, colour)?;
     }
 
     let mut legend: Vec<(String, LegendMark)> = figure
