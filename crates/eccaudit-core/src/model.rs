@@ -220,24 +220,19 @@ impl RvModel {
         out: &mut [f64],
         offset_at: impl Fn(usize) -> f64,
     ) {
-        let mut time_chunks = times.chunks_exact(N);
-        let mut out_chunks = out.chunks_exact_mut(N);
-        let mut start = 0;
-        for (time_chunk, out_chunk) in (&mut time_chunks).zip(&mut out_chunks) {
-            let chunk_times: [f64; N] = core::array::from_fn(|i| time_chunk[i]);
+        // The last, partial group is padded with copies of its first time; those lanes are
+        // dropped (a lane has exactly the bits of the scalar path, so padding changes nothing).
+        for (group, (time_chunk, out_chunk)) in times.chunks(N).zip(out.chunks_mut(N)).enumerate()
+        {
+            let start = group * N;
+            let chunk_times: [f64; N] =
+                core::array::from_fn(|i| *time_chunk.get(i).unwrap_or(&time_chunk[0]));
             let keplerian = self.keplerian_velocity_lanes(&chunk_times);
             for (i, slot) in out_chunk.iter_mut().enumerate() {
                 *slot = keplerian[i]
                     + offset_at(start + i)
                     + self.trend * (chunk_times[i] - self.reference_time);
             }
-            start += N;
-        }
-        let rest = out_chunks.into_remainder();
-        for (i, (slot, &time)) in rest.iter_mut().zip(time_chunks.remainder()).enumerate() {
-            *slot = self.keplerian_velocity(time)
-                + offset_at(start + i)
-                + self.trend * (time - self.reference_time);
         }
     }
 

@@ -454,20 +454,21 @@ impl Prepared {
     }
 
     /// Calls `visit(i, cos ν_i, sin ν_i)` for every epoch of `shifted_times`, `N` epochs at a
-    /// time on the Kepler solver's branch-free lane path; lanes the fast path does not cover,
-    /// and the remainder, take [`Self::true_anomaly`], whose common path performs the same
-    /// operations, so the values do not depend on the lane count.
+    /// time on the Kepler solver's branch-free lane path; the last, partial group is padded with
+    /// copies of its first epoch (their results are dropped). Lanes the fast path does not cover
+    /// take [`Self::true_anomaly`], whose common path performs the same operations, so the values
+    /// do not depend on the lane count.
     #[inline(always)]
     fn for_each_true_anomaly_lanes<const N: usize>(
         &self,
         shifted_times: &[f64],
         visit: &mut impl FnMut(usize, f64, f64),
     ) {
-        let mut chunks = shifted_times.chunks_exact(N);
-        let mut start = 0;
-        for chunk in &mut chunks {
-            let mean_anomaly: Lanes<N> =
-                Lanes(core::array::from_fn(|i| self.mean_anomaly(chunk[i])));
+        for (group, chunk) in shifted_times.chunks(N).enumerate() {
+            let start = group * N;
+            let mean_anomaly: Lanes<N> = Lanes(core::array::from_fn(|i| {
+                self.mean_anomaly(*chunk.get(i).unwrap_or(&chunk[0]))
+            }));
             let (_, sin_e, cos_e, valid) = eccentric_anomaly_reduced_fast(mean_anomaly, self.e);
             let (Lanes(cos_nu), Lanes(sin_nu)) =
                 true_anomaly_cos_sin_lanes(sin_e, cos_e, self.e, self.s);
@@ -479,11 +480,6 @@ impl Prepared {
                     visit(start + i, cos, sin);
                 }
             }
-            start += N;
-        }
-        for (i, &dt) in chunks.remainder().iter().enumerate() {
-            let (cos, sin) = self.true_anomaly(dt);
-            visit(start + i, cos, sin);
         }
     }
 
