@@ -534,6 +534,32 @@ pub enum ScalarPrior {
     },
 }
 
+/// A [`ScalarPrior`] with its bounds and normalising constant precomputed.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PreparedScalarPrior {
+    prior: ScalarPrior,
+    lo: f64,
+    hi: f64,
+    log_normaliser: f64,
+}
+
+impl PreparedScalarPrior {
+    /// Normalised log-density; −∞ outside the support (see [`ScalarPrior`] for each form).
+    #[inline]
+    pub fn log_density(&self, x: f64) -> f64 {
+        if !(x >= self.lo && x <= self.hi) {
+            return f64::NEG_INFINITY;
+        }
+        match self.prior {
+            ScalarPrior::Uniform { .. } => -self.log_normaliser,
+            ScalarPrior::LogUniform { .. } => -libm::log(x) - self.log_normaliser,
+            ScalarPrior::ModifiedJeffreys { knee, .. } => {
+                -libm::log(x + knee) - self.log_normaliser
+            }
+        }
+    }
+}
+
 impl fmt::Display for ScalarPrior {
     /// Plain words with the bounds, e.g. `modified Jeffreys (knee 1) on [0, 1000]`.
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
@@ -604,16 +630,24 @@ impl ScalarPrior {
 
     /// Normalised log-density; −∞ outside the bounds. Assumes [`ScalarPrior::validate`] passed.
     pub fn log_density(&self, x: f64) -> f64 {
+        self.prepared().log_density(x)
+    }
+
+    /// The same prior with its normalising constant computed once, for repeated evaluation
+    /// (e.g. inside a sampler): [`PreparedScalarPrior::log_density`] gives exactly the bits of
+    /// [`ScalarPrior::log_density`].
+    pub fn prepared(&self) -> PreparedScalarPrior {
         let (lo, hi) = self.bounds();
-        if !(x >= lo && x <= hi) {
-            return f64::NEG_INFINITY;
-        }
-        match *self {
-            ScalarPrior::Uniform { min, max } => -libm::log(max - min),
-            ScalarPrior::LogUniform { min, max } => -libm::log(x) - libm::log(libm::log(max / min)),
-            ScalarPrior::ModifiedJeffreys { knee, max } => {
-                -libm::log(x + knee) - libm::log(libm::log1p(max / knee))
-            }
+        let log_normaliser = match *self {
+            ScalarPrior::Uniform { min, max } => libm::log(max - min),
+            ScalarPrior::LogUniform { min, max } => libm::log(libm::log(max / min)),
+            ScalarPrior::ModifiedJeffreys { knee, max } => libm::log(libm::log1p(max / knee)),
+        };
+        PreparedScalarPrior {
+            prior: *self,
+            lo,
+            hi,
+            log_normaliser,
         }
     }
 

@@ -8,7 +8,10 @@ use serde::{Deserialize, Serialize};
 
 use crate::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use crate::priors::{EccentricityPriorSettings, EccentricityShape};
-use crate::sampler::{diagnose, Chains, EnsembleState, SamplerSettings};
+use crate::sampler::{
+    diagnose_derived, diagnose_traces, diagnose_with, Chains, ConvergenceThresholds, EnsembleState,
+    SamplerSettings,
+};
 
 use super::start::{start_from_fit, PosteriorStart};
 use super::summary::{summarise_eccentricity, EccentricitySummary, SamplerCost};
@@ -72,6 +75,35 @@ pub fn run_posterior(
     observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
     prior_index: (usize, usize),
 ) -> Result<PosteriorRun, PosteriorError> {
+    run_posterior_judged(
+        data,
+        settings,
+        sampler,
+        start,
+        observer,
+        prior_index,
+        Judged::EveryParameter,
+    )
+}
+
+/// Which quantities decide whether a run has converged.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Judged {
+    /// Every sampled parameter (a run whose result is looked at or quoted).
+    EveryParameter,
+    /// e alone (injection–recovery, where only e is used; a fraction of the cost).
+    EccentricityAlone,
+}
+
+fn run_posterior_judged(
+    data: &FitData,
+    settings: &PosteriorSettings,
+    sampler: &SamplerSettings,
+    start: &PosteriorStart,
+    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+    prior_index: (usize, usize),
+    judged: Judged,
+) -> Result<PosteriorRun, PosteriorError> {
     if settings.priors.eccentricity.shape == EccentricityShape::Circular {
         return Err(PosteriorError::CircularInSet);
     }
@@ -95,7 +127,6 @@ pub fn run_posterior(
         }
     }
     let chains = state.into_chains();
-    let diagnostics = diagnose(&chains);
     let start_index = target.layout().companion_start(0);
     let e_traces: Vec<Vec<f64>> = (0..chains.n_walkers)
         .map(|w| {
@@ -114,8 +145,25 @@ pub fn run_posterior(
         n_samples: chains.n_walkers * chains.n_stored_steps,
         log_density_evaluations: target.evaluations(),
     };
-    let summary =
-        summarise_eccentricity(&e_traces, target.eccentricity_prior(), &diagnostics, cost);
+    let thresholds = ConvergenceThresholds::default();
+    let (diagnostics, e_diagnostics) = match judged {
+        Judged::EveryParameter => (
+            diagnose_with(&chains, &thresholds),
+            diagnose_traces(&e_traces, "e", chains.thin, &thresholds).0,
+        ),
+        Judged::EccentricityAlone => {
+            let diagnostics = diagnose_derived(&chains, "e", &e_traces, &thresholds);
+            let e = diagnostics.parameters[0];
+            (diagnostics, e)
+        }
+    };
+    let summary = summarise_eccentricity(
+        &e_traces,
+        target.eccentricity_prior(),
+        &e_diagnostics,
+        &diagnostics,
+        cost,
+    );
     Ok(PosteriorRun {
         summary,
         parameter_names: settings.parameter_names(data.instrument_names()),
@@ -126,19 +174,24 @@ pub fn run_posterior(
 
 /// The function for repeated use (e.g. the injection–recovery engine): the e summary of one run
 /// from a given start, without progress reporting. Pair with [`fast_sampler_settings`].
+///
+/// Only e is used, so convergence is judged on e alone ([`diagnose_derived`]): the other
+/// parameters' diagnostics cost several times the sampling of a short run and change nothing
+/// that is reported.
 pub fn posterior_eccentricity(
     data: &FitData,
     settings: &PosteriorSettings,
     sampler: &SamplerSettings,
     start: &PosteriorStart,
 ) -> Result<EccentricitySummary, PosteriorError> {
-    run_posterior(
+    run_posterior_judged(
         data,
         settings,
         sampler,
         start,
         &mut |_| ControlFlow::Continue(()),
         (0, 1),
+        Judged::EccentricityAlone,
     )
     .map(|run| run.summary)
 }

@@ -5,7 +5,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::priors::{EccentricityPrior, EccentricityPriorSettings};
-use crate::sampler::{ess_bulk, ess_tail, Diagnostics};
+use crate::sampler::{Diagnostics, ParameterDiagnostics};
 
 use super::bayes::{savage_dickey, SavageDickey};
 
@@ -280,11 +280,13 @@ impl ReflectedKde {
     }
 }
 
-/// Summarises posterior draws of e. `traces` holds one trace of e per walker (for the effective
-/// sample sizes); `diagnostics` and `cost` describe the whole run.
+/// Summarises posterior draws of e. `traces` holds one trace of e per walker, `e_diagnostics`
+/// their diagnostics (for the effective sample sizes); `diagnostics` and `cost` describe the
+/// whole run.
 pub fn summarise_eccentricity(
     traces: &[Vec<f64>],
     prior: &EccentricityPrior,
+    e_diagnostics: &ParameterDiagnostics,
     diagnostics: &Diagnostics,
     cost: SamplerCost,
 ) -> EccentricitySummary {
@@ -294,7 +296,7 @@ pub fn summarise_eccentricity(
     let nf = n as f64;
     let (lo, hi) = prior.bounds();
     let (bulk, tail) = if traces.len() > 1 {
-        (ess_bulk(traces), ess_tail(traces))
+        (e_diagnostics.ess_bulk, e_diagnostics.ess_tail)
     } else {
         (nf, nf)
     };

@@ -26,7 +26,8 @@ use serde::{Deserialize, Serialize};
 use crate::fit::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
 use crate::kepler::TWO_PI;
 use crate::priors::{
-    EccentricityPrior, EccentricityPriorSettings, OrbitPriorSettings, OrbitPriors, ScalarPrior,
+    EccentricityPrior, EccentricityPriorSettings, OrbitPriorSettings, OrbitPriors, PreparedScalarPrior,
+    ScalarPrior,
 };
 use crate::sampler::LogDensity;
 
@@ -129,6 +130,18 @@ impl PosteriorSettings {
     }
 }
 
+/// The scalar priors of [`RvPosterior`] with their constants computed once.
+#[derive(Debug, Clone, Copy)]
+struct PreparedPriors {
+    period: PreparedScalarPrior,
+    semi_amplitude: PreparedScalarPrior,
+    offset: PreparedScalarPrior,
+    jitter: PreparedScalarPrior,
+    trend: PreparedScalarPrior,
+    /// ln 2π, the normaliser of λ's uniform prior over one turn.
+    ln_turn: f64,
+}
+
 /// The posterior target: log p(θ | D) up to the evidence, as a [`LogDensity`].
 ///
 /// The log-likelihood is Gaussian with variance σᵢ² + s²(instrument of i) per point, including
@@ -139,7 +152,7 @@ impl PosteriorSettings {
 pub struct RvPosterior<'a> {
     problem: RvProblem<'a>,
     priors: OrbitPriors,
-    trend_prior: ScalarPrior,
+    prepared: PreparedPriors,
     jitter: bool,
     n_orbit_params: usize,
     lambda_centres: Vec<f64>,
@@ -181,10 +194,18 @@ impl<'a> RvPosterior<'a> {
                 .iter()
                 .map(|v| LN_TWO_PI + libm::log(*v))
                 .sum::<f64>();
+        let prepared = PreparedPriors {
+            period: priors.period.prepared(),
+            semi_amplitude: priors.semi_amplitude.prepared(),
+            offset: priors.offset.prepared(),
+            jitter: priors.jitter.prepared(),
+            trend: settings.trend_prior.prepared(),
+            ln_turn: libm::log(TWO_PI),
+        };
         Ok(Self {
             problem,
             priors,
-            trend_prior: settings.trend_prior,
+            prepared,
             jitter: settings.jitter,
             n_orbit_params,
             lambda_centres: lambda_centres.to_vec(),
@@ -223,11 +244,12 @@ impl<'a> RvPosterior<'a> {
     /// The log-prior: sum of the independent priors (−∞ outside any support).
     pub fn log_prior(&self, x: &[f64]) -> f64 {
         let layout = self.problem.layout();
+        let prepared = &self.prepared;
         let mut lp = 0.0;
         for c in 0..layout.n_companions() {
             let start = layout.companion_start(c);
-            lp += self.priors.period.log_density(x[start]);
-            lp += self.priors.semi_amplitude.log_density(x[start + 1]);
+            lp += prepared.period.log_density(x[start]);
+            lp += prepared.semi_amplitude.log_density(x[start + 1]);
             if !layout.circular[c] {
                 lp += self
                     .priors
@@ -239,18 +261,18 @@ impl<'a> RvPosterior<'a> {
             if !within {
                 return f64::NEG_INFINITY;
             }
-            lp -= libm::log(TWO_PI);
+            lp -= prepared.ln_turn;
         }
         let offsets = layout.offsets_start();
         for j in 0..layout.n_instruments {
-            lp += self.priors.offset.log_density(x[offsets + j]);
+            lp += prepared.offset.log_density(x[offsets + j]);
         }
         if let Some(t) = layout.trend_index() {
-            lp += self.trend_prior.log_density(x[t]);
+            lp += prepared.trend.log_density(x[t]);
         }
         if self.jitter {
             for j in 0..layout.n_instruments {
-                lp += self.priors.jitter.log_density(x[self.n_orbit_params + j]);
+                lp += prepared.jitter.log_density(x[self.n_orbit_params + j]);
             }
         }
         lp

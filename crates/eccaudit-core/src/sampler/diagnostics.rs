@@ -40,29 +40,30 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
             window_found: false,
         };
     }
-    // Only chains with positive variance contribute; their autocorrelations are averaged.
-    let acov = LazyAutocovariance::new(traces, n);
-    let used: Vec<usize> = (0..traces.len())
-        .filter(|&c| {
-            let v = acov.at(c, 0);
-            !v.is_nan() && v > 0.0
-        })
-        .collect();
-    if used.is_empty() {
+    // Only chains with positive variance contribute; their autocorrelations ρ_c = γ_c/γ_c(0)
+    // are averaged, i.e. the autocovariances are pooled with weights 1/(γ_c(0) · chains used).
+    let centred = centre(traces, n);
+    let variances: Vec<f64> = centred.iter().map(|x| lag_product(x, 0) / n as f64).collect();
+    let n_used = variances.iter().filter(|v| !v.is_nan() && **v > 0.0).count();
+    if n_used == 0 {
         return AutocorrelationEstimate {
             tau: f64::NAN,
             window: 0,
             window_found: false,
         };
     }
-    let variances: Vec<f64> = used.iter().map(|&c| acov.at(c, 0)).collect();
-    let mean_rho = |lag: usize| {
-        used.iter()
-            .zip(&variances)
-            .map(|(&c, v)| acov.at(c, lag) / v)
-            .sum::<f64>()
-            / used.len() as f64
-    };
+    let weights = variances
+        .iter()
+        .map(|&v| {
+            if !v.is_nan() && v > 0.0 {
+                1.0 / (v * n_used as f64)
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let pooled = PooledAutocovariance::new(centred, weights);
+    let mean_rho = |lag: usize| pooled.at(lag);
     let mut tau = 1.0;
     for window in 1..n {
         tau += 2.0 * mean_rho(window);
@@ -159,10 +160,10 @@ pub fn effective_sample_size(traces: &[Vec<f64>]) -> f64 {
     if m == 0 || n < 4 {
         return f64::NAN;
     }
-    let acov = LazyAutocovariance::new(traces, n);
     let chain_means: Vec<f64> = traces.iter().map(|t| mean(&t[..n])).collect();
+    let pooled = PooledAutocovariance::new(centre(traces, n), vec![1.0 / m as f64; m]);
     let nf = n as f64;
-    let mean_acov = |t: usize| (0..m).map(|c| acov.at(c, t)).sum::<f64>() / m as f64;
+    let mean_acov = |t: usize| pooled.at(t);
     let mean_var = mean_acov(0) * nf / (nf - 1.0);
     let mut var_plus = mean_var * (nf - 1.0) / nf;
     if m > 1 {
@@ -299,16 +300,32 @@ pub struct Diagnostics {
     pub warnings: Vec<ConvergenceIssue>,
     /// Thresholds used.
     pub thresholds: ConvergenceThresholds,
+    /// What the verdict covers.
+    pub quantities: DiagnosedQuantities,
+}
+
+/// What a verdict covers.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DiagnosedQuantities {
+    /// Every sampled parameter ([`diagnose_with`]); `parameters[i]` is parameter i.
+    Every,
+    /// One derived quantity, named ([`diagnose_derived`]); `parameters` holds its entry.
+    Derived(String),
 }
 
 impl Diagnostics {
-    /// A plain-text verdict: "converged" or "NOT converged" followed by the advice lines.
+    /// A plain-text verdict: "converged" or "NOT converged" (with "judged on NAME alone" when
+    /// only a derived quantity was checked) followed by the advice lines.
     pub fn verdict(&self) -> String {
         let mut text = if self.converged {
             "converged".to_string()
         } else {
             "NOT converged".to_string()
         };
+        if let DiagnosedQuantities::Derived(name) = &self.quantities {
+            text.push_str(&format!(" (judged on {name} alone)"));
+        }
         for issue in self.issues.iter().chain(&self.warnings) {
             text.push_str("\n- ");
             text.push_str(&issue.advice);
@@ -326,83 +343,133 @@ pub fn diagnose(chains: &Chains) -> Diagnostics {
 /// any R̂ ≥ `r_hat_below` (or undefined), any τ unreliable or longer than
 /// `1/min_autocorrelation_times` of the run, or any ESS below `min_ess`.
 pub fn diagnose_with(chains: &Chains, thresholds: &ConvergenceThresholds) -> Diagnostics {
-    let n = chains.n_stored_steps;
-    let thin = chains.thin;
     let mut parameters = Vec::with_capacity(chains.dim);
     let mut issues = Vec::new();
     for param in 0..chains.dim {
         let traces = chains.parameter_traces(param);
-        let autocorrelation = integrated_autocorrelation_time(&traces);
-        let times = n as f64 / autocorrelation.tau;
-        // Split and rank-normalise once for R̂ and the bulk ESS.
-        let split = split_chains(&traces);
-        let normalized = rank_normalize(&split);
-        let r_hat = r_hat_of_split(&split, &normalized);
-        let bulk = effective_sample_size(&normalized);
-        let tail = ess_tail_of_split(&split);
-        if r_hat.max.is_nan() || r_hat.max >= thresholds.r_hat_below {
-            issues.push(ConvergenceIssue {
-                kind: IssueKind::RHat,
-                parameter: Some(param),
-                value: r_hat.max,
-                threshold: thresholds.r_hat_below,
-                advice: format!(
-                    "parameter {param}: walkers disagree (R̂ = {:.3}, needs < {}); run longer \
-                     (raise n_steps), lengthen the burn-in (n_burn) or start nearer the best fit; \
-                     if it stays high the posterior may have several modes — look at the traces",
-                    r_hat.max, thresholds.r_hat_below
-                ),
-            });
-        }
-        if !autocorrelation.window_found
-            || times.is_nan()
-            || times < thresholds.min_autocorrelation_times
-        {
-            let needed =
-                (thresholds.min_autocorrelation_times * autocorrelation.tau * thin as f64).ceil();
-            let lower_bound = if autocorrelation.window_found {
-                ""
-            } else {
-                " at least (the run is too short to estimate it)"
-            };
-            issues.push(ConvergenceIssue {
-                kind: IssueKind::ShortRun,
-                parameter: Some(param),
-                value: times,
-                threshold: thresholds.min_autocorrelation_times,
-                advice: format!(
-                    "parameter {param}: autocorrelation time τ = {:.1} stored steps{lower_bound}, \
-                     so the run spans only {:.1} τ (needs ≥ {}); raise n_steps to at least {needed}",
-                    autocorrelation.tau, times, thresholds.min_autocorrelation_times
-                ),
-            });
-        }
-        let worst_ess = if bulk.is_nan() || tail.is_nan() {
-            f64::NAN
-        } else {
-            bulk.min(tail)
-        };
-        if worst_ess.is_nan() || worst_ess < thresholds.min_ess {
-            issues.push(ConvergenceIssue {
-                kind: IssueKind::LowEss,
-                parameter: Some(param),
-                value: worst_ess,
-                threshold: thresholds.min_ess,
-                advice: format!(
-                    "parameter {param}: effective sample size bulk {bulk:.0}, tail {tail:.0} \
-                     (needs ≥ {}); raise n_steps or n_walkers",
-                    thresholds.min_ess
-                ),
-            });
-        }
-        parameters.push(ParameterDiagnostics {
-            autocorrelation,
-            autocorrelation_times_in_run: times,
-            r_hat,
-            ess_bulk: bulk,
-            ess_tail: tail,
+        let (diagnostics, found) =
+            diagnose_traces(&traces, &format!("parameter {param}"), chains.thin, thresholds);
+        parameters.push(diagnostics);
+        issues.extend(found.into_iter().map(|issue| ConvergenceIssue {
+            parameter: Some(param),
+            ..issue
+        }));
+    }
+    finish_diagnostics(chains, parameters, issues, thresholds, DiagnosedQuantities::Every)
+}
+
+/// Diagnoses a run by one derived quantity only (e.g. e = h² + k² in injection–recovery, where
+/// only e is reported): the same checks as [`diagnose_with`], applied to `traces` (one per
+/// walker, stored steps of `chains`), named `name` in the advice. The verdict says so.
+pub fn diagnose_derived(
+    chains: &Chains,
+    name: &str,
+    traces: &[Vec<f64>],
+    thresholds: &ConvergenceThresholds,
+) -> Diagnostics {
+    let (diagnostics, issues) = diagnose_traces(traces, name, chains.thin, thresholds);
+    finish_diagnostics(
+        chains,
+        vec![diagnostics],
+        issues,
+        thresholds,
+        DiagnosedQuantities::Derived(name.to_string()),
+    )
+}
+
+/// τ, split R̂ and bulk/tail ESS of one quantity, and the issues it raises (their `parameter`
+/// left unset); `subject` names it in the advice, `thin` is the chains' thinning.
+pub fn diagnose_traces(
+    traces: &[Vec<f64>],
+    subject: &str,
+    thin: usize,
+    thresholds: &ConvergenceThresholds,
+) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
+    let n = common_length(traces);
+    let mut issues = Vec::new();
+    let autocorrelation = integrated_autocorrelation_time(traces);
+    let times = n as f64 / autocorrelation.tau;
+    // Split and rank-normalise once for R̂ and the bulk ESS.
+    let split = split_chains(traces);
+    let normalized = rank_normalize(&split);
+    let r_hat = r_hat_of_split(&split, &normalized);
+    let bulk = effective_sample_size(&normalized);
+    let tail = ess_tail_of_split(&split);
+    if r_hat.max.is_nan() || r_hat.max >= thresholds.r_hat_below {
+        issues.push(ConvergenceIssue {
+            kind: IssueKind::RHat,
+            parameter: None,
+            value: r_hat.max,
+            threshold: thresholds.r_hat_below,
+            advice: format!(
+                "{subject}: walkers disagree (R̂ = {:.3}, needs < {}); run longer \
+                 (raise n_steps), lengthen the burn-in (n_burn) or start nearer the best fit; \
+                 if it stays high the posterior may have several modes — look at the traces",
+                r_hat.max, thresholds.r_hat_below
+            ),
         });
     }
+    if !autocorrelation.window_found
+        || times.is_nan()
+        || times < thresholds.min_autocorrelation_times
+    {
+        let needed =
+            (thresholds.min_autocorrelation_times * autocorrelation.tau * thin as f64).ceil();
+        let lower_bound = if autocorrelation.window_found {
+            ""
+        } else {
+            " at least (the run is too short to estimate it)"
+        };
+        issues.push(ConvergenceIssue {
+            kind: IssueKind::ShortRun,
+            parameter: None,
+            value: times,
+            threshold: thresholds.min_autocorrelation_times,
+            advice: format!(
+                "{subject}: autocorrelation time τ = {:.1} stored steps{lower_bound}, \
+                 so the run spans only {:.1} τ (needs ≥ {}); raise n_steps to at least {needed}",
+                autocorrelation.tau, times, thresholds.min_autocorrelation_times
+            ),
+        });
+    }
+    let worst_ess = if bulk.is_nan() || tail.is_nan() {
+        f64::NAN
+    } else {
+        bulk.min(tail)
+    };
+    if worst_ess.is_nan() || worst_ess < thresholds.min_ess {
+        issues.push(ConvergenceIssue {
+            kind: IssueKind::LowEss,
+            parameter: None,
+            value: worst_ess,
+            threshold: thresholds.min_ess,
+            advice: format!(
+                "{subject}: effective sample size bulk {bulk:.0}, tail {tail:.0} \
+                 (needs ≥ {}); raise n_steps or n_walkers",
+                thresholds.min_ess
+            ),
+        });
+    }
+    let diagnostics = ParameterDiagnostics {
+        autocorrelation,
+        autocorrelation_times_in_run: times,
+        r_hat,
+        ess_bulk: bulk,
+        ess_tail: tail,
+    };
+    (diagnostics, issues)
+}
+
+/// The acceptance warnings and the verdict.
+fn finish_diagnostics(
+    chains: &Chains,
+    parameters: Vec<ParameterDiagnostics>,
+    issues: Vec<ConvergenceIssue>,
+    thresholds: &ConvergenceThresholds,
+    quantities: DiagnosedQuantities,
+) -> Diagnostics {
+    let n = chains.n_stored_steps;
+    let thin = chains.thin;
     let acceptance_fraction = chains.acceptance_fraction();
     let mut warnings = Vec::new();
     let (low, high) = thresholds.acceptance_range;
@@ -440,6 +507,7 @@ pub fn diagnose_with(chains: &Chains, thresholds: &ConvergenceThresholds) -> Dia
         issues,
         warnings,
         thresholds: *thresholds,
+        quantities,
     }
 }
 
@@ -565,80 +633,121 @@ fn rank_normalize(chains: &[Vec<f64>]) -> Vec<Vec<f64>> {
     z.chunks(n.max(1)).map(<[f64]>::to_vec).collect()
 }
 
-/// Lags computed by direct sums before a chain switches to one FFT of all its lags.
+/// Lags summed directly before [`PooledAutocovariance`] switches to FFTs for all lags.
 ///
-/// A direct lag costs n multiply-adds, the FFT about 10 · 2n · log₂(2n) operations, so past a few
-/// dozen lags the FFT is cheaper; most windows stop well before this when chains mix fast.
+/// A direct lag costs n multiply-adds per chain, the FFTs about 5 · 2n · log₂(2n) operations per
+/// pair of chains, so past a few dozen lags the FFT is cheaper; most windows stop well before
+/// this when chains mix fast.
 const DIRECT_LAGS: usize = 48;
 
-/// Biased autocovariances γ_c(t) = (1/n) Σ_{i<n−t} (x_i − x̄)(x_{i+t} − x̄) of several chains,
-/// each computed when asked for.
-///
-/// The windows that use them (Sokal's for τ, Geyer's initial sequence for the ESS) stop after a
-/// few autocorrelation times. Short lags are summed directly; a chain asked for a lag beyond
-/// [`DIRECT_LAGS`] gets all its lags at once by FFT, kept for later calls.
-struct LazyAutocovariance {
-    centred: Vec<Vec<f64>>,
-    n: usize,
-    by_fft: Vec<std::cell::OnceCell<Vec<f64>>>,
+/// The first `n` draws of each trace, centred on their own mean.
+fn centre(traces: &[Vec<f64>], n: usize) -> Vec<Vec<f64>> {
+    traces
+        .iter()
+        .map(|t| {
+            let m = mean(&t[..n]);
+            t[..n].iter().map(|x| x - m).collect()
+        })
+        .collect()
 }
 
-impl LazyAutocovariance {
-    /// The first `n` draws of each trace, centred on their own mean.
-    fn new(traces: &[Vec<f64>], n: usize) -> Self {
-        let centred: Vec<Vec<f64>> = traces
-            .iter()
-            .map(|t| {
-                let m = mean(&t[..n]);
-                t[..n].iter().map(|x| x - m).collect()
-            })
-            .collect();
-        let by_fft = (0..centred.len())
-            .map(|_| std::cell::OnceCell::new())
-            .collect();
-        LazyAutocovariance { centred, n, by_fft }
+/// Σᵢ x_i x_{i+lag} over the overlap.
+fn lag_product(x: &[f64], lag: usize) -> f64 {
+    x[..x.len() - lag]
+        .iter()
+        .zip(&x[lag..])
+        .map(|(a, b)| a * b)
+        .sum()
+}
+
+/// A weighted sum over chains of biased autocovariances,
+/// Γ(t) = Σ_c w_c γ_c(t) with γ_c(t) = (1/n) Σ_{i<n−t} (x_i − x̄)(x_{i+t} − x̄),
+/// each lag computed when asked for.
+///
+/// Every window that uses it (Sokal's for τ, Geyer's initial sequence for the ESS) needs only the
+/// pooled sum, and stops after a few autocorrelation times. Short lags are summed directly; the
+/// first lag beyond [`DIRECT_LAGS`] gets all lags at once by the Wiener–Khinchin theorem, with
+/// the power spectra summed before a single inverse transform, and two real chains packed into
+/// each complex forward transform (|A(k)|² + |B(k)|² = (|Z(k)|² + |Z(N−k)|²)/2 for z = a + ib,
+/// Press et al. 2007, Numerical Recipes, 3rd ed., §12.3.2, "FFT of two real functions
+/// simultaneously" — section number from memory).
+struct PooledAutocovariance {
+    centred: Vec<Vec<f64>>,
+    weights: Vec<f64>,
+    n: usize,
+    by_fft: std::cell::OnceCell<Vec<f64>>,
+}
+
+impl PooledAutocovariance {
+    /// `centred[c]` (all of one length n, centred on their means) with weights `weights[c]` ≥ 0.
+    fn new(centred: Vec<Vec<f64>>, weights: Vec<f64>) -> Self {
+        let n = centred.first().map_or(0, Vec::len);
+        PooledAutocovariance {
+            centred,
+            weights,
+            n,
+            by_fft: std::cell::OnceCell::new(),
+        }
     }
 
-    /// γ_chain(lag); 0 beyond the last lag.
-    fn at(&self, chain: usize, lag: usize) -> f64 {
+    /// Γ(lag); 0 beyond the last lag.
+    fn at(&self, lag: usize) -> f64 {
         if lag >= self.n {
             return 0.0;
         }
-        let x = &self.centred[chain];
         if lag < DIRECT_LAGS {
-            let sum: f64 = x[..self.n - lag]
+            return self
+                .centred
                 .iter()
-                .zip(&x[lag..])
-                .map(|(a, b)| a * b)
-                .sum();
-            return sum / self.n as f64;
+                .zip(&self.weights)
+                .filter(|(_, &w)| w != 0.0)
+                .map(|(x, &w)| w * lag_product(x, lag))
+                .sum::<f64>()
+                / self.n as f64;
         }
-        self.by_fft[chain].get_or_init(|| autocovariance(x))[lag]
+        self.by_fft.get_or_init(|| self.all_lags())[lag]
     }
-}
 
-/// Biased autocovariance γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄) for t = 0..n−1,
-/// by zero-padded FFT (Wiener–Khinchin).
-fn autocovariance(x: &[f64]) -> Vec<f64> {
-    let n = x.len();
-    let size = (2 * n).next_power_of_two();
-    let m = mean(x);
-    let mut re = vec![0.0; size];
-    let mut im = vec![0.0; size];
-    for (r, v) in re.iter_mut().zip(x) {
-        *r = v - m;
+    /// Γ(t) for t = 0..n−1 by zero-padded FFTs (see the type's notes).
+    fn all_lags(&self) -> Vec<f64> {
+        let n = self.n;
+        let size = (2 * n).next_power_of_two();
+        let mut power = vec![0.0; size];
+        let mut re = vec![0.0; size];
+        let mut im = vec![0.0; size];
+        let used: Vec<(&Vec<f64>, f64)> = self
+            .centred
+            .iter()
+            .zip(self.weights.iter().copied())
+            .filter(|&(_, w)| w != 0.0)
+            .collect();
+        for pair in used.chunks(2) {
+            re.fill(0.0);
+            im.fill(0.0);
+            let scaled = |x: &Vec<f64>, w: f64, out: &mut [f64]| {
+                let s = libm::sqrt(w);
+                for (o, v) in out.iter_mut().zip(x) {
+                    *o = s * v;
+                }
+            };
+            scaled(pair[0].0, pair[0].1, &mut re);
+            if let Some(&(x, w)) = pair.get(1) {
+                scaled(x, w, &mut im);
+            }
+            fft_in_place(&mut re, &mut im, false);
+            for (k, p) in power.iter_mut().enumerate() {
+                let j = (size - k) & (size - 1);
+                *p += 0.5 * (re[k] * re[k] + im[k] * im[k] + re[j] * re[j] + im[j] * im[j]);
+            }
+        }
+        im.fill(0.0);
+        fft_in_place(&mut power, &mut im, true);
+        power.truncate(n);
+        for p in &mut power {
+            *p /= (size * n) as f64;
+        }
+        power
     }
-    fft_in_place(&mut re, &mut im, false);
-    for (r, i) in re.iter_mut().zip(im.iter_mut()) {
-        *r = *r * *r + *i * *i;
-        *i = 0.0;
-    }
-    fft_in_place(&mut re, &mut im, true);
-    re.truncate(n);
-    for r in &mut re {
-        *r /= (size * n) as f64;
-    }
-    re
 }
 
 /// Iterative radix-2 Cooley–Tukey FFT (Cooley & Tukey 1965, Math. Comp. 19,
@@ -720,49 +829,42 @@ mod tests {
         }
     }
 
-    /// FFT autocovariance equals the direct sum (definition, common practice).
+    /// The pooled autocovariance is Σ_c w_c γ_c(t) of the biased estimator
+    /// γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄) (definition, common practice), by direct sums below
+    /// DIRECT_LAGS and by paired FFTs above, for odd and even chain counts, and 0 beyond the last
+    /// lag. Tolerance: FFT rounding, ~1e-15 of Σ x², far below 1e-12.
     #[test]
-    fn fft_autocovariance_matches_direct_sum() {
-        let x: Vec<f64> = (0..37)
-            .map(|i| libm::sin(i as f64 * 0.7) + 0.1 * i as f64)
+    fn pooled_autocovariance_is_the_weighted_biased_estimator() {
+        let n = 137;
+        let chains: Vec<Vec<f64>> = (0..3)
+            .map(|c| {
+                (0..n)
+                    .map(|i| libm::sin(i as f64 * (0.7 + 0.1 * c as f64)) + 0.01 * (i * c) as f64)
+                    .collect()
+            })
             .collect();
-        let acov = autocovariance(&x);
-        let m = mean(&x);
-        for t in [0, 1, 5, 36] {
-            let direct: f64 = (0..x.len() - t)
-                .map(|i| (x[i] - m) * (x[i + t] - m))
-                .sum::<f64>()
-                / x.len() as f64;
-            assert!(
-                (acov[t] - direct).abs() < 1e-12,
-                "lag {t}: {} vs {direct}",
-                acov[t]
-            );
+        for n_chains in [1, 2, 3] {
+            let traces = &chains[..n_chains];
+            let weights: Vec<f64> = (0..n_chains).map(|c| 0.5 + c as f64).collect();
+            let pooled = PooledAutocovariance::new(centre(traces, n), weights.clone());
+            for t in [0, 1, 5, 47, 48, 100, 136] {
+                let direct: f64 = traces
+                    .iter()
+                    .zip(&weights)
+                    .map(|(x, w)| {
+                        let m = mean(x);
+                        w * (0..n - t).map(|i| (x[i] - m) * (x[i + t] - m)).sum::<f64>()
+                            / n as f64
+                    })
+                    .sum();
+                assert!(
+                    (pooled.at(t) - direct).abs() < 1e-12,
+                    "{n_chains} chains, lag {t}: {} vs {direct}",
+                    pooled.at(t)
+                );
+            }
+            assert_eq!(pooled.at(n), 0.0);
         }
-    }
-
-    /// The lazy autocovariance is the biased estimator γ(t) = (1/n) Σ (x_i − x̄)(x_{i+t} − x̄)
-    /// (definition, common practice), and 0 beyond the last lag.
-    #[test]
-    fn lazy_autocovariance_is_the_biased_estimator() {
-        let x: Vec<f64> = (0..137)
-            .map(|i| libm::sin(i as f64 * 0.7) + 0.01 * i as f64)
-            .collect();
-        let acov = LazyAutocovariance::new(std::slice::from_ref(&x), x.len());
-        let m = mean(&x);
-        // Lags below DIRECT_LAGS by direct sums, the others from the FFT.
-        for t in [0, 1, 5, 47, 48, 100, 136] {
-            let direct: f64 = (0..x.len() - t)
-                .map(|i| (x[i] - m) * (x[i + t] - m))
-                .sum::<f64>()
-                / x.len() as f64;
-            assert!(
-                (acov.at(0, t) - direct).abs() < 1e-12,
-                "lag {t}: {} vs {direct}",
-                acov.at(0, t)
-            );
-        }
-        assert_eq!(acov.at(0, 137), 0.0);
     }
 
     #[test]

@@ -17,9 +17,9 @@ pub mod diagnostics;
 pub mod ensemble;
 
 pub use diagnostics::{
-    diagnose, diagnose_with, effective_sample_size, ess_bulk, ess_tail,
+    diagnose, diagnose_derived, diagnose_traces, diagnose_with, effective_sample_size, ess_bulk, ess_tail,
     integrated_autocorrelation_time, rank_normalized_split_r_hat, standard_normal_quantile,
-    AutocorrelationEstimate, ConvergenceIssue, ConvergenceThresholds, Diagnostics, IssueKind,
+    AutocorrelationEstimate, ConvergenceIssue, ConvergenceThresholds, DiagnosedQuantities, Diagnostics, IssueKind,
     ParameterDiagnostics, RHat,
 };
 pub use ensemble::{
