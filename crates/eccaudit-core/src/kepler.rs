@@ -101,6 +101,16 @@ pub fn reduce_angle_signed(angle: f64) -> f64 {
     }
 }
 
+/// [`reduce_angle_signed`] on lanes: the Cody–Waite path on every lane (the same operations, so
+/// the same bits) and the mask of lanes inside its range; the others need
+/// [`reduce_angle_signed`].
+#[inline(always)]
+pub(crate) fn reduce_angle_signed_lanes<const N: usize>(
+    angle: Lanes<N>,
+) -> (Lanes<N>, LaneMask<N>) {
+    (cody_waite_signed(angle), angle.abs().lt(CODY_WAITE_LIMIT))
+}
+
 /// [`reduce_angle_signed`] beyond the Cody–Waite range (and for non-finite input).
 #[cold]
 #[inline(never)]
@@ -655,18 +665,33 @@ const SOLVE_LANES_AVX2: usize = 8;
 /// the work. Pairs with an eccentricity outside [0, 1) contribute NaN (so the checksum becomes
 /// NaN) instead of panicking. Each E is bit for bit the value of [`eccentric_anomaly`].
 ///
-/// On x86-64 processors with AVX2 the same code runs with wider registers (detected at run time);
+/// On x86-64 processors with AVX2 or AVX-512F the same code runs with wider registers (detected
+/// at run time);
 /// the lanes still perform only correctly rounded IEEE operations without fused multiply–add,
 /// so the bits do not change.
 pub fn solve_all(inputs: &[(f64, f64)]) -> f64 {
     #[cfg(target_arch = "x86_64")]
     {
+        if std::is_x86_feature_detected!("avx512f") {
+            // SAFETY: the processor supports AVX-512F, checked just above.
+            return unsafe { solve_all_avx512(inputs) };
+        }
         if std::is_x86_feature_detected!("avx2") {
             // SAFETY: the processor supports AVX2, checked just above.
             return unsafe { solve_all_avx2(inputs) };
         }
     }
     solve_all_lanes::<SOLVE_LANES>(inputs)
+}
+
+/// [`solve_all_lanes`] compiled for AVX-512F: eight lanes in one 512-bit register.
+///
+/// # Safety
+/// The processor must support AVX-512F.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+unsafe fn solve_all_avx512(inputs: &[(f64, f64)]) -> f64 {
+    solve_all_lanes::<SOLVE_LANES_AVX2>(inputs)
 }
 
 /// [`solve_all_lanes`] compiled for AVX2.

@@ -222,8 +222,7 @@ impl RvModel {
     ) {
         // The last, partial group is padded with copies of its first time; those lanes are
         // dropped (a lane has exactly the bits of the scalar path, so padding changes nothing).
-        for (group, (time_chunk, out_chunk)) in times.chunks(N).zip(out.chunks_mut(N)).enumerate()
-        {
+        for (group, (time_chunk, out_chunk)) in times.chunks(N).zip(out.chunks_mut(N)).enumerate() {
             let start = group * N;
             let chunk_times: [f64; N] =
                 core::array::from_fn(|i| *time_chunk.get(i).unwrap_or(&time_chunk[0]));
@@ -237,7 +236,7 @@ impl RvModel {
     }
 
     /// [`Self::fill_velocities`] with the lane count suited to the processor: eight lanes with
-    /// AVX2 (detected at run time; the same IEEE operations, so the same bits), else four.
+    /// AVX-512F or AVX2 (detected at run time; the same IEEE operations, so the same bits), else four.
     fn fill_velocities_dispatch(
         &self,
         times: &[f64],
@@ -246,6 +245,11 @@ impl RvModel {
     ) {
         #[cfg(target_arch = "x86_64")]
         {
+            if std::is_x86_feature_detected!("avx512f") {
+                // SAFETY: the processor supports AVX-512F, checked just above.
+                unsafe { self.fill_velocities_avx512(times, out, offset_at) };
+                return;
+            }
             if std::is_x86_feature_detected!("avx2") {
                 // SAFETY: the processor supports AVX2, checked just above.
                 unsafe { self.fill_velocities_avx2(times, out, offset_at) };
@@ -253,6 +257,21 @@ impl RvModel {
             }
         }
         self.fill_velocities::<MODEL_LANES>(times, out, offset_at);
+    }
+
+    /// [`Self::fill_velocities`] compiled for AVX-512F (eight lanes in one register).
+    ///
+    /// # Safety
+    /// The processor must support AVX-512F.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx512f")]
+    unsafe fn fill_velocities_avx512(
+        &self,
+        times: &[f64],
+        out: &mut [f64],
+        offset_at: impl Fn(usize) -> f64,
+    ) {
+        self.fill_velocities::<MODEL_LANES_AVX2>(times, out, offset_at);
     }
 
     /// [`Self::fill_velocities`] compiled for AVX2.

@@ -10,7 +10,8 @@
 
 use crate::kepler::{
     eccentric_anomaly_reduced, eccentric_anomaly_reduced_fast, reduce_angle_signed,
-    true_anomaly_cos_sin_lanes, true_anomaly_cos_sin_prepared, Eccentricity, Lanes, TWO_PI,
+    reduce_angle_signed_lanes, true_anomaly_cos_sin_lanes, true_anomaly_cos_sin_prepared,
+    Eccentricity, Lanes, TWO_PI,
 };
 use crate::lsq::{DMatrix, LeastSquaresProblem};
 
@@ -387,9 +388,17 @@ impl<'a> RvProblem<'a> {
             let Some(prepared) = Prepared::new(&comp) else {
                 return false;
             };
-            prepared.for_each_true_anomaly(&self.data.shifted_times, |i, cos_nu, sin_nu| {
-                out[i] += comp.semi_amplitude * prepared.terms(cos_nu, sin_nu).velocity_shape;
-            });
+            let k = comp.semi_amplitude;
+            prepared.for_each_true_anomaly_group(
+                &self.data.shifted_times,
+                |start, cos_nu, sin_nu| {
+                    // No branch in this loop: it runs on the solver's vector registers.
+                    let group = &mut out[start..start + cos_nu.len()];
+                    for ((slot, &cos), &sin) in group.iter_mut().zip(cos_nu).zip(sin_nu) {
+                        *slot += k * prepared.terms(cos, sin).velocity_shape;
+                    }
+                },
+            );
         }
         out.iter().all(|v| v.is_finite())
     }
@@ -462,24 +471,26 @@ impl Prepared {
     fn for_each_true_anomaly_lanes<const N: usize>(
         &self,
         shifted_times: &[f64],
-        visit: &mut impl FnMut(usize, f64, f64),
+        visit: &mut impl FnMut(usize, &[f64], &[f64]),
     ) {
         for (group, chunk) in shifted_times.chunks(N).enumerate() {
             let start = group * N;
-            let mean_anomaly: Lanes<N> = Lanes(core::array::from_fn(|i| {
-                self.mean_anomaly(*chunk.get(i).unwrap_or(&chunk[0]))
-            }));
-            let (_, sin_e, cos_e, valid) = eccentric_anomaly_reduced_fast(mean_anomaly, self.e);
-            let (Lanes(cos_nu), Lanes(sin_nu)) =
+            let dt: Lanes<N> = Lanes(core::array::from_fn(|i| *chunk.get(i).unwrap_or(&chunk[0])));
+            // The operations of `Self::mean_anomaly`, lane by lane.
+            let (mean_anomaly, in_range) =
+                reduce_angle_signed_lanes(dt * self.mean_motion + self.mean_anomaly_at_reference);
+            let (_, sin_e, cos_e, solved) = eccentric_anomaly_reduced_fast(mean_anomaly, self.e);
+            let valid = solved & in_range;
+            let (Lanes(mut cos_nu), Lanes(mut sin_nu)) =
                 true_anomaly_cos_sin_lanes(sin_e, cos_e, self.e, self.s);
-            for (i, &dt) in chunk.iter().enumerate() {
-                if valid.lane(i) {
-                    visit(start + i, cos_nu[i], sin_nu[i]);
-                } else {
-                    let (cos, sin) = self.true_anomaly(dt);
-                    visit(start + i, cos, sin);
+            if !valid.all() {
+                for (i, &dt) in chunk.iter().enumerate() {
+                    if !valid.lane(i) {
+                        (cos_nu[i], sin_nu[i]) = self.true_anomaly(dt);
+                    }
                 }
             }
+            visit(start, &cos_nu[..chunk.len()], &sin_nu[..chunk.len()]);
         }
     }
 
@@ -487,8 +498,28 @@ impl Prepared {
     /// [`crate::model::RvModel::velocities`]: eight with AVX2 (detected at run time), else four.
     #[inline]
     fn for_each_true_anomaly(&self, shifted_times: &[f64], mut visit: impl FnMut(usize, f64, f64)) {
+        self.for_each_true_anomaly_group(shifted_times, |start, cos_nu, sin_nu| {
+            for (i, (&cos, &sin)) in cos_nu.iter().zip(sin_nu).enumerate() {
+                visit(start + i, cos, sin);
+            }
+        });
+    }
+
+    /// [`Self::for_each_true_anomaly`] a group of epochs at a time:
+    /// `visit(start, cos ν[start..start + len], sin ν[start..start + len])`, the groups in order.
+    #[inline]
+    fn for_each_true_anomaly_group(
+        &self,
+        shifted_times: &[f64],
+        mut visit: impl FnMut(usize, &[f64], &[f64]),
+    ) {
         #[cfg(target_arch = "x86_64")]
         {
+            if std::is_x86_feature_detected!("avx512f") {
+                // SAFETY: the processor supports AVX-512F, checked just above.
+                unsafe { self.for_each_true_anomaly_avx512(shifted_times, &mut visit) };
+                return;
+            }
             if std::is_x86_feature_detected!("avx2") {
                 // SAFETY: the processor supports AVX2, checked just above.
                 unsafe { self.for_each_true_anomaly_avx2(shifted_times, &mut visit) };
@@ -496,6 +527,21 @@ impl Prepared {
             }
         }
         self.for_each_true_anomaly_lanes::<ANOMALY_LANES>(shifted_times, &mut visit);
+    }
+
+    /// [`Self::for_each_true_anomaly_lanes`] compiled for AVX-512F (eight lanes in one register;
+    /// the same IEEE operations, so the same bits).
+    ///
+    /// # Safety
+    /// The processor must support AVX-512F.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx512f")]
+    unsafe fn for_each_true_anomaly_avx512(
+        &self,
+        shifted_times: &[f64],
+        visit: &mut impl FnMut(usize, &[f64], &[f64]),
+    ) {
+        self.for_each_true_anomaly_lanes::<ANOMALY_LANES_AVX512>(shifted_times, visit);
     }
 
     /// [`Self::for_each_true_anomaly_lanes`] compiled for AVX2.
@@ -507,7 +553,7 @@ impl Prepared {
     unsafe fn for_each_true_anomaly_avx2(
         &self,
         shifted_times: &[f64],
-        visit: &mut impl FnMut(usize, f64, f64),
+        visit: &mut impl FnMut(usize, &[f64], &[f64]),
     ) {
         self.for_each_true_anomaly_lanes::<ANOMALY_LANES_AVX2>(shifted_times, visit);
     }
@@ -532,6 +578,10 @@ const ANOMALY_LANES: usize = 4;
 /// The lane count of [`Prepared::for_each_true_anomaly`] with AVX2 (two 256-bit registers).
 #[cfg(target_arch = "x86_64")]
 const ANOMALY_LANES_AVX2: usize = 8;
+
+/// The lane count of [`Prepared::for_each_true_anomaly`] with AVX-512F (one 512-bit register).
+#[cfg(target_arch = "x86_64")]
+const ANOMALY_LANES_AVX512: usize = 8;
 
 impl LeastSquaresProblem for RvProblem<'_> {
     fn n_params(&self) -> usize {

@@ -9,8 +9,8 @@ use serde::{Deserialize, Serialize};
 use crate::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use crate::priors::{EccentricityPriorSettings, EccentricityShape};
 use crate::sampler::{
-    diagnose_derived, diagnose_traces, diagnose_with, Chains, ConvergenceThresholds, EnsembleState,
-    SamplerSettings,
+    diagnose_derived, diagnose_traces, diagnose_with, Chains, ConvergenceThresholds,
+    DiagnosisDepth, EnsembleState, SamplerSettings,
 };
 
 use super::start::{start_from_fit, PosteriorStart};
@@ -91,7 +91,8 @@ pub fn run_posterior(
 enum Judged {
     /// Every sampled parameter (a run whose result is looked at or quoted).
     EveryParameter,
-    /// e alone (injection–recovery, where only e is used; a fraction of the cost).
+    /// e alone, by the quick checks of [`DiagnosisDepth::Quick`] (injection–recovery, where only
+    /// e is used and thousands of runs are summarised together; a small fraction of the cost).
     EccentricityAlone,
 }
 
@@ -152,7 +153,8 @@ fn run_posterior_judged(
             diagnose_traces(&e_traces, "e", chains.thin, &thresholds).0,
         ),
         Judged::EccentricityAlone => {
-            let diagnostics = diagnose_derived(&chains, "e", &e_traces, &thresholds);
+            let diagnostics =
+                diagnose_derived(&chains, "e", &e_traces, &thresholds, DiagnosisDepth::Quick);
             let e = diagnostics.parameters[0];
             (diagnostics, e)
         }
@@ -175,9 +177,9 @@ fn run_posterior_judged(
 /// The function for repeated use (e.g. the injection–recovery engine): the e summary of one run
 /// from a given start, without progress reporting. Pair with [`fast_sampler_settings`].
 ///
-/// Only e is used, so convergence is judged on e alone ([`diagnose_derived`]): the other
-/// parameters' diagnostics cost several times the sampling of a short run and change nothing
-/// that is reported.
+/// Only e is used, so convergence is judged on e alone, by the quick checks of
+/// [`DiagnosisDepth::Quick`] ([`diagnose_derived`]): the full diagnostics of every parameter cost
+/// several times the sampling of a short run and change nothing that is reported per trial.
 pub fn posterior_eccentricity(
     data: &FitData,
     settings: &PosteriorSettings,

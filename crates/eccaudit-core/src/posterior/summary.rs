@@ -291,7 +291,7 @@ pub fn summarise_eccentricity(
     cost: SamplerCost,
 ) -> EccentricitySummary {
     let mut sorted: Vec<f64> = traces.iter().flatten().copied().collect();
-    sorted.sort_by(f64::total_cmp);
+    sorted.sort_unstable_by(f64::total_cmp);
     let n = sorted.len().max(1);
     let nf = n as f64;
     let (lo, hi) = prior.bounds();

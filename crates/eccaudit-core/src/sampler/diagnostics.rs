@@ -43,8 +43,14 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
     // Only chains with positive variance contribute; their autocorrelations ρ_c = γ_c/γ_c(0)
     // are averaged, i.e. the autocovariances are pooled with weights 1/(γ_c(0) · chains used).
     let centred = centre(traces, n);
-    let variances: Vec<f64> = centred.iter().map(|x| lag_product(x, 0) / n as f64).collect();
-    let n_used = variances.iter().filter(|v| !v.is_nan() && **v > 0.0).count();
+    let variances: Vec<f64> = centred
+        .iter()
+        .map(|x| lag_product(x, 0) / n as f64)
+        .collect();
+    let n_used = variances
+        .iter()
+        .filter(|v| !v.is_nan() && **v > 0.0)
+        .count();
     if n_used == 0 {
         return AutocorrelationEstimate {
             tau: f64::NAN,
@@ -98,53 +104,81 @@ pub struct RHat {
 
 /// Split rank-normalised R̂ (Vehtari et al. 2021, Bayesian Analysis 16, 667, §4).
 pub fn rank_normalized_split_r_hat(traces: &[Vec<f64>]) -> RHat {
-    let split = split_chains(traces);
-    r_hat_of_split(&split, &rank_normalize(&split))
-}
-
-fn r_hat_of_split(split: &[Vec<f64>], normalized: &[Vec<f64>]) -> RHat {
-    let bulk = split_r_hat_of(normalized);
-    let median = quantile_type7(&pooled_sorted(split), 0.5);
-    let folded: Vec<Vec<f64>> = split
-        .iter()
-        .map(|c| c.iter().map(|x| (x - median).abs()).collect())
-        .collect();
-    let tail = split_r_hat_of(&rank_normalize(&folded));
-    RHat {
-        bulk,
-        tail,
-        max: bulk.max(tail),
-    }
+    SplitDraws::new(traces).r_hat()
 }
 
 /// Bulk effective sample size: the ESS of the rank-normalised split chains
 /// (Vehtari et al. 2021, Bayesian Analysis 16, 667, §4.3).
 pub fn ess_bulk(traces: &[Vec<f64>]) -> f64 {
-    effective_sample_size(&rank_normalize(&split_chains(traces)))
+    effective_sample_size(&SplitDraws::new(traces).normalized())
 }
 
 /// Tail effective sample size: the smaller ESS of the indicators
 /// I(θ ≤ q₀.₀₅) and I(θ ≤ q₀.₉₅) on split chains (Vehtari et al. 2021,
 /// Bayesian Analysis 16, 667, §4.3).
 pub fn ess_tail(traces: &[Vec<f64>]) -> f64 {
-    ess_tail_of_split(&split_chains(traces))
+    SplitDraws::new(traces).ess_tail()
 }
 
-fn ess_tail_of_split(split: &[Vec<f64>]) -> f64 {
-    let sorted = pooled_sorted(split);
-    let ess_at = |prob: f64| {
-        let q = quantile_type7(&sorted, prob);
-        let indicator: Vec<Vec<f64>> = split
-            .iter()
-            .map(|c| c.iter().map(|&x| if x <= q { 1.0 } else { 0.0 }).collect())
-            .collect();
-        effective_sample_size(&indicator)
-    };
-    let (low, high) = (ess_at(0.05), ess_at(0.95));
-    if low.is_nan() || high.is_nan() {
-        f64::NAN
-    } else {
-        low.min(high)
+/// Split chains of one quantity with their pooled ranking, sorted once and shared by R̂ (bulk
+/// and folded), the bulk ESS and the tail ESS.
+struct SplitDraws {
+    chains: Vec<Vec<f64>>,
+    ranked: RankedDraws,
+    scores: std::cell::RefCell<NormalScores>,
+}
+
+impl SplitDraws {
+    fn new(traces: &[Vec<f64>]) -> Self {
+        let chains = split_chains(traces);
+        let ranked = RankedDraws::new(&chains);
+        let scores = std::cell::RefCell::new(NormalScores::new(ranked.len()));
+        SplitDraws {
+            chains,
+            ranked,
+            scores,
+        }
+    }
+
+    /// The rank-normalised split chains.
+    fn normalized(&self) -> Vec<Vec<f64>> {
+        self.ranked.normalized(&mut self.scores.borrow_mut())
+    }
+
+    /// Bulk R̂ from `normalized` (as returned by [`Self::normalized`]) and tail R̂ from the
+    /// draws folded about the median.
+    fn r_hat_from(&self, normalized: &[Vec<f64>]) -> RHat {
+        let bulk = split_r_hat_of(normalized);
+        let median = self.ranked.quantile(0.5);
+        let folded = self.ranked.folded(median);
+        let tail = split_r_hat_of(&folded.normalized(&mut self.scores.borrow_mut()));
+        RHat {
+            bulk,
+            tail,
+            max: bulk.max(tail),
+        }
+    }
+
+    fn r_hat(&self) -> RHat {
+        self.r_hat_from(&self.normalized())
+    }
+
+    fn ess_tail(&self) -> f64 {
+        let ess_at = |prob: f64| {
+            let q = self.ranked.quantile(prob);
+            let indicator: Vec<Vec<f64>> = self
+                .chains
+                .iter()
+                .map(|c| c.iter().map(|&x| if x <= q { 1.0 } else { 0.0 }).collect())
+                .collect();
+            effective_sample_size(&indicator)
+        };
+        let (low, high) = (ess_at(0.05), ess_at(0.95));
+        if low.is_nan() || high.is_nan() {
+            f64::NAN
+        } else {
+            low.min(high)
+        }
     }
 }
 
@@ -310,8 +344,13 @@ pub struct Diagnostics {
 pub enum DiagnosedQuantities {
     /// Every sampled parameter ([`diagnose_with`]); `parameters[i]` is parameter i.
     Every,
-    /// One derived quantity, named ([`diagnose_derived`]); `parameters` holds its entry.
-    Derived(String),
+    /// One derived quantity ([`diagnose_derived`]); `parameters` holds its entry.
+    Derived {
+        /// Its name.
+        name: String,
+        /// How thoroughly.
+        depth: DiagnosisDepth,
+    },
 }
 
 impl Diagnostics {
@@ -323,8 +362,13 @@ impl Diagnostics {
         } else {
             "NOT converged".to_string()
         };
-        if let DiagnosedQuantities::Derived(name) = &self.quantities {
-            text.push_str(&format!(" (judged on {name} alone)"));
+        if let DiagnosedQuantities::Derived { name, depth } = &self.quantities {
+            text.push_str(&match depth {
+                DiagnosisDepth::Full => format!(" (judged on {name} alone)"),
+                DiagnosisDepth::Quick => {
+                    format!(" (judged on {name} alone, by split R̂ and τ)")
+                }
+            });
         }
         for issue in self.issues.iter().chain(&self.warnings) {
             text.push_str("\n- ");
@@ -347,15 +391,25 @@ pub fn diagnose_with(chains: &Chains, thresholds: &ConvergenceThresholds) -> Dia
     let mut issues = Vec::new();
     for param in 0..chains.dim {
         let traces = chains.parameter_traces(param);
-        let (diagnostics, found) =
-            diagnose_traces(&traces, &format!("parameter {param}"), chains.thin, thresholds);
+        let (diagnostics, found) = diagnose_traces(
+            &traces,
+            &format!("parameter {param}"),
+            chains.thin,
+            thresholds,
+        );
         parameters.push(diagnostics);
         issues.extend(found.into_iter().map(|issue| ConvergenceIssue {
             parameter: Some(param),
             ..issue
         }));
     }
-    finish_diagnostics(chains, parameters, issues, thresholds, DiagnosedQuantities::Every)
+    finish_diagnostics(
+        chains,
+        parameters,
+        issues,
+        thresholds,
+        DiagnosedQuantities::Every,
+    )
 }
 
 /// Diagnoses a run by one derived quantity only (e.g. e = h² + k² in injection–recovery, where
@@ -366,15 +420,36 @@ pub fn diagnose_derived(
     name: &str,
     traces: &[Vec<f64>],
     thresholds: &ConvergenceThresholds,
+    depth: DiagnosisDepth,
 ) -> Diagnostics {
-    let (diagnostics, issues) = diagnose_traces(traces, name, chains.thin, thresholds);
+    let (diagnostics, issues) = match depth {
+        DiagnosisDepth::Full => diagnose_traces(traces, name, chains.thin, thresholds),
+        DiagnosisDepth::Quick => diagnose_traces_quick(traces, name, chains.thin, thresholds),
+    };
     finish_diagnostics(
         chains,
         vec![diagnostics],
         issues,
         thresholds,
-        DiagnosedQuantities::Derived(name.to_string()),
+        DiagnosedQuantities::Derived {
+            name: name.to_string(),
+            depth,
+        },
     )
+}
+
+/// How thoroughly one quantity is diagnosed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DiagnosisDepth {
+    /// τ, rank-normalised split R̂ (bulk and folded) and bulk/tail ESS (Vehtari et al. 2021):
+    /// for a result that is looked at or quoted.
+    Full,
+    /// τ, classic split R̂ of the draws and of the draws folded about the median (Gelman et al.
+    /// 2013, Bayesian Data Analysis, 3rd ed., §11.4), and ESS = N/τ for both bulk and tail
+    /// (Foreman-Mackey et al. 2013, PASP 125, 306, §3; Goodman & Weare 2010): no sorting and
+    /// one set of FFTs instead of four, for the thousands of runs of injection–recovery.
+    Quick,
 }
 
 /// τ, split R̂ and bulk/tail ESS of one quantity, and the issues it raises (their `parameter`
@@ -386,15 +461,40 @@ pub fn diagnose_traces(
     thresholds: &ConvergenceThresholds,
 ) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
     let n = common_length(traces);
-    let mut issues = Vec::new();
     let autocorrelation = integrated_autocorrelation_time(traces);
     let times = n as f64 / autocorrelation.tau;
-    // Split and rank-normalise once for R̂ and the bulk ESS.
-    let split = split_chains(traces);
-    let normalized = rank_normalize(&split);
-    let r_hat = r_hat_of_split(&split, &normalized);
+    // Split, rank and rank-normalise once for R̂, the bulk ESS and the tail ESS.
+    let split = SplitDraws::new(traces);
+    let normalized = split.normalized();
+    let r_hat = split.r_hat_from(&normalized);
     let bulk = effective_sample_size(&normalized);
-    let tail = ess_tail_of_split(&split);
+    let tail = split.ess_tail();
+    let diagnostics = ParameterDiagnostics {
+        autocorrelation,
+        autocorrelation_times_in_run: times,
+        r_hat,
+        ess_bulk: bulk,
+        ess_tail: tail,
+    };
+    let issues = convergence_issues(subject, &diagnostics, thin, thresholds);
+    (diagnostics, issues)
+}
+
+/// The blocking issues of one quantity's diagnostics (their `parameter` left unset).
+fn convergence_issues(
+    subject: &str,
+    diagnostics: &ParameterDiagnostics,
+    thin: usize,
+    thresholds: &ConvergenceThresholds,
+) -> Vec<ConvergenceIssue> {
+    let ParameterDiagnostics {
+        autocorrelation,
+        autocorrelation_times_in_run: times,
+        r_hat,
+        ess_bulk: bulk,
+        ess_tail: tail,
+    } = *diagnostics;
+    let mut issues = Vec::new();
     if r_hat.max.is_nan() || r_hat.max >= thresholds.r_hat_below {
         issues.push(ConvergenceIssue {
             kind: IssueKind::RHat,
@@ -450,13 +550,53 @@ pub fn diagnose_traces(
             ),
         });
     }
+    issues
+}
+
+/// [`diagnose_traces`] by the quick checks of [`DiagnosisDepth::Quick`], with the same
+/// thresholds and advice.
+pub fn diagnose_traces_quick(
+    traces: &[Vec<f64>],
+    subject: &str,
+    thin: usize,
+    thresholds: &ConvergenceThresholds,
+) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
+    let n = common_length(traces);
+    let autocorrelation = integrated_autocorrelation_time(traces);
+    let times = n as f64 / autocorrelation.tau;
+    let split = split_chains(traces);
+    let bulk_r_hat = split_r_hat_of(&split);
+    let mut pooled: Vec<f64> = split.iter().flatten().copied().collect();
+    let tail_r_hat = if pooled.is_empty() || pooled.iter().any(|x| x.is_nan()) {
+        f64::NAN
+    } else {
+        let middle = pooled.len() / 2;
+        let median = *pooled.select_nth_unstable_by(middle, f64::total_cmp).1;
+        let folded: Vec<Vec<f64>> = split
+            .iter()
+            .map(|c| c.iter().map(|x| (x - median).abs()).collect())
+            .collect();
+        split_r_hat_of(&folded)
+    };
+    let r_hat = RHat {
+        bulk: bulk_r_hat,
+        tail: tail_r_hat,
+        max: bulk_r_hat.max(tail_r_hat),
+    };
+    let draws = (traces.len() * n) as f64;
+    let ess = if autocorrelation.tau.is_nan() {
+        f64::NAN
+    } else {
+        draws / autocorrelation.tau.max(1.0)
+    };
     let diagnostics = ParameterDiagnostics {
         autocorrelation,
         autocorrelation_times_in_run: times,
         r_hat,
-        ess_bulk: bulk,
-        ess_tail: tail,
+        ess_bulk: ess,
+        ess_tail: ess,
     };
+    let issues = convergence_issues(subject, &diagnostics, thin, thresholds);
     (diagnostics, issues)
 }
 
@@ -581,64 +721,152 @@ fn split_r_hat_of(chains: &[Vec<f64>]) -> f64 {
     libm::sqrt(var_plus / within)
 }
 
-fn pooled_sorted(chains: &[Vec<f64>]) -> Vec<f64> {
-    let mut all: Vec<f64> = chains.iter().flatten().copied().collect();
-    all.sort_by(f64::total_cmp);
-    all
+/// Pooled draws of several equal-length chains in ascending order, each with its place
+/// (chain · n + index), sorted once.
+struct RankedDraws {
+    order: Vec<(f64, usize)>,
+    n: usize,
 }
 
-/// Quantile of sorted data by linear interpolation (Hyndman & Fan 1996,
-/// American Statistician 50, 361, type 7).
-fn quantile_type7(sorted: &[f64], prob: f64) -> f64 {
-    if sorted.is_empty() {
-        return f64::NAN;
+impl RankedDraws {
+    fn new(chains: &[Vec<f64>]) -> Self {
+        let n = common_length(chains);
+        let mut order: Vec<(f64, usize)> = chains
+            .iter()
+            .enumerate()
+            .flat_map(|(c, chain)| {
+                chain[..n]
+                    .iter()
+                    .enumerate()
+                    .map(move |(i, &x)| (x, c * n + i))
+            })
+            .collect();
+        // Equal values need no particular order: they share their averaged rank.
+        order.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+        RankedDraws { order, n }
     }
-    let h = (sorted.len() - 1) as f64 * prob;
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(sorted.len() - 1);
-    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+
+    fn len(&self) -> usize {
+        self.order.len()
+    }
+
+    /// Quantile of the pooled draws by linear interpolation (Hyndman & Fan 1996, American
+    /// Statistician 50, 361, type 7).
+    fn quantile(&self, prob: f64) -> f64 {
+        let sorted = &self.order;
+        if sorted.is_empty() {
+            return f64::NAN;
+        }
+        let h = (sorted.len() - 1) as f64 * prob;
+        let lo = h.floor() as usize;
+        let hi = (lo + 1).min(sorted.len() - 1);
+        sorted[lo].0 + (h - lo as f64) * (sorted[hi].0 - sorted[lo].0)
+    }
+
+    /// The draws folded about `centre`, |x − centre|, ranked by merging the two monotone runs
+    /// below and above the centre (no second sort); with NaN draws, by sorting.
+    fn folded(&self, centre: f64) -> RankedDraws {
+        let order = &self.order;
+        let fold = |&(x, place): &(f64, usize)| ((x - centre).abs(), place);
+        if centre.is_nan() || order.iter().any(|(x, _)| x.is_nan()) {
+            let mut folded: Vec<(f64, usize)> = order.iter().map(fold).collect();
+            folded.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
+            return RankedDraws {
+                order: folded,
+                n: self.n,
+            };
+        }
+        let split = order.partition_point(|&(x, _)| x < centre);
+        let mut below = order[..split].iter().rev().map(fold).peekable();
+        let mut above = order[split..].iter().map(fold).peekable();
+        let mut merged = Vec::with_capacity(order.len());
+        loop {
+            let next = match (below.peek(), above.peek()) {
+                (Some(b), Some(a)) => {
+                    if b.0 <= a.0 {
+                        below.next()
+                    } else {
+                        above.next()
+                    }
+                }
+                (Some(_), None) => below.next(),
+                (None, Some(_)) => above.next(),
+                (None, None) => break,
+            };
+            merged.extend(next);
+        }
+        RankedDraws {
+            order: merged,
+            n: self.n,
+        }
+    }
+
+    /// Rank normalisation (Vehtari et al. 2021, eq. 14): pooled ranks r (ties averaged) mapped
+    /// to Φ⁻¹((r − 3/8)/(S + 1/4)), returned chain by chain.
+    fn normalized(&self, scores: &mut NormalScores) -> Vec<Vec<f64>> {
+        let order = &self.order;
+        let total = order.len();
+        let mut z = vec![0.0; total];
+        let mut i = 0;
+        while i < total {
+            let mut j = i;
+            while j + 1 < total && order[j + 1].0 == order[i].0 {
+                j += 1;
+            }
+            // Ranks i+1 ..= j+1 share their average (i + j)/2 + 1, i.e. twice it is i + j + 2.
+            let value = scores.at_twice_rank(i + j + 2);
+            for item in &order[i..=j] {
+                z[item.1] = value;
+            }
+            i = j + 1;
+        }
+        z.chunks(self.n.max(1)).map(<[f64]>::to_vec).collect()
+    }
 }
 
-/// Rank normalisation (Vehtari et al. 2021, eq. 14): pooled ranks r (ties
-/// averaged) mapped to Φ⁻¹((r − 3/8)/(S + 1/4)).
-fn rank_normalize(chains: &[Vec<f64>]) -> Vec<Vec<f64>> {
-    let n = common_length(chains);
-    let total = chains.len() * n;
-    let mut order: Vec<(f64, usize)> = chains
-        .iter()
-        .enumerate()
-        .flat_map(|(c, chain)| {
-            chain[..n]
-                .iter()
-                .enumerate()
-                .map(move |(i, &x)| (x, c * n + i))
-        })
-        .collect();
-    order.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let mut z = vec![0.0; total];
-    let mut i = 0;
-    while i < total {
-        let mut j = i;
-        while j + 1 < total && order[j + 1].0 == order[i].0 {
-            j += 1;
+/// The normal scores Φ⁻¹((r − 3/8)/(S + 1/4)) of S pooled draws (Blom's scores, as in Vehtari
+/// et al. 2021, eq. 14), computed once per rank r (half ranks included, for ties) and shared by
+/// the bulk and the folded rank normalisation. Ranks above the middle take the negated score of
+/// rank S + 1 − r (Φ⁻¹(1 − p) = −Φ⁻¹(p)), which also keeps the upper tail as accurate as the
+/// lower one.
+struct NormalScores {
+    total: usize,
+    /// By twice the rank; NaN until computed.
+    by_twice_rank: Vec<f64>,
+}
+
+impl NormalScores {
+    fn new(total: usize) -> Self {
+        NormalScores {
+            total,
+            by_twice_rank: vec![f64::NAN; 2 * total + 3],
         }
-        // Ranks i+1 ..= j+1 share their average.
-        let rank = (i + j) as f64 / 2.0 + 1.0;
-        let value = standard_normal_quantile((rank - 0.375) / (total as f64 + 0.25));
-        for item in &order[i..=j] {
-            z[item.1] = value;
-        }
-        i = j + 1;
     }
-    z.chunks(n.max(1)).map(<[f64]>::to_vec).collect()
+
+    /// The score of rank `twice_rank / 2` (1 ≤ rank ≤ S).
+    fn at_twice_rank(&mut self, twice_rank: usize) -> f64 {
+        let mirror = 2 * (self.total + 1) - twice_rank;
+        if twice_rank > mirror {
+            return -self.at_twice_rank(mirror);
+        }
+        let cached = self.by_twice_rank[twice_rank];
+        if !cached.is_nan() {
+            return cached;
+        }
+        let rank = twice_rank as f64 / 2.0;
+        let value = standard_normal_quantile((rank - 0.375) / (self.total as f64 + 0.25));
+        self.by_twice_rank[twice_rank] = value;
+        value
+    }
 }
 
 /// Lags summed directly before [`PooledAutocovariance`] switches to FFTs for all lags.
 ///
 /// A direct lag costs n multiply-adds per chain, the FFTs about 5 · 2n · log₂(2n) operations per
-/// pair of chains, so past a few dozen lags the FFT is cheaper; most windows stop well before
-/// this when chains mix fast.
-const DIRECT_LAGS: usize = 48;
+/// pair of chains, i.e. as much as a few dozen lags; but a window that passes a dozen lags
+/// usually runs to hundreds (ensemble walkers have τ of tens of steps), so the switch comes
+/// early: fast-mixing chains stay on direct sums, the others pay for few wasted lags.
+const DIRECT_LAGS: usize = 16;
 
 /// The first `n` draws of each trace, centred on their own mean.
 fn centre(traces: &[Vec<f64>], n: usize) -> Vec<Vec<f64>> {
@@ -671,11 +899,16 @@ fn lag_product(x: &[f64], lag: usize) -> f64 {
 /// each complex forward transform (|A(k)|² + |B(k)|² = (|Z(k)|² + |Z(N−k)|²)/2 for z = a + ib,
 /// Press et al. 2007, Numerical Recipes, 3rd ed., §12.3.2, "FFT of two real functions
 /// simultaneously" — section number from memory).
+///
+/// The transforms are zero-padded to at least n + L points, which leaves lags ≤ L free of
+/// wrap-around: first with L = n/4 (windows rarely reach further; half the size of a full
+/// transform), and to 2n only when a longer lag is asked for.
 struct PooledAutocovariance {
     centred: Vec<Vec<f64>>,
     weights: Vec<f64>,
     n: usize,
-    by_fft: std::cell::OnceCell<Vec<f64>>,
+    short_lags: std::cell::OnceCell<Vec<f64>>,
+    all_lags: std::cell::OnceCell<Vec<f64>>,
 }
 
 impl PooledAutocovariance {
@@ -686,7 +919,8 @@ impl PooledAutocovariance {
             centred,
             weights,
             n,
-            by_fft: std::cell::OnceCell::new(),
+            short_lags: std::cell::OnceCell::new(),
+            all_lags: std::cell::OnceCell::new(),
         }
     }
 
@@ -705,16 +939,22 @@ impl PooledAutocovariance {
                 .sum::<f64>()
                 / self.n as f64;
         }
-        self.by_fft.get_or_init(|| self.all_lags())[lag]
+        let short = self.short_lags.get_or_init(|| self.lags_up_to(self.n / 4));
+        if lag < short.len() {
+            return short[lag];
+        }
+        self.all_lags.get_or_init(|| self.lags_up_to(self.n - 1))[lag]
     }
 
-    /// Γ(t) for t = 0..n−1 by zero-padded FFTs (see the type's notes).
-    fn all_lags(&self) -> Vec<f64> {
+    /// Γ(t) for t = 0..=max_lag by FFTs zero-padded to at least n + max_lag points (see the
+    /// type's notes).
+    fn lags_up_to(&self, max_lag: usize) -> Vec<f64> {
         let n = self.n;
-        let size = (2 * n).next_power_of_two();
+        let size = (n + max_lag).next_power_of_two();
         let mut power = vec![0.0; size];
         let mut re = vec![0.0; size];
         let mut im = vec![0.0; size];
+        let fft = Fft::new(size);
         let used: Vec<(&Vec<f64>, f64)> = self
             .centred
             .iter()
@@ -734,15 +974,15 @@ impl PooledAutocovariance {
             if let Some(&(x, w)) = pair.get(1) {
                 scaled(x, w, &mut im);
             }
-            fft_in_place(&mut re, &mut im, false);
+            fft.transform(&mut re, &mut im, false);
             for (k, p) in power.iter_mut().enumerate() {
                 let j = (size - k) & (size - 1);
                 *p += 0.5 * (re[k] * re[k] + im[k] * im[k] + re[j] * re[j] + im[j] * im[j]);
             }
         }
         im.fill(0.0);
-        fft_in_place(&mut power, &mut im, true);
-        power.truncate(n);
+        fft.transform(&mut power, &mut im, true);
+        power.truncate(max_lag + 1);
         for p in &mut power {
             *p /= (size * n) as f64;
         }
@@ -750,45 +990,72 @@ impl PooledAutocovariance {
     }
 }
 
-/// Iterative radix-2 Cooley–Tukey FFT (Cooley & Tukey 1965, Math. Comp. 19,
-/// 297); `inverse` flips the sign of the exponent and does not scale.
-fn fft_in_place(re: &mut [f64], im: &mut [f64], inverse: bool) {
-    let n = re.len();
-    let mut j = 0;
-    for i in 1..n {
-        let mut bit = n >> 1;
-        while j & bit != 0 {
-            j ^= bit;
-            bit >>= 1;
-        }
-        j |= bit;
-        if i < j {
-            re.swap(i, j);
-            im.swap(i, j);
-        }
-    }
-    let sign = if inverse { 1.0 } else { -1.0 };
-    let mut len = 2;
-    while len <= n {
-        let angle = sign * 2.0 * std::f64::consts::PI / len as f64;
-        let (w_im, w_re) = libm::sincos(angle);
-        for start in (0..n).step_by(len) {
-            let (mut cur_re, mut cur_im) = (1.0, 0.0);
+/// Iterative radix-2 Cooley–Tukey FFT (Cooley & Tukey 1965, Math. Comp. 19, 297) of one
+/// power-of-two size, with its twiddle factors e^(−2πik/len) computed once (by `libm`, so the
+/// same bits natively and in WebAssembly) for all the transforms of that size, laid out stage by
+/// stage so that every butterfly loop runs over contiguous slices.
+struct Fft {
+    /// Stage with blocks of length `len` = 2, 4, …, n: entries `len/2 − 1 .. len − 1`.
+    cos: Vec<f64>,
+    sin: Vec<f64>,
+}
+
+impl Fft {
+    /// Twiddles for transforms of size `n` (a power of two).
+    fn new(n: usize) -> Self {
+        let mut cos = Vec::with_capacity(n);
+        let mut sin = Vec::with_capacity(n);
+        let mut len = 2;
+        while len <= n {
             for k in 0..len / 2 {
-                let a = start + k;
-                let b = a + len / 2;
-                let t_re = re[b] * cur_re - im[b] * cur_im;
-                let t_im = re[b] * cur_im + im[b] * cur_re;
-                re[b] = re[a] - t_re;
-                im[b] = im[a] - t_im;
-                re[a] += t_re;
-                im[a] += t_im;
-                let next_re = cur_re * w_re - cur_im * w_im;
-                cur_im = cur_re * w_im + cur_im * w_re;
-                cur_re = next_re;
+                let (s, c) = libm::sincos(-2.0 * core::f64::consts::PI * k as f64 / len as f64);
+                cos.push(c);
+                sin.push(s);
+            }
+            len <<= 1;
+        }
+        Fft { cos, sin }
+    }
+
+    /// Transforms (`re`, `im`) in place; `inverse` flips the sign of the exponent and does not
+    /// scale.
+    fn transform(&self, re: &mut [f64], im: &mut [f64], inverse: bool) {
+        let n = re.len();
+        debug_assert_eq!(n, self.cos.len() + 1);
+        let mut j = 0;
+        for i in 1..n {
+            let mut bit = n >> 1;
+            while j & bit != 0 {
+                j ^= bit;
+                bit >>= 1;
+            }
+            j |= bit;
+            if i < j {
+                re.swap(i, j);
+                im.swap(i, j);
             }
         }
-        len <<= 1;
+        let sign = if inverse { -1.0 } else { 1.0 };
+        let mut len = 2;
+        while len <= n {
+            let half = len / 2;
+            let w_re = &self.cos[half - 1..len - 1];
+            let w_sin = &self.sin[half - 1..len - 1];
+            for (block_re, block_im) in re.chunks_exact_mut(len).zip(im.chunks_exact_mut(len)) {
+                let (a_re, b_re) = block_re.split_at_mut(half);
+                let (a_im, b_im) = block_im.split_at_mut(half);
+                for k in 0..half {
+                    let (wr, wi) = (w_re[k], sign * w_sin[k]);
+                    let t_re = b_re[k] * wr - b_im[k] * wi;
+                    let t_im = b_re[k] * wi + b_im[k] * wr;
+                    b_re[k] = a_re[k] - t_re;
+                    b_im[k] = a_im[k] - t_im;
+                    a_re[k] += t_re;
+                    a_im[k] += t_im;
+                }
+            }
+            len <<= 1;
+        }
     }
 }
 
@@ -847,14 +1114,13 @@ mod tests {
             let traces = &chains[..n_chains];
             let weights: Vec<f64> = (0..n_chains).map(|c| 0.5 + c as f64).collect();
             let pooled = PooledAutocovariance::new(centre(traces, n), weights.clone());
-            for t in [0, 1, 5, 47, 48, 100, 136] {
+            for t in [0, 1, 5, 15, 16, 47, 48, 100, 136] {
                 let direct: f64 = traces
                     .iter()
                     .zip(&weights)
                     .map(|(x, w)| {
                         let m = mean(x);
-                        w * (0..n - t).map(|i| (x[i] - m) * (x[i + t] - m)).sum::<f64>()
-                            / n as f64
+                        w * (0..n - t).map(|i| (x[i] - m) * (x[i + t] - m)).sum::<f64>() / n as f64
                     })
                     .sum();
                 assert!(
@@ -867,9 +1133,59 @@ mod tests {
         }
     }
 
+    /// Ranking the folded draws by merging the runs below and above the centre gives exactly
+    /// the normal scores of ranking them by a sort (ties across the centre included), and the
+    /// shared score table (which mirrors ranks above the middle) gives the scores computed one by
+    /// one, to rounding (definition of the rank normalisation, Vehtari et al. 2021, eq. 14).
+    #[test]
+    fn folded_ranking_by_merge_equals_sorting() {
+        // Values on a coarse grid so that ties are common, also |x − c| ties across c.
+        let chains: Vec<Vec<f64>> = (0..5)
+            .map(|c| {
+                (0..201)
+                    .map(|i| (((i * 37 + c * 11) % 23) as f64 - 11.0) * 0.25)
+                    .collect()
+            })
+            .collect();
+        let ranked = RankedDraws::new(&chains);
+        for centre in [ranked.quantile(0.5), 0.0, 0.125, -3.0, 10.0] {
+            let merged = ranked.folded(centre);
+            let mut sorted: Vec<(f64, usize)> = ranked
+                .order
+                .iter()
+                .map(|&(x, place)| ((x - centre).abs(), place))
+                .collect();
+            sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
+            let by_sort = RankedDraws {
+                order: sorted,
+                n: ranked.n,
+            };
+            let values = |r: &RankedDraws| r.order.iter().map(|p| p.0).collect::<Vec<_>>();
+            assert_eq!(values(&merged), values(&by_sort), "centre {centre}");
+            let total = ranked.len();
+            assert_eq!(
+                merged.normalized(&mut NormalScores::new(total)),
+                by_sort.normalized(&mut NormalScores::new(total)),
+                "centre {centre}"
+            );
+        }
+        let mut scores = NormalScores::new(1001);
+        for twice_rank in [2, 3, 500, 1001, 1002, 1003, 1500, 2002] {
+            let rank = twice_rank as f64 / 2.0;
+            let p = (rank - 0.375) / 1001.25;
+            let direct = standard_normal_quantile(p);
+            assert!(
+                (scores.at_twice_rank(twice_rank) - direct).abs() < 1e-12,
+                "rank {rank}"
+            );
+        }
+    }
+
     #[test]
     fn ranks_with_ties_are_averaged() {
-        let z = rank_normalize(&[vec![1.0, 2.0], vec![2.0, 3.0]]);
+        let chains = [vec![1.0, 2.0], vec![2.0, 3.0]];
+        let ranked = RankedDraws::new(&chains);
+        let z = ranked.normalized(&mut NormalScores::new(ranked.len()));
         assert_eq!(z[0][1], z[1][0]);
         assert!(z[0][0] < z[0][1] && z[1][0] < z[1][1]);
         assert_relative_eq!(z[0][1], 0.0, epsilon = 1e-15);

@@ -462,7 +462,10 @@ impl EnsembleState {
                 let lp_new = finite_or_minus_infinity(target.log_density(&self.proposal));
                 let log_ratio = (dim as f64 - 1.0) * libm::log(z) + lp_new - self.log_densities[k];
                 let u_accept: f64 = self.rng.random();
-                if lp_new > f64::NEG_INFINITY && libm::log(u_accept) < log_ratio {
+                // ln u < 0 for u in [0, 1), so a non-negative log ratio accepts without the
+                // logarithm (the same decision, and the same draws, as always taking it).
+                let accept = log_ratio >= 0.0 || libm::log(u_accept) < log_ratio;
+                if lp_new > f64::NEG_INFINITY && accept {
                     self.positions[k * dim..(k + 1) * dim].copy_from_slice(&self.proposal);
                     self.log_densities[k] = lp_new;
                     self.accepted_all += 1;
