@@ -19,11 +19,11 @@ use super::target::{PosteriorSettings, RvPosterior};
 use super::PosteriorError;
 
 /// The fast sampler preset for repeated use (injection–recovery): 24 walkers, 300 burn-in and
-/// 600 stored steps, i.e. 21 624 log-density evaluations with the initial ball. Measured with
-/// `eccaudit bench --posterior` (one Keplerian, 30 epochs, jitter sampled) on a shared, loaded
-/// 2-core machine: ≈ 130 ms per run, summary included, at ≈ 2.8–4 µs per evaluation — the
-/// evaluation cost is that of `RvProblem::model_velocities`. Short for convergence by the
-/// default thresholds: use it for population statistics, not for a quoted value.
+/// 600 stored steps, i.e. 21 624 log-density evaluations with the initial ball. Cost: see
+/// `eccaudit bench --posterior` and the performance table of DEVELOPERS.md (one Keplerian,
+/// 30 epochs: tens of milliseconds per run, almost all of it in `RvProblem::model_velocities`).
+/// Short for convergence by the default thresholds: use it for population statistics, not for
+/// a quoted value.
 pub fn fast_sampler_settings(seed: u64) -> SamplerSettings {
     SamplerSettings {
         n_walkers: 24,

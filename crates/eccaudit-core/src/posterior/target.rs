@@ -285,7 +285,9 @@ impl<'a> RvPosterior<'a> {
     /// domain.
     pub fn log_likelihood(&self, x: &[f64]) -> f64 {
         let mut model = self.scratch.borrow_mut();
-        if !self.problem.model_velocities(x, &mut model) {
+        // A non-finite model velocity makes the sum below non-finite (the data are finite),
+        // which is caught at the end instead of by a separate pass.
+        if !self.problem.model_velocities_unchecked(x, &mut model) {
             return f64::NEG_INFINITY;
         }
         let data = self.problem.data();
@@ -303,6 +305,9 @@ impl<'a> RvPosterior<'a> {
                 let r = v - m;
                 sum += r * r / total + libm::log(total);
             }
+            if !sum.is_finite() {
+                return f64::NEG_INFINITY;
+            }
             -0.5 * (sum + LN_TWO_PI * model.len() as f64)
         } else {
             let mut chi2 = 0.0;
@@ -313,6 +318,9 @@ impl<'a> RvPosterior<'a> {
             {
                 let r = v - m;
                 chi2 += r * r * w;
+            }
+            if !chi2.is_finite() {
+                return f64::NEG_INFINITY;
             }
             self.fixed_normalisation - 0.5 * chi2
         }
