@@ -225,7 +225,7 @@ fn sort_total_order(values: &mut [f64]) {
             counts[((k >> shift) as usize) & (BUCKETS - 1)] += 1;
         }
         // All keys in one bucket: this digit is the same everywhere, nothing to move.
-        if counts.iter().any(|&c| c == keys.len()) {
+        if counts.contains(&keys.len()) {
             shift += BITS;
             continue;
         }
@@ -365,19 +365,26 @@ impl ReflectedKde {
                 continue;
             }
             // Direct: centre b + ½ bins, points i ≤ b at j = b − i, points i > b at j = i − b − 1.
-            for i in b.saturating_sub(reach - 1)..=(b + reach).min(n_bins) {
+            let first = b.saturating_sub(reach - 1);
+            let last = (b + reach).min(n_bins);
+            for (i, d) in density.iter_mut().enumerate().take(last + 1).skip(first) {
                 let j = if i <= b { b - i } else { i - b - 1 };
-                density[i] += count * table[j];
+                *d += count * table[j];
             }
             // Mirror at lo (−(b + ½) bins): j = i + b.
-            for i in 0..reach.saturating_sub(b).min(n_bins + 1) {
-                density[i] += count * table[i + b];
+            let mirrored = reach.saturating_sub(b);
+            for (d, &k) in density
+                .iter_mut()
+                .zip(&table[b.min(reach)..])
+                .take(mirrored)
+            {
+                *d += count * k;
             }
             // Mirror at hi (2H − b − ½ bins): j = 2H − b − i − 1 for i ≥ 2H − b − reach.
             let first = (2 * n_bins).saturating_sub(b + reach);
-            for i in first..=n_bins {
+            for (i, d) in density.iter_mut().enumerate().skip(first) {
                 let j = 2 * n_bins - b - i - 1;
-                density[i] += count * table[j];
+                *d += count * table[j];
             }
         }
         for d in &mut density {
