@@ -1,6 +1,7 @@
 // The same audit run in the page (Web Workers, wasm) and by the native command line, timed.
 //
-//   node scripts/bench-page.mjs [TRIALS_PER_E]      (default 20; needs www/pkg and target/release)
+//   node scripts/bench-page.mjs [TRIALS_PER_E] [--reference]
+//                                   (default 20; needs www/pkg and target/release)
 //
 // Loads the first demo table in headless Chromium, runs the injection–recovery view with
 // e = 0, 0.1, …, 0.6 and the page's default estimators (least squares with 8 starts, the
@@ -16,7 +17,10 @@ import { openApp } from "../tests/browser/harness.mjs";
 
 const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..");
 const CLI = path.join(process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target"), "release", "eccaudit");
-const TRIALS = Number(process.argv[2] ?? 20);
+const TRIALS = Number(process.argv.find((a) => /^\d+$/.test(a)) ?? 20);
+// --reference: the posterior of the reference job (32 walkers × (500 + 1500) steps) instead of
+// the page's default, shorter sampler.
+const REFERENCE = process.argv.includes("--reference");
 const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-bench-page-"));
 
 const app = await openApp();
@@ -26,6 +30,11 @@ try {
   await page.fill("#audit-settings [name='eccentricities']", "0, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6");
   await page.fill("#audit-settings [name='trials']", String(TRIALS));
   await page.fill("#audit-settings [name='seed']", "7");
+  if (REFERENCE) {
+    await page.fill("#audit-settings [name='posterior_walkers']", "32");
+    await page.fill("#audit-settings [name='posterior_steps']", "1500");
+    await page.fill("#audit-settings [name='posterior_burn']", "500");
+  }
   const t0 = performance.now();
   await page.click("#audit-run");
   await page.waitForSelector("body[data-audit-state='done']", { timeout: 3_600_000 });
@@ -43,7 +52,8 @@ try {
   ], { stdio: ["ignore", "ignore", "inherit"] });
   const nativeSeconds = (performance.now() - t1) / 1000;
   const n = 7 * TRIALS;
-  console.log(`audit of velka17, 7 e x ${TRIALS} trials, ${workers} workers/threads:`);
+  const sampler = REFERENCE ? "32 walkers x (500 + 1500) steps" : "the default sampler";
+  console.log(`audit of velka17, 7 e x ${TRIALS} trials, ${sampler}, ${workers} workers/threads:`);
   console.log(`  page (wasm, Chromium): ${pageSeconds.toFixed(1)} s  (${(1000 * pageSeconds / n).toFixed(0)} ms per trial)`);
   console.log(`  native CLI:            ${nativeSeconds.toFixed(1)} s  (${(1000 * nativeSeconds / n).toFixed(0)} ms per trial)`);
   console.log(`  ratio page / native:   ${(pageSeconds / nativeSeconds).toFixed(2)}`);

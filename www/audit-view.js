@@ -76,6 +76,9 @@ export function wireAudit({ currentTable, el }) {
   form.elements.seed.value = String(defaults.seed);
   form.elements.jitter.value = String(defaults.injection.jitter);
   form.elements.period_search.checked = defaults.injection.period_search;
+  form.elements.posterior_walkers.value = String(defaults.injection.posterior.n_walkers);
+  form.elements.posterior_steps.value = String(defaults.injection.posterior.n_steps);
+  form.elements.posterior_burn.value = String(defaults.injection.posterior.n_burn);
 
   let job = null;      // the run in progress: {run, workers, ...}
   let shown = null;    // the result on the page: {run, report, settingsJson, tableName}
@@ -107,6 +110,10 @@ export function wireAudit({ currentTable, el }) {
     settings.injection.jitter = number("jitter", "jitter", nonNegative);
     settings.injection.period_search = data.get("period_search") === "on";
     settings.seed = number("seed", "seed", whole);
+    const even = Object.assign((v) => Number.isSafeInteger(v) && v >= 2 && v % 2 === 0, { need: "must be an even whole number ≥ 2" });
+    settings.injection.posterior.n_walkers = number("posterior_walkers", "posterior walkers", even);
+    settings.injection.posterior.n_steps = number("posterior_steps", "posterior steps", positiveWhole);
+    settings.injection.posterior.n_burn = number("posterior_burn", "posterior burn-in", whole);
     return auditSettingsFor(table.text, table.name, table.velocityUnit, table.timeConvention, JSON.stringify(settings));
   }
 
