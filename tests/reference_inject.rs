@@ -12,7 +12,7 @@ use eccaudit_core::inject::{
 /// apart share a cycle, which cancels the leading correlation of the period with e cos ω and
 /// e sin ω.
 fn even_phase_sampling(n_epochs: usize, period: f64, sigma: f64) -> Sampling {
-    assert!(n_epochs % 2 == 0);
+    assert!(n_epochs.is_multiple_of(2));
     let half = n_epochs / 2;
     let times: Vec<f64> = (0..n_epochs)
         .map(|k| {

@@ -501,8 +501,8 @@ impl Prepared {
         }
     }
 
-    /// [`Self::for_each_true_anomaly_lanes`] with the lane count suited to the processor, as in
-    /// [`crate::model::RvModel::velocities`]: eight with AVX2 (detected at run time), else four.
+    /// Calls `visit(i, cos ν_i, sin ν_i)` for every epoch, through
+    /// [`Self::for_each_true_anomaly_group`] (lane counts chosen there).
     #[inline]
     fn for_each_true_anomaly(&self, shifted_times: &[f64], mut visit: impl FnMut(usize, f64, f64)) {
         self.for_each_true_anomaly_group(shifted_times, |start, cos_nu, sin_nu| {

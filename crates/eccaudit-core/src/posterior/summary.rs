@@ -140,9 +140,11 @@ pub struct EccentricitySummary {
     pub prior_label: String,
     /// Posterior samples used.
     pub n_samples: usize,
-    /// Effective sample size of e (bulk, Vehtari et al. 2021, Bayesian Analysis 16, 667).
+    /// Effective sample size of e: bulk ESS (Vehtari et al. 2021, Bayesian Analysis 16, 667) for
+    /// a full diagnosis, N/τ for the quick one of injection trials (see
+    /// [`crate::sampler::DiagnosisDepth`]); it also sets the KDE bandwidth of the mode.
     pub ess_bulk: f64,
-    /// Tail effective sample size of e (same source).
+    /// Tail effective sample size of e (same source; N/τ again for the quick diagnosis).
     pub ess_tail: f64,
     /// Posterior median of e.
     pub median: f64,

@@ -91,7 +91,9 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
 /// R̂ of one parameter: bulk (rank-normalised split chains), tail (the same on
 /// draws folded about the median) and their maximum, the value to report
 /// (Vehtari et al. 2021, Bayesian Analysis 16, 667, §4.1, eqs. 3–4 for the
-/// split R̂ and §4.2 for rank normalisation and folding).
+/// split R̂ and §4.2 for rank normalisation and folding). The quick diagnosis
+/// ([`DiagnosisDepth::Quick`]) fills it with the classic split R̂ of the draws
+/// and of the draws folded about their middle draw, without rank normalisation.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct RHat {
     /// Split R̂ of the rank-normalised draws.
@@ -445,7 +447,8 @@ pub enum DiagnosisDepth {
     /// τ, rank-normalised split R̂ (bulk and folded) and bulk/tail ESS (Vehtari et al. 2021):
     /// for a result that is looked at or quoted.
     Full,
-    /// τ, classic split R̂ of the draws and of the draws folded about the median (Gelman et al.
+    /// τ, classic split R̂ of the draws and of the draws folded about their middle draw (the
+    /// median to within one draw; Gelman et al.
     /// 2013, Bayesian Data Analysis, 3rd ed., §11.4), and ESS = N/τ for both bulk and tail
     /// (Foreman-Mackey et al. 2013, PASP 125, 306, §3; Goodman & Weare 2010): no sorting and
     /// one set of FFTs instead of four, for the thousands of runs of injection–recovery.
@@ -764,11 +767,12 @@ impl RankedDraws {
     }
 
     /// The draws folded about `centre`, |x − centre|, ranked by merging the two monotone runs
-    /// below and above the centre (no second sort); with NaN draws, by sorting.
+    /// below and above the centre (no second sort); with non-finite draws or centre, by sorting.
     fn folded(&self, centre: f64) -> RankedDraws {
         let order = &self.order;
         let fold = |&(x, place): &(f64, usize)| ((x - centre).abs(), place);
-        if centre.is_nan() || order.iter().any(|(x, _)| x.is_nan()) {
+        // Non-finite values break the two monotone runs (∞ − ∞ is NaN): sort those instead.
+        if !centre.is_finite() || order.iter().any(|(x, _)| !x.is_finite()) {
             let mut folded: Vec<(f64, usize)> = order.iter().map(fold).collect();
             folded.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
             return RankedDraws {
@@ -939,9 +943,12 @@ impl PooledAutocovariance {
                 .sum::<f64>()
                 / self.n as f64;
         }
-        let short = self.short_lags.get_or_init(|| self.lags_up_to(self.n / 4));
-        if lag < short.len() {
-            return short[lag];
+        // Short chains (n/4 below the direct lags) go straight to all lags.
+        if self.n / 4 >= DIRECT_LAGS {
+            let short = self.short_lags.get_or_init(|| self.lags_up_to(self.n / 4));
+            if lag < short.len() {
+                return short[lag];
+            }
         }
         self.all_lags.get_or_init(|| self.lags_up_to(self.n - 1))[lag]
     }

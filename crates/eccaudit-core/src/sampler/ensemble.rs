@@ -286,7 +286,7 @@ impl EnsembleState {
             return Err(SamplerError::NoParameters);
         }
         let minimum = 2 * dim;
-        if settings.n_walkers < minimum || settings.n_walkers % 2 != 0 {
+        if settings.n_walkers < minimum || !settings.n_walkers.is_multiple_of(2) {
             return Err(SamplerError::WalkerCount {
                 n_walkers: settings.n_walkers,
                 dim,
@@ -479,7 +479,7 @@ impl EnsembleState {
         if post_burn {
             self.chains.proposals_per_walker += 1;
             let since_burn = self.steps_done - self.settings.n_burn;
-            if since_burn % self.settings.thin == 0 {
+            if since_burn.is_multiple_of(self.settings.thin) {
                 self.chains.samples.extend_from_slice(&self.positions);
                 self.chains
                     .log_densities
