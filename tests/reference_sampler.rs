@@ -11,9 +11,9 @@ use std::time::Instant;
 
 use eccaudit_core::random::{standard_normal, stream_rng};
 use eccaudit_core::sampler::{
-    diagnose, diagnose_traces_quick, effective_sample_size, ess_bulk, ess_tail,
+    diagnose, diagnose_traces, effective_sample_size, ess_bulk, ess_tail,
     integrated_autocorrelation_time, rank_normalized_split_r_hat, run_ensemble, Chains,
-    ConvergenceThresholds, DensityFn, IssueKind, LogDensity, SamplerSettings,
+    ConvergenceThresholds, DensityFn, DiagnosisDepth, IssueKind, LogDensity, SamplerSettings,
 };
 
 /// Mean of f over all stored samples, and its Monte-Carlo standard error from the ESS of f.
@@ -307,7 +307,7 @@ fn quick_diagnosis_on_known_processes() {
         })
         .collect();
     let thresholds = ConvergenceThresholds::default();
-    let (d, issues) = diagnose_traces_quick(&chains, "x", 1, &thresholds);
+    let (d, issues) = diagnose_traces(&chains, "x", 1, &thresholds, DiagnosisDepth::Quick);
     let ess_true = (n_chains * n) as f64 / ((1.0 + phi) / (1.0 - phi));
     assert!(
         (d.ess_bulk / ess_true - 1.0).abs() < 0.10 && d.ess_tail == d.ess_bulk,
@@ -320,7 +320,7 @@ fn quick_diagnosis_on_known_processes() {
     );
 
     let stuck = iid_normal_chains(8, 2000, 12, |c| if c < 4 { 0.0 } else { 5.0 });
-    let (d, issues) = diagnose_traces_quick(&stuck, "x", 1, &thresholds);
+    let (d, issues) = diagnose_traces(&stuck, "x", 1, &thresholds, DiagnosisDepth::Quick);
     assert!(d.r_hat.bulk > 1.5, "{d:?}");
     assert!(issues.iter().any(|i| i.kind == IssueKind::RHat));
 
@@ -334,7 +334,7 @@ fn quick_diagnosis_on_known_processes() {
                 .collect()
         })
         .collect();
-    let (d, _) = diagnose_traces_quick(&spread, "x", 1, &thresholds);
+    let (d, _) = diagnose_traces(&spread, "x", 1, &thresholds, DiagnosisDepth::Quick);
     assert!(d.r_hat.tail > 1.1 && d.r_hat.tail > d.r_hat.bulk, "{d:?}");
 }
 

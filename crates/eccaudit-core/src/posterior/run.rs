@@ -150,7 +150,14 @@ fn run_posterior_judged(
     let (diagnostics, e_diagnostics) = match judged {
         Judged::EveryParameter => (
             diagnose_with(&chains, &thresholds),
-            diagnose_traces(&e_traces, "e", chains.thin, &thresholds).0,
+            diagnose_traces(
+                &e_traces,
+                "e",
+                chains.thin,
+                &thresholds,
+                DiagnosisDepth::Full,
+            )
+            .0,
         ),
         Judged::EccentricityAlone => {
             let diagnostics =

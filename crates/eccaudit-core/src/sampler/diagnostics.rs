@@ -398,6 +398,7 @@ pub fn diagnose_with(chains: &Chains, thresholds: &ConvergenceThresholds) -> Dia
             &format!("parameter {param}"),
             chains.thin,
             thresholds,
+            DiagnosisDepth::Full,
         );
         parameters.push(diagnostics);
         issues.extend(found.into_iter().map(|issue| ConvergenceIssue {
@@ -424,10 +425,7 @@ pub fn diagnose_derived(
     thresholds: &ConvergenceThresholds,
     depth: DiagnosisDepth,
 ) -> Diagnostics {
-    let (diagnostics, issues) = match depth {
-        DiagnosisDepth::Full => diagnose_traces(traces, name, chains.thin, thresholds),
-        DiagnosisDepth::Quick => diagnose_traces_quick(traces, name, chains.thin, thresholds),
-    };
+    let (diagnostics, issues) = diagnose_traces(traces, name, chains.thin, thresholds, depth);
     finish_diagnostics(
         chains,
         vec![diagnostics],
@@ -455,32 +453,67 @@ pub enum DiagnosisDepth {
     Quick,
 }
 
-/// τ, split R̂ and bulk/tail ESS of one quantity, and the issues it raises (their `parameter`
-/// left unset); `subject` names it in the advice, `thin` is the chains' thinning.
+/// τ, split R̂ and bulk/tail ESS of one quantity at `depth`, and the issues it raises (their
+/// `parameter` left unset); `subject` names it in the advice, `thin` is the chains' thinning.
 pub fn diagnose_traces(
     traces: &[Vec<f64>],
     subject: &str,
     thin: usize,
     thresholds: &ConvergenceThresholds,
+    depth: DiagnosisDepth,
 ) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
     let n = common_length(traces);
     let autocorrelation = integrated_autocorrelation_time(traces);
-    let times = n as f64 / autocorrelation.tau;
-    // Split, rank and rank-normalise once for R̂, the bulk ESS and the tail ESS.
-    let split = SplitDraws::new(traces);
-    let normalized = split.normalized();
-    let r_hat = split.r_hat_from(&normalized);
-    let bulk = effective_sample_size(&normalized);
-    let tail = split.ess_tail();
+    let (r_hat, ess_bulk, ess_tail) = match depth {
+        DiagnosisDepth::Full => {
+            // Split, rank and rank-normalise once for R̂, the bulk ESS and the tail ESS.
+            let split = SplitDraws::new(traces);
+            let normalized = split.normalized();
+            let r_hat = split.r_hat_from(&normalized);
+            (r_hat, effective_sample_size(&normalized), split.ess_tail())
+        }
+        DiagnosisDepth::Quick => {
+            let ess = if autocorrelation.tau.is_nan() {
+                f64::NAN
+            } else {
+                (traces.len() * n) as f64 / autocorrelation.tau.max(1.0)
+            };
+            (classic_split_r_hat(traces), ess, ess)
+        }
+    };
     let diagnostics = ParameterDiagnostics {
         autocorrelation,
-        autocorrelation_times_in_run: times,
+        autocorrelation_times_in_run: n as f64 / autocorrelation.tau,
         r_hat,
-        ess_bulk: bulk,
-        ess_tail: tail,
+        ess_bulk,
+        ess_tail,
     };
     let issues = convergence_issues(subject, &diagnostics, thin, thresholds);
     (diagnostics, issues)
+}
+
+/// Classic split R̂ (Gelman et al. 2013, BDA3 §11.4) of the draws and of the draws folded about
+/// their middle draw, for [`DiagnosisDepth::Quick`]: no ranks, no full sort.
+fn classic_split_r_hat(traces: &[Vec<f64>]) -> RHat {
+    let split = split_chains(traces);
+    let bulk = split_r_hat_of(&split);
+    let mut pooled: Vec<f64> = split.iter().flatten().copied().collect();
+    let tail = if pooled.is_empty() || pooled.iter().any(|x| x.is_nan()) {
+        f64::NAN
+    } else {
+        let middle = pooled.len() / 2;
+        let median = *pooled.select_nth_unstable_by(middle, f64::total_cmp).1;
+        let folded: Vec<Vec<f64>> = split
+            .iter()
+            .map(|c| c.iter().map(|x| (x - median).abs()).collect())
+            .collect();
+        split_r_hat_of(&folded)
+    };
+    RHat {
+        bulk,
+        tail,
+        max: bulk.max(tail),
+    }
 }
 
 /// The blocking issues of one quantity's diagnostics (their `parameter` left unset).
@@ -554,53 +587,6 @@ fn convergence_issues(
         });
     }
     issues
-}
-
-/// [`diagnose_traces`] by the quick checks of [`DiagnosisDepth::Quick`], with the same
-/// thresholds and advice.
-pub fn diagnose_traces_quick(
-    traces: &[Vec<f64>],
-    subject: &str,
-    thin: usize,
-    thresholds: &ConvergenceThresholds,
-) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
-    let n = common_length(traces);
-    let autocorrelation = integrated_autocorrelation_time(traces);
-    let times = n as f64 / autocorrelation.tau;
-    let split = split_chains(traces);
-    let bulk_r_hat = split_r_hat_of(&split);
-    let mut pooled: Vec<f64> = split.iter().flatten().copied().collect();
-    let tail_r_hat = if pooled.is_empty() || pooled.iter().any(|x| x.is_nan()) {
-        f64::NAN
-    } else {
-        let middle = pooled.len() / 2;
-        let median = *pooled.select_nth_unstable_by(middle, f64::total_cmp).1;
-        let folded: Vec<Vec<f64>> = split
-            .iter()
-            .map(|c| c.iter().map(|x| (x - median).abs()).collect())
-            .collect();
-        split_r_hat_of(&folded)
-    };
-    let r_hat = RHat {
-        bulk: bulk_r_hat,
-        tail: tail_r_hat,
-        max: bulk_r_hat.max(tail_r_hat),
-    };
-    let draws = (traces.len() * n) as f64;
-    let ess = if autocorrelation.tau.is_nan() {
-        f64::NAN
-    } else {
-        draws / autocorrelation.tau.max(1.0)
-    };
-    let diagnostics = ParameterDiagnostics {
-        autocorrelation,
-        autocorrelation_times_in_run: times,
-        r_hat,
-        ess_bulk: ess,
-        ess_tail: ess,
-    };
-    let issues = convergence_issues(subject, &diagnostics, thin, thresholds);
-    (diagnostics, issues)
 }
 
 /// The acceptance warnings and the verdict.
