@@ -118,17 +118,9 @@ pub struct InjectionSummary {
     pub cells: Vec<CellSummary>,
 }
 
-/// The p-quantile of sorted values by linear interpolation between order statistics
-/// (Hyndman & Fan 1996, The American Statistician 50, 361, definition 7; NumPy's default).
-pub fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    if sorted.is_empty() {
-        return f64::NAN;
-    }
-    let h = (sorted.len() - 1) as f64 * p;
-    let lo = libm::floor(h) as usize;
-    let hi = (lo + 1).min(sorted.len() - 1);
-    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
-}
+/// The p-quantile of sorted values by linear interpolation between order statistics (Hyndman &
+/// Fan 1996, definition 7), kept here under its earlier path.
+pub use crate::sampler::quantile_sorted;
 
 fn histogram(values: &[f64]) -> Vec<u32> {
     let mut counts = vec![0u32; HISTOGRAM_BINS];

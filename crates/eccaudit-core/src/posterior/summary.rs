@@ -5,7 +5,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::priors::{EccentricityPrior, EccentricityPriorSettings};
-use crate::sampler::{Diagnostics, ParameterDiagnostics};
+use crate::sampler::{quantile_sorted, Diagnostics, ParameterDiagnostics};
 
 use super::bayes::{savage_dickey, SavageDickey};
 
@@ -247,18 +247,6 @@ fn sort_total_order(values: &mut [f64]) {
     }
     for (v, &k) in values.iter_mut().zip(&keys) {
         *v = unkey(k);
-    }
-}
-
-/// Sample quantile, type 7 (linear interpolation; Hyndman & Fan 1996, Am. Stat. 50, 361).
-fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    let h = (sorted.len() - 1) as f64 * p;
-    let i = h as usize;
-    let frac = h - i as f64;
-    if i + 1 < sorted.len() {
-        sorted[i] + frac * (sorted[i + 1] - sorted[i])
-    } else {
-        sorted[i]
     }
 }
 

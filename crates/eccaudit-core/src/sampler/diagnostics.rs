@@ -710,6 +710,25 @@ fn split_r_hat_of(chains: &[Vec<f64>]) -> f64 {
     libm::sqrt(var_plus / within)
 }
 
+/// The `prob`-quantile of `len` values in ascending order, value i given by `at(i)`, by linear
+/// interpolation between order statistics (Hyndman & Fan 1996, The American Statistician 50, 361,
+/// definition 7; NumPy's default); NaN for no values. The one implementation of the crate's sample
+/// quantiles.
+pub fn quantile_type7(len: usize, at: impl Fn(usize) -> f64, prob: f64) -> f64 {
+    if len == 0 {
+        return f64::NAN;
+    }
+    let h = (len - 1) as f64 * prob;
+    let lo = libm::floor(h) as usize;
+    let hi = (lo + 1).min(len - 1);
+    at(lo) + (h - lo as f64) * (at(hi) - at(lo))
+}
+
+/// [`quantile_type7`] of a sorted slice.
+pub fn quantile_sorted(sorted: &[f64], prob: f64) -> f64 {
+    quantile_type7(sorted.len(), |i| sorted[i], prob)
+}
+
 /// Pooled draws of several equal-length chains in ascending order, each with its place
 /// (chain · n + index), sorted once.
 struct RankedDraws {
@@ -739,17 +758,9 @@ impl RankedDraws {
         self.order.len()
     }
 
-    /// Quantile of the pooled draws by linear interpolation (Hyndman & Fan 1996, American
-    /// Statistician 50, 361, type 7).
+    /// Quantile of the pooled draws ([`quantile_type7`]).
     fn quantile(&self, prob: f64) -> f64 {
-        let sorted = &self.order;
-        if sorted.is_empty() {
-            return f64::NAN;
-        }
-        let h = (sorted.len() - 1) as f64 * prob;
-        let lo = h.floor() as usize;
-        let hi = (lo + 1).min(sorted.len() - 1);
-        sorted[lo].0 + (h - lo as f64) * (sorted[hi].0 - sorted[lo].0)
+        quantile_type7(self.order.len(), |i| self.order[i].0, prob)
     }
 
     /// The draws folded about `centre`, |x − centre|, ranked by merging the two monotone runs

@@ -18,9 +18,10 @@ pub mod ensemble;
 
 pub use diagnostics::{
     diagnose, diagnose_derived, diagnose_traces, diagnose_with, effective_sample_size, ess_bulk,
-    ess_tail, integrated_autocorrelation_time, rank_normalized_split_r_hat,
-    standard_normal_quantile, AutocorrelationEstimate, ConvergenceIssue, ConvergenceThresholds,
-    DiagnosedQuantities, DiagnosisDepth, Diagnostics, IssueKind, ParameterDiagnostics, RHat,
+    ess_tail, integrated_autocorrelation_time, quantile_sorted, quantile_type7,
+    rank_normalized_split_r_hat, standard_normal_quantile, AutocorrelationEstimate,
+    ConvergenceIssue, ConvergenceThresholds, DiagnosedQuantities, DiagnosisDepth, Diagnostics,
+    IssueKind, ParameterDiagnostics, RHat,
 };
 pub use ensemble::{
     run_ensemble, Chains, DensityFn, EnsembleState, LogDensity, Progress, SamplerError,
