@@ -237,17 +237,10 @@ fn ess_of_iid_draws_is_the_number_of_draws() {
     }
 }
 
-/// AR(1) x_t = φ x_{t−1} + ε_t with φ = 0.9 has τ = (1 + φ)/(1 − φ) = 19
-/// (Sokal 1997, eq. for the exponential autocorrelation ρ(t) = φ^|t|;
-/// common practice). 32 chains × 20 000 steps started in the stationary
-/// law. Sokal's variance formula var(τ̂)/τ² ≈ 2(2M + 1)/n with window M ≈ 5τ
-/// and n = 640 000 gives a relative s.e. of 2.4 %; tolerance 10 % (≈ 4 s.e.).
-/// The ESS, n/τ = 33 684, is checked to the same 10 %.
-#[test]
-fn autocorrelation_time_of_ar1() {
-    let phi: f64 = 0.9;
-    let (n_chains, n) = (32, 20_000);
-    let chains: Vec<Vec<f64>> = (0..n_chains)
+/// `n_chains` AR(1) chains x_t = φ x_{t−1} + ε_t of length n, started in the stationary law
+/// (seed 31, chain c on stream c).
+fn ar1_chains(phi: f64, n_chains: usize, n: usize) -> Vec<Vec<f64>> {
+    (0..n_chains)
         .map(|c| {
             let mut rng = stream_rng(31, c as u64);
             let mut x = standard_normal(&mut rng) / (1.0 - phi * phi).sqrt();
@@ -258,7 +251,20 @@ fn autocorrelation_time_of_ar1() {
                 })
                 .collect()
         })
-        .collect();
+        .collect()
+}
+
+/// AR(1) x_t = φ x_{t−1} + ε_t with φ = 0.9 has τ = (1 + φ)/(1 − φ) = 19
+/// (Sokal 1997, eq. for the exponential autocorrelation ρ(t) = φ^|t|;
+/// common practice). 32 chains × 20 000 steps started in the stationary
+/// law. Sokal's variance formula var(τ̂)/τ² ≈ 2(2M + 1)/n with window M ≈ 5τ
+/// and n = 640 000 gives a relative s.e. of 2.4 %; tolerance 10 % (≈ 4 s.e.).
+/// The ESS, n/τ = 33 684, is checked to the same 10 %.
+#[test]
+fn autocorrelation_time_of_ar1() {
+    let phi: f64 = 0.9;
+    let (n_chains, n) = (32, 20_000);
+    let chains = ar1_chains(phi, n_chains, n);
     let tau_true = (1.0 + phi) / (1.0 - phi);
     let estimate = integrated_autocorrelation_time(&chains);
     println!(
@@ -294,18 +300,7 @@ fn autocorrelation_time_of_ar1() {
 fn quick_diagnosis_on_known_processes() {
     let phi: f64 = 0.9;
     let (n_chains, n) = (32, 20_000);
-    let chains: Vec<Vec<f64>> = (0..n_chains)
-        .map(|c| {
-            let mut rng = stream_rng(31, c as u64);
-            let mut x = standard_normal(&mut rng) / (1.0 - phi * phi).sqrt();
-            (0..n)
-                .map(|_| {
-                    x = phi * x + standard_normal(&mut rng);
-                    x
-                })
-                .collect()
-        })
-        .collect();
+    let chains = ar1_chains(phi, n_chains, n);
     let thresholds = ConvergenceThresholds::default();
     let (d, issues) = diagnose_traces(&chains, "x", 1, &thresholds, DiagnosisDepth::Quick);
     let ess_true = (n_chains * n) as f64 / ((1.0 + phi) / (1.0 - phi));
