@@ -1,7 +1,7 @@
 //! `eccaudit inject`: injection–recovery at the observer's own epochs and error bars, on all
 //! cores, streamed to a resumable CSV, with a JSON summary and SVG figures.
 
-use std::fs::{self, File, OpenOptions};
+use std::fs::{self, OpenOptions};
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
@@ -12,19 +12,15 @@ use anyhow::{bail, Context};
 use eccaudit_core::audit::PosteriorInjectionSettings;
 use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use eccaudit_core::inject::{
-    csv_header, default_eccentricity_grid, record_from_csv_row, record_to_csv_row, run_trial,
-    settings_fingerprint, summarise, Estimator, InjectionDesign, InjectionSummary,
-    LeastSquaresEstimator, LeastSquaresSettings, Sampling, Schedule, Spacing, TrialPeriod,
-    TrialRecord,
+    default_eccentricity_grid, run_trial, settings_fingerprint, summarise, trial_file, Estimator,
+    InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings, Sampling,
+    Schedule, Spacing, TrialPeriod, TrialRecord,
 };
 use eccaudit_core::table::VelocityTable;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{bias_figure, distribution_figure, draw_bias_curve, draw_distributions};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
-
-/// First line of a trial CSV; the fingerprint and the planned trial count follow.
-const CSV_MAGIC: &str = "# eccaudit inject";
 
 /// Options shared by `inject` and `audit`: the run itself.
 #[derive(Debug, Clone, clap::Args)]
@@ -200,62 +196,8 @@ pub fn design(
     Ok(design)
 }
 
-/// Reads the finished trials of an earlier run's CSV. Checks the fingerprint and the header;
-/// drops a last row cut short by an interruption.
-fn read_existing(
-    path: &Path,
-    fingerprint: &str,
-    estimators: &[&dyn Estimator],
-) -> anyhow::Result<Vec<TrialRecord>> {
-    let text = fs::read_to_string(path)
-        .with_context(|| format!("--resume: cannot read `{}`", path.display()))?;
-    let first = text.lines().next().unwrap_or("");
-    let Some(rest) = first.strip_prefix(CSV_MAGIC) else {
-        bail!(
-            "--resume: `{}` is not a trial file of eccaudit inject (first line `{first}`)",
-            path.display()
-        );
-    };
-    let found = rest
-        .split_whitespace()
-        .find_map(|w| w.strip_prefix("fingerprint="))
-        .unwrap_or("");
-    if found != fingerprint {
-        bail!(
-            "--resume: `{}` was made with other settings (fingerprint {found}, these settings \
-             {fingerprint}); use the same table, grid, seed and estimator options, or another --out",
-            path.display()
-        );
-    }
-    // A row cut short by an interruption has no final newline: drop it.
-    let complete = match text.rfind('\n') {
-        Some(i) => &text[..=i],
-        None => "",
-    };
-    let mut reader = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(complete.as_bytes());
-    let header: Vec<String> = reader.headers()?.iter().map(str::to_string).collect();
-    if header != csv_header(estimators) {
-        bail!(
-            "--resume: the columns of `{}` differ from this run's",
-            path.display()
-        );
-    }
-    let mut records = Vec::new();
-    for row in reader.records() {
-        let row = row.with_context(|| format!("--resume: `{}`", path.display()))?;
-        let line = row.position().map_or(0, |p| p.line());
-        let fields: Vec<&str> = row.iter().collect();
-        records.push(
-            record_from_csv_row(&fields, estimators, line)
-                .with_context(|| format!("--resume: `{}`", path.display()))?,
-        );
-    }
-    Ok(records)
-}
-
-/// Writes the CSV: magic line, header, and `records` sorted by trial index.
+/// Writes the complete trial file (magic line, header, `records` in trial order) through a
+/// temporary file, so an interruption never leaves a half-written file.
 fn write_csv_file(
     path: &Path,
     fingerprint: &str,
@@ -264,22 +206,11 @@ fn write_csv_file(
     records: &[TrialRecord],
 ) -> anyhow::Result<()> {
     let tmp = path.with_extension("csv.tmp");
-    {
-        let mut file =
-            File::create(&tmp).with_context(|| format!("cannot write `{}`", tmp.display()))?;
-        writeln!(
-            file,
-            "{CSV_MAGIC} fingerprint={fingerprint} trials={n_trials}"
-        )?;
-        let mut writer = csv::Writer::from_writer(file);
-        writer.write_record(csv_header(estimators))?;
-        let mut sorted: Vec<&TrialRecord> = records.iter().collect();
-        sorted.sort_by_key(|r| r.trial);
-        for r in sorted {
-            writer.write_record(record_to_csv_row(r, estimators))?;
-        }
-        writer.flush()?;
-    }
+    fs::write(
+        &tmp,
+        trial_file::write_trial_file(fingerprint, n_trials, estimators, records),
+    )
+    .with_context(|| format!("cannot write `{}`", tmp.display()))?;
     fs::rename(&tmp, path).with_context(|| format!("cannot write `{}`", path.display()))?;
     Ok(())
 }
@@ -297,7 +228,12 @@ pub fn run_design(
     let fingerprint = settings_fingerprint(design, estimators);
     let n_trials = design.n_trials();
     let mut records = if run.resume && csv_path.exists() {
-        read_existing(&csv_path, &fingerprint, estimators)?
+        let text = fs::read_to_string(&csv_path)
+            .with_context(|| format!("--resume: cannot read `{}`", csv_path.display()))?;
+        let name = csv_path.display().to_string();
+        trial_file::read_trial_file(&text, &name, estimators, Some(&fingerprint))
+            .context("--resume")?
+            .records
     } else {
         if csv_path.exists() && !run.resume {
             bail!(
@@ -307,9 +243,7 @@ pub fn run_design(
         }
         Vec::new()
     };
-    records.retain(|r| r.trial < n_trials);
-    records.sort_by_key(|r| r.trial);
-    records.dedup_by_key(|r| r.trial);
+    trial_file::normalise_records(&mut records, n_trials);
     // Start the file afresh from the trials kept (drops a cut-off row), then append.
     write_csv_file(&csv_path, &fingerprint, n_trials, estimators, &records)?;
     let mut done = vec![false; n_trials as usize];
@@ -325,7 +259,7 @@ pub fn run_design(
         .append(true)
         .open(&csv_path)
         .with_context(|| format!("cannot append to `{}`", csv_path.display()))?;
-    let writer = Mutex::new(csv::Writer::from_writer(file));
+    let writer = Mutex::new(file);
     let progress = if run.quiet || !std::io::stderr().is_terminal() {
         ProgressBar::hidden()
     } else {
@@ -344,10 +278,9 @@ pub fn run_design(
             .filter(|_| started.fetch_add(1, Ordering::Relaxed) < to_run)
             .map(|&trial| -> anyhow::Result<TrialRecord> {
                 let record = run_trial(design, estimators, trial)?;
-                let row = record_to_csv_row(&record, estimators);
+                let line = trial_file::row_line(&record, estimators);
                 let mut w = writer.lock().expect("no thread panicked while writing");
-                w.write_record(&row)?;
-                w.flush()?;
+                w.write_all(line.as_bytes())?;
                 progress.inc(1);
                 Ok(record)
             })

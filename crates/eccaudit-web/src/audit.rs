@@ -8,7 +8,7 @@
 
 use eccaudit_core::audit::{data_fingerprint, AuditPlan, AuditReport, AuditSettings, DataIdentity};
 use eccaudit_core::inject::{
-    csv_header, record_from_csv_row, record_to_csv_row, settings_fingerprint, TrialRecord,
+    record_from_csv_row, record_to_csv_row, settings_fingerprint, trial_file, TrialRecord,
 };
 use eccaudit_core::table::{parse_table, ReadOptions, TimeSpec, VelocityUnit};
 use eccaudit_plot::{bias_figure, distribution_figure, BiasFigure};
@@ -17,10 +17,6 @@ use web_sys::HtmlCanvasElement;
 
 use crate::render;
 use crate::{js_error, to_js};
-
-/// First line of a trial CSV, as `eccaudit inject`/`audit` write it (so `--resume` reads the
-/// page's file); the settings fingerprint and the planned trial count follow.
-const CSV_MAGIC: &str = "# eccaudit inject";
 
 /// The default settings of an audit, as JSON (the replay-file format).
 #[wasm_bindgen(js_name = defaultAuditSettings)]
@@ -146,8 +142,7 @@ impl AuditRun {
                 record_from_csv_row(&fields, &estimators, idx as u64 + 1).map_err(js_error)?;
             records.push(record);
         }
-        records.sort_by_key(|r| r.trial);
-        records.dedup_by_key(|r| r.trial);
+        trial_file::normalise_records(&mut records, self.plan.n_trials());
         let report = self.plan.finish(&records).map_err(js_error)?;
         let out = to_js(&report)?;
         self.finished = Some((records, report));
@@ -173,15 +168,12 @@ impl AuditRun {
         let (records, _) = self.report()?;
         let estimators = self.plan.estimators();
         let fingerprint = settings_fingerprint(self.plan.design(), &estimators);
-        let mut out = format!(
-            "{CSV_MAGIC} fingerprint={fingerprint} trials={}\n",
-            self.plan.n_trials()
-        );
-        push_csv_line(&mut out, &csv_header(&estimators));
-        for record in records {
-            push_csv_line(&mut out, &record_to_csv_row(record, &estimators));
-        }
-        Ok(out)
+        Ok(trial_file::write_trial_file(
+            &fingerprint,
+            self.plan.n_trials(),
+            &estimators,
+            records,
+        ))
     }
 
     /// Draw the last report's bias curve on `canvas`.
@@ -244,36 +236,9 @@ fn trial_index(value: f64) -> Result<u64, JsValue> {
     }
 }
 
-/// One CSV line (RFC 4180 quoting: fields with a comma, quote or line break are quoted).
-fn push_csv_line(out: &mut String, fields: &[String]) {
-    for (i, field) in fields.iter().enumerate() {
-        if i > 0 {
-            out.push(',');
-        }
-        if field.contains([',', '"', '\n', '\r']) {
-            out.push('"');
-            out.push_str(&field.replace('"', "\"\""));
-            out.push('"');
-        } else {
-            out.push_str(field);
-        }
-    }
-    out.push('\n');
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn csv_lines_quote_only_what_needs_it() {
-        let mut out = String::new();
-        push_csv_line(
-            &mut out,
-            &["1".into(), "failed: a, \"b\"".into(), "0.25".into()],
-        );
-        assert_eq!(out, "1,\"failed: a, \"\"b\"\"\",0.25\n");
-    }
 
     #[test]
     fn settings_for_fill_the_identity_and_reading() {

@@ -8,7 +8,7 @@ use rand::RngExt;
 use serde::Serialize;
 
 use super::design::{random_angle, GridCell, InjectionDesign};
-use super::estimators::{all_outputs, EccentricityEstimate, Estimator};
+use super::estimators::{EccentricityEstimate, Estimator};
 use super::InjectError;
 use crate::fit::problem::keplerian_shape;
 use crate::fit::FitData;
@@ -64,7 +64,7 @@ pub struct TrialRecord {
     pub omega: f64,
     /// Injected mean anomaly at the reference epoch [rad].
     pub mean_anomaly: f64,
-    /// One outcome per estimator output, in the order of [`all_outputs`].
+    /// One outcome per estimator output, in the order of [`super::estimators::all_outputs`].
     pub outcomes: Vec<Outcome>,
 }
 
@@ -219,167 +219,6 @@ pub fn settings_fingerprint(design: &InjectionDesign, estimators: &[&dyn Estimat
     format!("{:016x}", fnv1a(text.as_bytes()))
 }
 
-/// Header of the trial CSV for these estimators.
-pub fn csv_header(estimators: &[&dyn Estimator]) -> Vec<String> {
-    let mut header: Vec<String> = [
-        "trial",
-        "cell",
-        "true_e",
-        "true_k",
-        "true_omega",
-        "true_mean_anomaly",
-    ]
-    .iter()
-    .map(|s| s.to_string())
-    .collect();
-    for output in all_outputs(estimators) {
-        let n = &output.name;
-        for column in [
-            "status",
-            "point",
-            "lower68",
-            "upper68",
-            "lower95",
-            "upper95",
-            "eccentric",
-        ] {
-            header.push(format!("{n}_{column}"));
-        }
-        for extra in &output.extra_names {
-            header.push(format!("{n}_{extra}"));
-        }
-    }
-    header
-}
-
-/// A record as CSV fields (floats in Rust's shortest round-trip form, so a row read back gives
-/// the same bits).
-pub fn record_to_csv_row(record: &TrialRecord, estimators: &[&dyn Estimator]) -> Vec<String> {
-    let mut row = vec![
-        record.trial.to_string(),
-        record.cell.to_string(),
-        record.eccentricity.to_string(),
-        record.semi_amplitude.to_string(),
-        record.omega.to_string(),
-        record.mean_anomaly.to_string(),
-    ];
-    for (output, outcome) in all_outputs(estimators).iter().zip(&record.outcomes) {
-        match outcome {
-            Outcome::Estimate(e) => {
-                row.push("ok".into());
-                for v in [e.point, e.lower68, e.upper68, e.lower95, e.upper95] {
-                    row.push(v.to_string());
-                }
-                row.push(match e.calls_eccentric {
-                    Some(true) => "1".into(),
-                    Some(false) => "0".into(),
-                    None => String::new(),
-                });
-                row.extend(e.extra.iter().map(f64::to_string));
-            }
-            Outcome::Failed(message) => {
-                row.push(format!("failed: {message}"));
-                row.extend((0..6 + output.extra_names.len()).map(|_| String::new()));
-            }
-        }
-    }
-    row
-}
-
-/// Reads a record back from CSV fields written by [`record_to_csv_row`]. `line` (1-based) is
-/// only used in error messages.
-pub fn record_from_csv_row(
-    fields: &[&str],
-    estimators: &[&dyn Estimator],
-    line: u64,
-) -> Result<TrialRecord, InjectError> {
-    let header = csv_header(estimators);
-    if fields.len() != header.len() {
-        return Err(InjectError::CsvRow {
-            line,
-            column: String::new(),
-            value: format!("{} fields", fields.len()),
-            reason: format!("expected {} fields", header.len()),
-        });
-    }
-    let float = |i: usize| -> Result<f64, InjectError> {
-        fields[i]
-            .trim()
-            .parse::<f64>()
-            .map_err(|_| InjectError::CsvRow {
-                line,
-                column: header[i].clone(),
-                value: fields[i].to_string(),
-                reason: "not a number".into(),
-            })
-    };
-    let integer = |i: usize| -> Result<u64, InjectError> {
-        fields[i]
-            .trim()
-            .parse::<u64>()
-            .map_err(|_| InjectError::CsvRow {
-                line,
-                column: header[i].clone(),
-                value: fields[i].to_string(),
-                reason: "not a whole number".into(),
-            })
-    };
-    let mut record = TrialRecord {
-        trial: integer(0)?,
-        cell: integer(1)? as usize,
-        eccentricity: float(2)?,
-        semi_amplitude: float(3)?,
-        omega: float(4)?,
-        mean_anomaly: float(5)?,
-        outcomes: Vec::new(),
-    };
-    let mut i = 6;
-    for output in all_outputs(estimators) {
-        let width = 7 + output.extra_names.len();
-        let status = fields[i];
-        if status == "ok" {
-            let calls_eccentric = match fields[i + 6] {
-                "1" => Some(true),
-                "0" => Some(false),
-                "" => None,
-                other => {
-                    return Err(InjectError::CsvRow {
-                        line,
-                        column: header[i + 6].clone(),
-                        value: other.to_string(),
-                        reason: "expected 1, 0 or empty".into(),
-                    })
-                }
-            };
-            let extra = (0..output.extra_names.len())
-                .map(|j| float(i + 7 + j))
-                .collect::<Result<Vec<_>, _>>()?;
-            record
-                .outcomes
-                .push(Outcome::Estimate(EccentricityEstimate {
-                    point: float(i + 1)?,
-                    lower68: float(i + 2)?,
-                    upper68: float(i + 3)?,
-                    lower95: float(i + 4)?,
-                    upper95: float(i + 5)?,
-                    calls_eccentric,
-                    extra,
-                }));
-        } else if let Some(message) = status.strip_prefix("failed: ") {
-            record.outcomes.push(Outcome::Failed(message.to_string()));
-        } else {
-            return Err(InjectError::CsvRow {
-                line,
-                column: header[i].clone(),
-                value: status.to_string(),
-                reason: "expected `ok` or `failed: …`".into(),
-            });
-        }
-        i += width;
-    }
-    Ok(record)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -427,28 +266,6 @@ mod tests {
                 .unwrap()
                 .len(),
             1
-        );
-    }
-
-    #[test]
-    fn csv_rows_round_trip_exactly() {
-        let d = design();
-        let lsq = LeastSquaresEstimator::default();
-        let estimators: [&dyn Estimator; 1] = [&lsq];
-        let record = run_trial(&d, &estimators, 4).unwrap();
-        let row = record_to_csv_row(&record, &estimators);
-        assert_eq!(row.len(), csv_header(&estimators).len());
-        let fields: Vec<&str> = row.iter().map(String::as_str).collect();
-        let back = record_from_csv_row(&fields, &estimators, 2).unwrap();
-        assert_eq!(back, record);
-        let mut bad = fields.clone();
-        bad[2] = "zero";
-        let err = record_from_csv_row(&bad, &estimators, 7)
-            .unwrap_err()
-            .to_string();
-        assert!(
-            err.contains("line 7") && err.contains("true_e") && err.contains("zero"),
-            "{err}"
         );
     }
 

@@ -6,7 +6,8 @@
 //! [`design`] says what is simulated; [`engine`] runs any range of trial indices (no threads:
 //! the command line spreads ranges over cores, the page over Web Workers); [`estimators`] holds
 //! the [`Estimator`] trait and the least-squares estimator (posterior estimators plug in through
-//! the same trait); [`summary`] and [`statement`] turn records into numbers and words.
+//! the same trait); [`summary`] and [`statement`] turn records into numbers and words;
+//! [`trial_file`] is the text format of the trials (resumable, mergeable).
 
 pub mod design;
 pub mod engine;
@@ -14,6 +15,7 @@ pub mod estimators;
 pub mod posterior_estimator;
 pub mod statement;
 pub mod summary;
+pub mod trial_file;
 
 use thiserror::Error;
 
@@ -21,8 +23,8 @@ pub use design::{
     default_eccentricity_grid, DesignError, GridCell, InjectionDesign, Sampling, Schedule, Spacing,
 };
 pub use engine::{
-    csv_header, record_from_csv_row, record_to_csv_row, run_trial, run_trials,
-    settings_fingerprint, simulate_trial, Outcome, SimulatedTrial, TrialRecord,
+    run_trial, run_trials, settings_fingerprint, simulate_trial, Outcome, SimulatedTrial,
+    TrialRecord,
 };
 pub use estimators::{
     all_outputs, EccentricityEstimate, Estimator, EstimatorError, LeastSquaresEstimator,
@@ -33,6 +35,10 @@ pub use statement::{
     eccentricity_statement, EccentricityStatement, FittedOrbit, MonteCarloP, OutputCalibration,
 };
 pub use summary::{summarise, CellSummary, InjectionSummary, OutputCellSummary, Quantiles, Rate};
+pub use trial_file::{
+    csv_header, read_trial_file, record_from_csv_row, record_to_csv_row, write_trial_file,
+    TrialFile, TrialFileError, TrialFileHead,
+};
 
 /// What can go wrong in an injection–recovery run.
 #[derive(Debug, Clone, PartialEq, Error)]
