@@ -1,6 +1,9 @@
 #!/usr/bin/env bash
 # Every test eccaudit has, in the order that fails fastest:
-#   1. native: unit, reference-value, property and CLI tests (cargo test);
+#   0. lint gates: formatting, clippy with warnings as errors (workspace lints, the core's
+#      disallowed methods in crates/eccaudit-core/clippy.toml);
+#   1. native: unit, reference-value, property and CLI tests (cargo test), then the core's
+#      tests again with debug assertions and overflow checks (profile `checked`);
 #   2. wasm: build the adapter, run its tests in headless Chromium;
 #   3. page: drive the built page in headless Chromium (tests/browser).
 set -euo pipefail
@@ -10,8 +13,15 @@ bash scripts/setup.sh
 # Property tests explore the same cases on every run (override to explore others).
 export PROPTEST_RNG_SEED="${PROPTEST_RNG_SEED:-20261202}"
 
+echo "== format and lints"
+cargo fmt --all --check
+cargo clippy --workspace --all-targets --release -- -D warnings
+
 echo "== native tests"
 cargo test --workspace --release
+
+echo "== core tests with debug assertions and overflow checks"
+cargo test --profile checked -p eccaudit-core
 
 echo "== wasm build"
 bash scripts/build-wasm.sh

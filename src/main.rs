@@ -2,7 +2,9 @@
 //!
 //! Each subcommand lives in `src/commands/`; this file only parses the
 //! command line and turns any error into one readable line and a non-zero
-//! exit status.
+//! exit status. A reader that closes the pipe early (`eccaudit table FILE |
+//! head -1`) is not an error: the command stops quietly with status 0, as
+//! well-behaved Unix tools do.
 
 mod commands;
 
@@ -38,6 +40,7 @@ enum Command {
 }
 
 fn main() -> ExitCode {
+    exit_quietly_on_closed_stdout();
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
         Err(err) => return usage_error(err),
@@ -53,12 +56,65 @@ fn main() -> ExitCode {
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
+        Err(err) if is_broken_pipe(&err) => ExitCode::SUCCESS,
         Err(err) => {
-            // One readable line: the whole context chain joined by ": ".
-            eprintln!("eccaudit: error: {err:#}");
+            eprintln!("eccaudit: error: {}", error_line(&err));
             ExitCode::FAILURE
         }
     }
+}
+
+/// One readable line: the error and its causes joined by ": ", each said once. Errors that
+/// already print their source in their own message (`injection design: trials per cell = 0:
+/// at least 1`) would otherwise repeat it, so a cause whose text the previous message already
+/// contains is skipped.
+fn error_line(err: &anyhow::Error) -> String {
+    let mut line = String::new();
+    let mut previous = String::new();
+    for cause in err.chain() {
+        let text = cause.to_string();
+        if line.is_empty() {
+            line.push_str(&text);
+        } else if !previous.contains(&text) {
+            line.push_str(": ");
+            line.push_str(&text);
+        }
+        previous = text;
+    }
+    line
+}
+
+/// True when the error comes from writing to a reader that has gone away.
+fn is_broken_pipe(err: &anyhow::Error) -> bool {
+    err.chain().any(|cause| {
+        cause
+            .downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
+}
+
+/// `println!` panics when standard output is a closed pipe (Rust ignores SIGPIPE, so the write
+/// fails with EPIPE instead of killing the process). That panic is the reader's choice to stop
+/// reading, not a bug: exit with status 0 and no message. Every other panic keeps the default
+/// report.
+fn exit_quietly_on_closed_stdout() {
+    let default_hook = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        let payload = info.payload();
+        let message = payload
+            .downcast_ref::<String>()
+            .map(String::as_str)
+            .or_else(|| payload.downcast_ref::<&str>().copied())
+            .unwrap_or("");
+        // std's text: "failed printing to stdout: Broken pipe (os error 32)".
+        let broken_pipe = std::io::Error::from(std::io::ErrorKind::BrokenPipe).to_string();
+        if message.starts_with("failed printing to stdout")
+            && (message.contains("Broken pipe") || message.contains(&broken_pipe))
+        {
+            std::process::exit(0);
+        }
+        default_hook(info);
+    }));
 }
 
 /// Help and version go to standard output as clap prints them; a usage

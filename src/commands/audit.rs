@@ -72,7 +72,7 @@ fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
 /// Fit, simulate, summarise, state.
 pub fn run(args: Args) -> anyhow::Result<()> {
     let source_name = args.file.display().to_string();
-    let bytes = fs::read(&args.file).with_context(|| format!("cannot read `{source_name}`"))?;
+    let bytes = super::read_input_file(&args.file)?;
     let identity = DataIdentity {
         file_name: args
             .file
@@ -82,8 +82,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     };
     let settings = match &args.settings {
         Some(path) => {
-            let text = fs::read_to_string(path)
-                .with_context(|| format!("cannot read settings `{}`", path.display()))?;
+            let text = super::read_input_text(path).context("settings")?;
             let settings = AuditSettings::from_json(&text)
                 .with_context(|| format!("settings `{}`", path.display()))?;
             settings

@@ -228,8 +228,7 @@ pub fn run_design(
     let fingerprint = settings_fingerprint(design, estimators);
     let n_trials = design.n_trials();
     let mut records = if run.resume && csv_path.exists() {
-        let text = fs::read_to_string(&csv_path)
-            .with_context(|| format!("--resume: cannot read `{}`", csv_path.display()))?;
+        let text = super::read_input_text(&csv_path).context("--resume")?;
         let name = csv_path.display().to_string();
         trial_file::read_trial_file(&text, &name, estimators, Some(&fingerprint))
             .context("--resume")?

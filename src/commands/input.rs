@@ -1,9 +1,7 @@
 //! Reading a velocity table from a file: the options every table-reading subcommand shares.
 
-use std::fs;
 use std::path::Path;
 
-use anyhow::Context;
 use eccaudit_core::table::{
     parse_table, Delimiter, ReadOptions, TimeSpec, VelocityTable, VelocityUnit,
 };
@@ -24,10 +22,7 @@ pub struct TableArgs {
 
 /// The file's text, or a one-line error naming it.
 pub fn read_text(path: &Path) -> anyhow::Result<String> {
-    let source_name = path.display();
-    let bytes = fs::read(path).with_context(|| format!("cannot read `{source_name}`"))?;
-    String::from_utf8(bytes)
-        .with_context(|| format!("cannot read `{source_name}`: the file is not UTF-8 text"))
+    super::read_input_text(path)
 }
 
 /// Read and parse the table at `path` (errors name the file, line and column).

@@ -145,6 +145,14 @@ impl PosteriorInjectionSettings {
             n_burn: self.n_burn,
             ..fast_sampler_settings(seed)
         };
+        // Refuse oversized runs here, once, rather than in every trial.
+        crate::limits::check_sampler_counts(
+            sampler.n_walkers,
+            sampler.n_burn,
+            sampler.n_steps,
+            sampler.thin,
+        )
+        .map_err(|e| AuditError::Settings(format!("injection.posterior: {e}")))?;
         self.priors
             .iter()
             .enumerate()
@@ -245,10 +253,18 @@ pub enum AuditError {
     },
     /// The least-squares fit of the real data failed.
     #[error("least-squares fit: {0}")]
-    Fit(#[from] FitError),
+    Fit(FitError),
     /// The simulations cannot run.
     #[error(transparent)]
     Inject(#[from] InjectError),
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<FitError> for AuditError {
+    fn from(err: FitError) -> Self {
+        Self::Fit(err)
+    }
 }
 
 /// SHA-256 of a table's bytes as lower-case hex: the data identity of a settings file.

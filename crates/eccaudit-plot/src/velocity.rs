@@ -25,14 +25,18 @@ pub struct VelocitySeries {
 /// A model curve sampled densely in time.
 #[derive(Debug, Clone, Default)]
 pub struct ModelCurve {
+    /// Times [d], on the same axis as the measurements.
     pub time: Vec<f64>,
+    /// Model velocities [m/s] at those times.
     pub velocity: Vec<f64>,
 }
 
 /// Everything the velocity figure shows.
 #[derive(Debug, Clone, Default)]
 pub struct VelocityFigure {
+    /// The measurements, one series per instrument.
     pub series: Vec<VelocitySeries>,
+    /// The model curve drawn over them, if any.
     pub curve: Option<ModelCurve>,
     /// Name of the time axis' convention, e.g. "BJD" (the offset is added).
     pub time_label: String,

@@ -55,7 +55,15 @@ pub enum FigureError {
     },
     /// The periodogram could not be computed.
     #[error("periodogram: {0}")]
-    Periodogram(#[from] PeriodogramError),
+    Periodogram(PeriodogramError),
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<PeriodogramError> for FigureError {
+    fn from(err: PeriodogramError) -> Self {
+        Self::Periodogram(err)
+    }
 }
 
 /// The generalised Lomb–Scargle periodogram (Zechmeister & Kürster 2009, A&A 496, 577) that the

@@ -156,6 +156,9 @@ pub enum FitError {
     /// Column lengths differ.
     #[error("column lengths differ: {0}")]
     LengthMismatch(String),
+    /// A count is above its bound in [`crate::limits`].
+    #[error(transparent)]
+    TooLarge(#[from] crate::limits::LimitError),
     /// An option is out of range.
     #[error("option {name} = {value}: {reason}")]
     InvalidOption {

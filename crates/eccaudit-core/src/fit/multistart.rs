@@ -224,6 +224,24 @@ fn check_inputs(data: &FitData, options: &FitOptions) -> Result<(), FitError> {
     if options.n_companions == 0 {
         return bad("n_companions", "0".into(), "at least one companion");
     }
+    {
+        use crate::limits::{check_count, MAX_COMPANIONS, MAX_EPOCHS, MAX_STARTS};
+        check_count("epochs", n as u64, MAX_EPOCHS)?;
+        check_count("companions", options.n_companions as u64, MAX_COMPANIONS)?;
+        for (what, count) in [
+            ("periodogram peaks (n_peaks)", options.n_peaks),
+            ("ω starts (n_omega_starts)", options.n_omega_starts),
+            ("random starts (n_random_starts)", options.n_random_starts),
+            ("phases scanned (n_phase_scan)", options.n_phase_scan),
+            (
+                "starting eccentricities",
+                options.start_eccentricities.len(),
+            ),
+            ("initial periods", options.initial_periods.len()),
+        ] {
+            check_count(what, count as u64, MAX_STARTS)?;
+        }
+    }
     if options
         .start_eccentricities
         .iter()

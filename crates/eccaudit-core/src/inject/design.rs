@@ -91,6 +91,12 @@ impl Sampling {
                 .into());
             }
         }
+        crate::limits::check_count(
+            "number of epochs",
+            times.len() as u64,
+            crate::limits::MAX_EPOCHS,
+        )
+        .map_err(DesignError::from)?;
         if let Some((index, &i)) = instruments
             .iter()
             .enumerate()
@@ -139,6 +145,12 @@ impl Sampling {
             }
             .into());
         }
+        crate::limits::check_count(
+            "schedule epochs",
+            n_epochs as u64,
+            crate::limits::MAX_EPOCHS,
+        )
+        .map_err(DesignError::from)?;
         if !(baseline.is_finite() && baseline > 0.0) {
             return Err(DesignError::BadSchedule {
                 what: "baseline",
@@ -224,6 +236,9 @@ pub enum DesignError {
         /// The value.
         value: f64,
     },
+    /// A count is above its bound in [`crate::limits`].
+    #[error(transparent)]
+    TooLarge(#[from] crate::limits::LimitError),
     /// A schedule setting is unusable.
     #[error("schedule {what} = {value}: {reason}")]
     BadSchedule {
@@ -335,6 +350,25 @@ impl InjectionDesign {
         if self.trials_per_cell == 0 {
             return bad("trials per cell", 0.0, "at least 1");
         }
+        use crate::limits::{
+            check_count, product, MAX_GRID_CELLS, MAX_TRIALS, MAX_TRIALS_PER_CELL,
+        };
+        let trials_per_cell = self.trials_per_cell as u64;
+        let n_cells = product(&[
+            self.eccentricities.len() as u64,
+            self.semi_amplitudes.len() as u64,
+            self.omegas.len().max(1) as u64,
+        ]);
+        check_count("trials per cell", trials_per_cell, MAX_TRIALS_PER_CELL)
+            .and_then(|()| check_count("grid cells", n_cells, MAX_GRID_CELLS))
+            .and_then(|()| {
+                check_count(
+                    "trials in all (cells × trials per cell)",
+                    product(&[n_cells, trials_per_cell]),
+                    MAX_TRIALS,
+                )
+            })
+            .map_err(DesignError::from)?;
         Ok(())
     }
 

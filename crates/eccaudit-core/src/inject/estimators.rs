@@ -55,10 +55,18 @@ pub struct OutputInfo {
 pub enum EstimatorError {
     /// The least-squares fit failed.
     #[error("least-squares fit failed: {0}")]
-    Fit(#[from] FitError),
+    Fit(FitError),
     /// Any other failure (for estimators added later), in words.
     #[error("{0}")]
     Other(String),
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<FitError> for EstimatorError {
+    fn from(err: FitError) -> Self {
+        Self::Fit(err)
+    }
 }
 
 /// An eccentricity estimator that the injection–recovery engine runs on every simulated data

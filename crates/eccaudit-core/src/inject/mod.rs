@@ -45,7 +45,7 @@ pub use trial_file::{
 pub enum InjectError {
     /// The design is unusable.
     #[error("injection design: {0}")]
-    Design(#[from] DesignError),
+    Design(DesignError),
     /// A trial index beyond the design.
     #[error("trial {trial} is beyond the design's {n_trials} trials")]
     TrialOutOfRange {
@@ -77,4 +77,12 @@ pub enum InjectError {
     /// The statement cannot be made.
     #[error("eccentricity statement: {0}")]
     Statement(String),
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<DesignError> for InjectError {
+    fn from(err: DesignError) -> Self {
+        Self::Design(err)
+    }
 }

@@ -53,13 +53,13 @@ pub use target::{PosteriorSettings, RvPosterior};
 pub enum PosteriorError {
     /// A prior setting is impossible.
     #[error("prior: {0}")]
-    Prior(#[from] PriorError),
+    Prior(PriorError),
     /// The least-squares fit that gives the start failed.
     #[error("least-squares start: {0}")]
-    Fit(#[from] FitError),
+    Fit(FitError),
     /// The sampler refused its settings or found no valid start.
     #[error("sampler: {0}")]
-    Sampler(#[from] SamplerError),
+    Sampler(SamplerError),
     /// A prior written as text could not be read.
     #[error("prior spec `{spec}`: {reason}")]
     PriorSpec {
@@ -155,4 +155,28 @@ pub enum PosteriorError {
         /// Steps done in that run.
         steps_done: usize,
     },
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<PriorError> for PosteriorError {
+    fn from(err: PriorError) -> Self {
+        Self::Prior(err)
+    }
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<FitError> for PosteriorError {
+    fn from(err: FitError) -> Self {
+        Self::Fit(err)
+    }
+}
+
+// The message above already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
+impl From<SamplerError> for PosteriorError {
+    fn from(err: SamplerError) -> Self {
+        Self::Sampler(err)
+    }
 }

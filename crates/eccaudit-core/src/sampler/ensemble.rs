@@ -95,6 +95,9 @@ pub enum SamplerError {
         /// Smallest acceptable even count.
         minimum: usize,
     },
+    /// A count is above its bound in [`crate::limits`].
+    #[error(transparent)]
+    TooLarge(#[from] crate::limits::LimitError),
     /// Stretch scale not above 1.
     #[error("stretch_a = {stretch_a} must be a finite number above 1 (2 is usual)")]
     StretchScale {
@@ -304,6 +307,12 @@ impl EnsembleState {
                 thin: settings.thin,
             });
         }
+        crate::limits::check_sampler_counts(
+            settings.n_walkers,
+            settings.n_burn,
+            settings.n_steps,
+            settings.thin,
+        )?;
         for (what, values) in [("start", start), ("scales", scales)] {
             if values.len() != dim {
                 return Err(SamplerError::Length {
