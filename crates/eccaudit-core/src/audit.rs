@@ -195,6 +195,24 @@ impl PosteriorInjectionSettings {
     }
 }
 
+impl PosteriorInjectionSettings {
+    /// The estimators for simulations of `design`: each samples the model the design's
+    /// refits use (companions, trend, jitter sampled when the model fits jitters).
+    pub fn estimators_for(
+        &self,
+        seed: u64,
+        design: &InjectionDesign,
+    ) -> Result<Vec<PosteriorEstimator>, AuditError> {
+        let mut posteriors = self.estimators(seed)?;
+        for p in &mut posteriors {
+            p.posterior.n_companions = design.model.n_companions();
+            p.posterior.trend = design.model.trend;
+            p.posterior.jitter = design.model.fit_jitter;
+        }
+        Ok(posteriors)
+    }
+}
+
 impl Default for InjectionSettings {
     fn default() -> Self {
         let lsq = LeastSquaresSettings::default();
@@ -444,6 +462,39 @@ fn background_velocities(
     model
 }
 
+/// The rest of the model in each simulation of companion `audited` (0-based) of `fit`: the
+/// background velocity (other companions, trend, offsets of the eccentric solution), the
+/// fitted instrument jitters (when the jitter mode fitted them), and the refit's model with the
+/// audited companion's period first.
+pub fn trial_model(data: &FitData, fit: &ModelFit, audited: usize) -> TrialModel {
+    let solution = &fit.report.eccentric;
+    let trend = solution.trend.is_some();
+    let mut periods = vec![solution.companions[audited].period.value];
+    periods.extend(
+        solution
+            .companions
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| *i != audited)
+            .map(|(_, c)| c.period.value),
+    );
+    TrialModel {
+        background: background_velocities(data, solution, trend, audited),
+        instrument_jitters: if fit.jitter.fitted {
+            solution
+                .instruments
+                .iter()
+                .map(|i| i.jitter.unwrap_or(0.0))
+                .collect()
+        } else {
+            Vec::new()
+        },
+        periods,
+        trend,
+        fit_jitter: fit.jitter.fitted,
+    }
+}
+
 impl AuditPlan {
     /// Fit `table` and fix the simulation design of the first audited companion (the one of
     /// `settings.model.audit_companion`, else companion 1). [`AuditPlan::all`] gives every
@@ -479,31 +530,7 @@ impl AuditPlan {
         let companion = &solution.companions[audited];
         let period = companion.period.value;
         let semi_amplitude = companion.semi_amplitude.value;
-        let trend = solution.trend.is_some();
-        let mut periods = vec![period];
-        periods.extend(
-            solution
-                .companions
-                .iter()
-                .enumerate()
-                .filter(|(i, _)| *i != audited)
-                .map(|(_, c)| c.period.value),
-        );
-        let model = TrialModel {
-            background: background_velocities(&data, solution, trend, audited),
-            instrument_jitters: if model_fit.jitter.fitted {
-                solution
-                    .instruments
-                    .iter()
-                    .map(|i| i.jitter.unwrap_or(0.0))
-                    .collect()
-            } else {
-                Vec::new()
-            },
-            periods,
-            trend,
-            fit_jitter: model_fit.jitter.fitted,
-        };
+        let model = trial_model(&data, &model_fit, audited);
         let design = InjectionDesign {
             sampling: Sampling::from_table(table),
             period,
@@ -517,13 +544,11 @@ impl AuditPlan {
         };
         design.validate()?;
         let least_squares = settings.least_squares();
-        let mut posteriors = settings.injection.posterior.estimators(settings.seed)?;
         // The posterior inside each trial samples the same model as the refits.
-        for p in &mut posteriors {
-            p.posterior.n_companions = design.model.n_companions();
-            p.posterior.trend = design.model.trend;
-            p.posterior.jitter = design.model.fit_jitter;
-        }
+        let posteriors = settings
+            .injection
+            .posterior
+            .estimators_for(settings.seed, &design)?;
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
         let mut observed: Vec<Option<EccentricityEstimate>> = Vec::new();

@@ -271,7 +271,9 @@ pub struct JitterDecision {
 /// The fit of a [`Model`] to a data set, with everything a report must say first.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ModelFit {
-    /// The least-squares fit adopted (with jitters when the mode decided so).
+    /// The least-squares fit adopted (with jitters when the mode decided so); its fields are
+    /// serialised at the top level, beside the ones below.
+    #[serde(flatten)]
     pub report: FitReport,
     /// The χ² test of the adopted solution.
     pub goodness: Goodness,
@@ -281,6 +283,49 @@ pub struct ModelFit {
     pub detections: Vec<Detection>,
     /// Lines a report must open with: excess scatter, marginal detections (empty when none).
     pub notes: Vec<String>,
+}
+
+/// What a report must say about the model beside its own results (the parts of [`ModelFit`]
+/// other than the fit report), e.g. for the posterior report of `priors`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ModelCheck {
+    /// The χ² test of the adopted least-squares solution.
+    pub goodness: Goodness,
+    /// What the jitter mode decided.
+    pub jitter: JitterDecision,
+    /// One per companion.
+    pub detections: Vec<Detection>,
+    /// Lines a report must open with.
+    pub notes: Vec<String>,
+}
+
+impl ModelFit {
+    /// Everything but the fit report.
+    pub fn check(&self) -> ModelCheck {
+        ModelCheck {
+            goodness: self.goodness,
+            jitter: self.jitter.clone(),
+            detections: self.detections.clone(),
+            notes: self.notes.clone(),
+        }
+    }
+}
+
+impl fmt::Display for ModelCheck {
+    /// The notes, then one line with the χ² test and one with the jitter decision.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        for note in &self.notes {
+            writeln!(f, "NOTE: {note}")?;
+        }
+        writeln!(
+            f,
+            "Least-squares chi2 = {:.2} for {} degrees of freedom, p = {}",
+            self.goodness.chi_squared,
+            self.goodness.dof,
+            fmt_p(self.goodness.p_value)
+        )?;
+        writeln!(f, "Jitter: {}", self.jitter.reason)
+    }
 }
 
 fn fmt_p(p: Option<f64>) -> String {
