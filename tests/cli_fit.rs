@@ -41,7 +41,7 @@ fn nearly_circular_demo_as_json_adopts_circular() {
     // (AJ 76, 544) cannot call it significant, so the circular refit is adopted.
     let path = format!("{DEMO}/velka17-nearly-circular.csv");
     let output = eccaudit()
-        .args(["fit", &path, "--json", "--jitter"])
+        .args(["fit", &path, "--json", "--jitter", "fit"])
         .output()
         .unwrap();
     assert!(output.status.success(), "{output:?}");
@@ -59,6 +59,11 @@ fn nearly_circular_demo_as_json_adopts_circular() {
     assert!(instruments.iter().all(|i| i["jitter"].as_f64().is_some()));
     assert!(report["n_reached_best"].as_u64().unwrap() >= 1);
     assert!(report["eccentric"]["covariance"].is_array());
+    // The model's checks sit beside the fit report.
+    assert_eq!(report["jitter"]["mode"], "fit");
+    assert_eq!(report["jitter"]["method"], "modified_likelihood");
+    assert!(report["goodness"]["p_value"].as_f64().is_some());
+    assert!(report["eccentric"]["chi_squared_p"].as_f64().is_some());
 }
 
 #[test]
@@ -77,9 +82,9 @@ fn too_few_points_is_one_clear_line() {
 }
 
 #[test]
-fn pure_noise_has_no_significant_period() {
+fn pure_noise_is_fitted_as_a_marginal_detection() {
     // Deterministic pseudo-noise (no periodic signal); the best peak's false-alarm probability
-    // is far above 1 %.
+    // is far above 1 %: the fit goes ahead and its first line says the detection is marginal.
     let mut text = String::from("bjd,rv [m/s],err [m/s]\n");
     for i in 0..30 {
         let t = 3.1 * i as f64 + 1.3 * (0.77 * (i * i) as f64).sin();
@@ -87,13 +92,20 @@ fn pure_noise_has_no_significant_period() {
         text.push_str(&format!("{t},{v},1.0\n"));
     }
     let file = temp_table(&text);
-    eccaudit()
+    let output = eccaudit()
         .args(["fit", file.path().to_str().unwrap()])
-        .assert()
-        .failure()
-        .stderr(predicate::str::contains(
-            "no significant period for companion 1",
-        ));
+        .output()
+        .unwrap();
+    assert!(output.status.success(), "{output:?}");
+    let stdout = String::from_utf8(output.stdout).unwrap();
+    assert!(
+        stdout.starts_with("NOTE: marginal detection: companion 1"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("above the limit 0.01 (--max-fap)"),
+        "{stdout}"
+    );
 }
 
 #[test]
@@ -121,12 +133,22 @@ fn bad_options_are_refused() {
         .args(["fit", &path, "--companions", "0"])
         .assert()
         .failure()
-        .stderr(predicate::str::contains("--companions must be at least 1"));
+        .stderr(predicate::str::contains("companions = 0: 1 to 3"));
+    eccaudit()
+        .args(["fit", &path, "--companions", "4"])
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("companions = 4: 1 to 3"));
+    eccaudit()
+        .args(["fit", &path, "--jitter", "sometimes"])
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("one of auto, fit, off"));
     eccaudit()
         .args(["fit", &path, "--min-period", "50", "--max-period", "10"])
         .assert()
         .failure()
         .stderr(predicate::str::contains(
-            "need 0 < --min-period < --max-period",
+            "max_period = 10: above min_period = 50",
         ));
 }

@@ -63,6 +63,7 @@ fn circular_orbits_give_the_rayleigh_law_of_lucy_and_sweeney() {
         jitter: 0.0,
         trials_per_cell: 1500,
         seed: 1971,
+        model: Default::default(),
     };
     let (summary, mut points) = run(&design);
     let n = points.len();
@@ -149,6 +150,7 @@ fn bias_is_positive_and_shrinks_with_signal_and_epochs() {
             jitter: 0.0,
             trials_per_cell: 250,
             seed: 553,
+            model: Default::default(),
         };
         let records = run_trials(&design, &estimators, 0..design.n_trials(), &mut |_| {}).unwrap();
         let summary = summarise(&design, &estimators, &records);

@@ -17,12 +17,19 @@ use eccaudit_core::table::{parse_table, ReadOptions};
 
 use super::inject::{posterior_settings, run_design, write_outputs, RunArgs};
 use super::input::TableArgs;
+use super::model_args::ModelArgs;
 
 /// Arguments of `eccaudit audit`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// Velocity table: CSV, TSV or whitespace-separated; columns time, velocity, uncertainty[, instrument].
     pub file: PathBuf,
+    #[command(flatten)]
+    pub model: ModelArgs,
+    /// Audit only this companion (1-based); default: every companion, each with its own
+    /// statement (outputs in DIR/c1, DIR/c2, ... when there are several).
+    #[arg(long, value_name = "N")]
+    pub companion: Option<usize>,
     #[command(flatten)]
     pub run: RunArgs,
     #[command(flatten)]
@@ -49,6 +56,7 @@ fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
             velocity_unit: args.table.velocity_unit,
             time: args.table.time,
         },
+        model: args.model.spec(args.companion),
         injection: InjectionSettings {
             eccentricities: if run.eccentricities.is_empty() {
                 InjectionSettings::default().eccentricities
@@ -56,7 +64,7 @@ fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
                 run.eccentricities.clone()
             },
             trials_per_cell: run.trials,
-            jitter: run.jitter,
+            jitter: run.added_noise,
             omegas_deg: run.omegas_deg.clone(),
             period_search: run.period_search,
             start_eccentricities: run.start_e.clone(),
@@ -106,45 +114,82 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         delimiter: args.table.delimiter,
     };
     let table = parse_table(&text, &options)?;
-    let plan =
-        AuditPlan::new(&table, &settings).with_context(|| format!("audit of `{source_name}`"))?;
-
-    let estimators = plan.estimators();
-    let (records, complete) = run_design(plan.design(), &estimators, &args.run)?;
-    let report = plan.finish(&records)?;
-    let lsq_observed = report
-        .statement
-        .calibrations
-        .first()
-        .map(|c| c.observed.point);
-    write_outputs(&report.injection, &args.run.out, lsq_observed)?;
-    let text = report.statement.text();
-    let out = &args.run.out;
-    fs::write(out.join("statement.txt"), &text)
-        .with_context(|| format!("cannot write into `{}`", out.display()))?;
-    fs::write(
-        out.join("statement.json"),
-        serde_json::to_string_pretty(&report.statement)?,
-    )
-    .with_context(|| format!("cannot write into `{}`", out.display()))?;
-    fs::write(out.join("settings.json"), settings.to_json())
-        .with_context(|| format!("cannot write into `{}`", out.display()))?;
-    if args.json {
-        println!("{}", serde_json::to_string_pretty(&report)?);
-    } else {
+    let plans =
+        AuditPlan::all(&table, &settings).with_context(|| format!("audit of `{source_name}`"))?;
+    let several = plans.len() > 1;
+    if let Some(first) = plans.first() {
+        for note in &first.model_fit().notes {
+            eprintln!("eccaudit: {note}");
+        }
+    }
+    if !args.json {
         println!(
             "{} ({})",
             args.file.display(),
             table.time_convention().label()
         );
-        print!("{text}");
-        println!("Outputs in {}", out.display());
+        if let Some(first) = plans.first() {
+            print!("{}", first.model_fit().check());
+        }
     }
-    if !complete {
-        eprintln!(
-            "eccaudit: note: {} of {} trials done; the statement uses those only; run again with --resume to finish",
-            report.trials_done, report.trials_total
-        );
+    let mut reports = Vec::new();
+    for plan in &plans {
+        let mut run = args.run.clone();
+        if several {
+            run.out = args.run.out.join(format!("c{}", plan.companion()));
+        }
+        let estimators = plan.estimators();
+        let (records, complete) = run_design(plan.design(), &estimators, &run)?;
+        let report = plan.finish(&records)?;
+        let lsq_observed = report
+            .statement
+            .calibrations
+            .first()
+            .map(|c| c.observed.point);
+        write_outputs(&report.injection, &run.out, lsq_observed)?;
+        let text = report.statement.text();
+        let out = &run.out;
+        fs::write(out.join("statement.txt"), &text)
+            .with_context(|| format!("cannot write into `{}`", out.display()))?;
+        fs::write(
+            out.join("statement.json"),
+            serde_json::to_string_pretty(&report.statement)?,
+        )
+        .with_context(|| format!("cannot write into `{}`", out.display()))?;
+        fs::write(
+            out.join("context.json"),
+            serde_json::to_string_pretty(&report.context)?,
+        )
+        .with_context(|| format!("cannot write into `{}`", out.display()))?;
+        fs::write(out.join("settings.json"), settings.to_json())
+            .with_context(|| format!("cannot write into `{}`", out.display()))?;
+        if !args.json {
+            if several {
+                println!();
+                println!(
+                    "Companion {} of {} (P = {:.4} d)",
+                    report.context.companion,
+                    report.context.n_companions,
+                    plan.design().period
+                );
+            }
+            print!("{text}");
+            println!("Outputs in {}", out.display());
+        }
+        if !complete {
+            eprintln!(
+                "eccaudit: note: companion {}: {} of {} trials done; the statement uses those only; run again with --resume to finish",
+                report.context.companion, report.trials_done, report.trials_total
+            );
+        }
+        reports.push(report);
+    }
+    if args.json {
+        if several {
+            println!("{}", serde_json::to_string_pretty(&reports)?);
+        } else if let Some(report) = reports.first() {
+            println!("{}", serde_json::to_string_pretty(report)?);
+        }
     }
     Ok(())
 }

@@ -8,14 +8,16 @@ use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Mutex;
 
 use super::input::{read_table, TableArgs};
+use super::model_args::ModelArgs;
 use anyhow::{bail, Context};
-use eccaudit_core::audit::PosteriorInjectionSettings;
-use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
+use eccaudit_core::audit::{trial_model, PosteriorInjectionSettings};
+use eccaudit_core::fit::{FitData, FitOptions};
 use eccaudit_core::inject::{
     default_eccentricity_grid, run_trial, settings_fingerprint, summarise, trial_file, Estimator,
     InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings, Sampling,
-    Schedule, Spacing, TrialPeriod, TrialRecord,
+    Schedule, Spacing, TrialModel, TrialPeriod, TrialRecord,
 };
+use eccaudit_core::spec::{fit_model, ModelFit, ModelSpec};
 use eccaudit_core::table::VelocityTable;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{bias_figure, distribution_figure, draw_bias_curve, draw_distributions};
@@ -31,9 +33,10 @@ pub struct RunArgs {
     /// Injected arguments of periastron [deg], comma-separated (default: random per trial).
     #[arg(long = "omega", value_delimiter = ',', value_name = "DEG,...")]
     pub omegas_deg: Vec<f64>,
-    /// Extra Gaussian noise [m/s] added in quadrature to each uncertainty (treated as known).
-    #[arg(long, default_value_t = 0.0)]
-    pub jitter: f64,
+    /// Extra Gaussian noise [m/s] added in quadrature to each uncertainty and told to the
+    /// estimators as known (instrument jitters are the model's: see --jitter).
+    #[arg(long, value_name = "M/S", default_value_t = 0.0)]
+    pub added_noise: f64,
     /// Trials per grid cell.
     #[arg(long, default_value_t = 200)]
     pub trials: usize,
@@ -107,9 +110,9 @@ pub struct Args {
     /// Schedule: stated uncertainty of every epoch [m/s].
     #[arg(long)]
     pub uncertainty: Option<f64>,
-    /// Injected period [d] (default: fitted to the table).
-    #[arg(long)]
-    pub period: Option<f64>,
+    /// The model fitted to a table (with a schedule: the first --period is the injected one).
+    #[command(flatten)]
+    pub model: ModelArgs,
     /// Injected semi-amplitudes [m/s], comma-separated (default: fitted to the table).
     #[arg(
         long = "k",
@@ -130,12 +133,23 @@ pub struct Args {
     pub json: bool,
 }
 
-/// The default least-squares fit of a table (period search from 1 d to the baseline).
-pub fn fit_table(table: &VelocityTable) -> anyhow::Result<(FitData, FitReport)> {
+/// The fit of `model` to a table, and the rest of the model of its simulations of companion 1
+/// (background of the other companions, trend and offsets; fitted jitters; the refit's model).
+pub fn fit_table(
+    table: &VelocityTable,
+    model: &ModelSpec,
+    seed: u64,
+) -> anyhow::Result<(ModelFit, TrialModel)> {
+    let model = model.validate()?;
     let data = FitData::from_table(table);
-    let report = fit_orbit(&data, &FitOptions::default())
+    let base = FitOptions {
+        seed,
+        ..FitOptions::default()
+    };
+    let fit = fit_model(&data, &model, &base)
         .with_context(|| format!("fit of `{}`", table.source_name()))?;
-    Ok((data, report))
+    let trial = trial_model(&data, &fit, 0);
+    Ok((fit, trial))
 }
 
 /// The least-squares estimator of the run arguments.
@@ -188,9 +202,10 @@ pub fn design(
         },
         semi_amplitudes,
         omegas: run.omegas_deg.iter().map(|d| d.to_radians()).collect(),
-        jitter: run.jitter,
+        jitter: run.added_noise,
         trials_per_cell: run.trials,
         seed: run.seed,
+        model: TrialModel::default(),
     };
     design.validate()?;
     Ok(design)
@@ -333,16 +348,15 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         (Some(path), None) => {
             let table = read_table(path, &args.table)?;
             let sampling = Sampling::from_table(&table);
-            let fitted = if args.period.is_none()
-                || (args.semi_amplitudes.is_empty() && args.k_over_sigma.is_empty())
-            {
-                let (_, report) = fit_table(&table)?;
-                let c = &report.eccentric.companions[0];
-                Some((c.period.value, c.semi_amplitude.value))
-            } else {
-                None
-            };
-            (sampling, fitted)
+            let (fit, trial) = fit_table(&table, &args.model.spec(Some(1)), args.run.seed)?;
+            for note in &fit.notes {
+                eprintln!("eccaudit: {note}");
+            }
+            let c = &fit.report.eccentric.companions[0];
+            (
+                sampling,
+                Some((c.period.value, c.semi_amplitude.value, trial)),
+            )
         }
         (None, Some(n_epochs)) => {
             let (Some(baseline), Some(uncertainty)) = (args.baseline, args.uncertainty) else {
@@ -366,25 +380,28 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             bail!("give a table FILE or a schedule (--epochs, --baseline, --uncertainty)")
         }
     };
-    let period = match (args.period, fitted) {
-        (Some(p), _) => p,
-        (None, Some((p, _))) => p,
+    let period = match (&fitted, args.model.periods.first()) {
+        (Some((p, _, _)), _) => *p,
+        (None, Some(&p)) => p,
         (None, None) => bail!("a schedule needs --period"),
     };
     let mut design = design(sampling, period, vec![1.0], &args.run)?;
+    if let Some((_, _, trial)) = &fitted {
+        design.model = trial.clone();
+    }
     design.semi_amplitudes = if !args.semi_amplitudes.is_empty() {
         args.semi_amplitudes.clone()
     } else if !args.k_over_sigma.is_empty() {
         let unit = design.signal_to_noise(1.0);
         args.k_over_sigma.iter().map(|r| r / unit).collect()
-    } else if let Some((_, k)) = fitted {
+    } else if let Some((_, k, _)) = fitted {
         vec![k]
     } else {
         bail!("a schedule needs --k or --k-over-sigma");
     };
     design.validate()?;
     let lsq = estimator(&args.run);
-    let posteriors = posterior_settings(&args.run).estimators(args.run.seed)?;
+    let posteriors = posterior_settings(&args.run).estimators_for(args.run.seed, &design)?;
     let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
         .chain(posteriors.iter().map(|p| p as &dyn Estimator))
         .collect();

@@ -8,6 +8,7 @@ pub mod fit;
 pub mod fit_plots;
 pub mod inject;
 pub mod input;
+pub mod model_args;
 pub mod priors;
 pub mod table;
 

@@ -5,11 +5,13 @@ use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
 
 use super::input::{read_table, TableArgs};
+use super::model_args::ModelArgs;
 use anyhow::Context;
 use eccaudit_core::fit::FitData;
 use eccaudit_core::posterior::{
     prior_sensitivity, SensitivityReport, SensitivityRequest, SensitivitySettings,
 };
+use eccaudit_core::spec::fit_model;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
     corner_figure, corner_figure_size, draw_corner, draw_eccentricity_posteriors, draw_traces,
@@ -41,9 +43,8 @@ pub struct Args {
     /// Write posterior-e.svg, and corner-N.svg and traces-N.svg per prior, into this directory.
     #[arg(long, value_name = "DIR")]
     pub plots: Option<PathBuf>,
-    /// Starting period [d] for the least-squares start (skips the period search).
-    #[arg(long)]
-    pub period: Option<f64>,
+    #[command(flatten)]
+    pub model: ModelArgs,
     /// Period prior, log-uniform on [MIN, MAX] days.
     #[arg(long, num_args = 2, value_names = ["MIN", "MAX"], default_values_t = [1.0, 1.0e4])]
     pub period_range: Vec<f64>,
@@ -53,12 +54,6 @@ pub struct Args {
     /// Largest jitter [m/s] of its modified Jeffreys prior (knee 1 m/s).
     #[arg(long, default_value_t = 1.0e3)]
     pub jitter_max: f64,
-    /// Do not sample a jitter.
-    #[arg(long)]
-    pub no_jitter: bool,
-    /// Sample a linear trend (uniform on ±10 m/s/d).
-    #[arg(long)]
-    pub trend: bool,
     #[command(flatten)]
     pub table: TableArgs,
     /// Print the report as JSON instead of a text table.
@@ -74,12 +69,10 @@ fn settings(args: &Args) -> anyhow::Result<SensitivitySettings> {
         steps: args.steps,
         burn: args.burn,
         seed: args.seed,
-        period: args.period,
+        model: args.model.spec(None),
         period_range: [args.period_range[0], args.period_range[1]],
         k_max: args.k_max,
         jitter_max: args.jitter_max,
-        jitter: !args.no_jitter,
-        trend: args.trend,
     };
     Ok(request.to_settings()?)
 }
@@ -90,13 +83,37 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let source_name = args.file.display().to_string();
     let table = read_table(&args.file, &args.table)?;
     let data = FitData::from_table(&table);
+    // The model's checks (chi2 test, jitter decision, false-alarm probabilities), from the
+    // least-squares fit of the same model.
+    let model = args.model.spec(None).validate()?;
+    let check = fit_model(&data, &model, &settings.fit)
+        .with_context(|| format!("fit of `{source_name}`"))?
+        .check();
     let report = prior_sensitivity(&data, &settings, &mut |_| ControlFlow::Continue(()))
         .with_context(|| format!("posterior of `{source_name}`"))?;
     if args.json {
-        println!("{}", serde_json::to_string_pretty(&report)?);
+        for note in &check.notes {
+            eprintln!("eccaudit: {note}");
+        }
+        let mut value = serde_json::to_value(&report)?;
+        if let Some(object) = value.as_object_mut() {
+            object.insert("model_check".into(), serde_json::to_value(&check)?);
+        }
+        println!("{}", serde_json::to_string_pretty(&value)?);
     } else {
+        for note in &check.notes {
+            println!("NOTE: {note}");
+        }
         println!("{source_name} ({})", table.time_convention().label());
         print!("{report}");
+        let mut lines = check.to_string();
+        // The notes are printed first already.
+        lines = lines
+            .lines()
+            .filter(|l| !l.starts_with("NOTE: "))
+            .map(|l| format!("{l}\n"))
+            .collect();
+        print!("{lines}");
     }
     if let Some(dir) = &args.plots {
         write_plots(dir, &report).with_context(|| format!("plots in `{}`", dir.display()))?;

@@ -17,22 +17,25 @@ use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 use thiserror::Error;
 
-use crate::fit::{fit_orbit, FitData, FitError, FitOptions, FitReport};
-use crate::inject::{
-    default_eccentricity_grid, eccentricity_statement, run_trials, summarise, EccentricityEstimate,
-    EccentricityStatement, Estimator, FittedOrbit, InjectError, InjectionDesign, InjectionSummary,
-    LeastSquaresEstimator, LeastSquaresSettings, PosteriorEstimator, Sampling, TrialPeriod,
-    TrialRecord,
+use crate::fit::{
+    EccentricityCoordinates, FitData, FitError, FitOptions, FitReport, ParameterLayout, RvProblem,
 };
-use crate::periodogram::FrequencyLimits;
+use crate::inject::{
+    default_eccentricity_grid, eccentricity_statement, run_trials, summarise, AuditContext,
+    EccentricityEstimate, EccentricityStatement, Estimator, FittedOrbit, InjectError,
+    InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings,
+    PosteriorEstimator, Sampling, TrialModel, TrialPeriod, TrialRecord,
+};
 use crate::posterior::{fast_sampler_settings, parse_prior_spec};
 use crate::sampler::SamplerSettings;
+use crate::spec::{fit_model, JitterMode, ModelFit, ModelSpec, ModelSpecError};
 use crate::table::{TimeSpec, VelocityTable, VelocityUnit};
 
 /// The `format` field of a settings file.
 pub const SETTINGS_FORMAT: &str = "eccaudit-audit-settings";
-/// The settings version this build reads and writes.
-pub const SETTINGS_VERSION: u32 = 1;
+/// The settings version this build writes. Version 2 replaced the `fit` section by `model`
+/// ([`ModelSpec`]); version-1 files are still read ([`AuditSettings::from_json`]).
+pub const SETTINGS_VERSION: u32 = 2;
 /// Random stream of the estimators run on the real data (trials use 0, 1, …).
 const REAL_DATA_STREAM: u64 = u64::MAX - 1;
 
@@ -56,7 +59,7 @@ pub struct ReadSettings {
     pub time: Option<TimeSpec>,
 }
 
-/// The least-squares fit of the real data.
+/// The `fit` section of a version-1 settings file, read only to turn it into a [`ModelSpec`].
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct FitSettings {
@@ -68,6 +71,23 @@ pub struct FitSettings {
     pub trend: bool,
     /// Fit a jitter per instrument (maximum likelihood).
     pub jitter: bool,
+}
+
+impl FitSettings {
+    /// The model a version-1 file meant: one companion, jitter fitted or off as it said.
+    pub fn to_model(&self) -> ModelSpec {
+        ModelSpec {
+            min_period: self.min_period,
+            max_period: self.max_period,
+            trend: self.trend,
+            jitter: if self.jitter {
+                JitterMode::Fit
+            } else {
+                JitterMode::Off
+            },
+            ..ModelSpec::DEFAULT
+        }
+    }
 }
 
 impl Default for FitSettings {
@@ -89,7 +109,9 @@ pub struct InjectionSettings {
     pub eccentricities: Vec<f64>,
     /// Simulations per true eccentricity.
     pub trials_per_cell: usize,
-    /// Extra Gaussian scatter added to every simulated velocity [m/s].
+    /// Extra Gaussian scatter added to every simulated velocity [m/s], in quadrature, and told
+    /// to the estimators as known (on top of any fitted instrument jitter, which the model
+    /// decides).
     pub jitter: f64,
     /// Fixed arguments of periastron [degrees]; empty = random ω per trial.
     pub omegas_deg: Vec<f64>,
@@ -181,6 +203,24 @@ impl PosteriorInjectionSettings {
     }
 }
 
+impl PosteriorInjectionSettings {
+    /// The estimators for simulations of `design`: each samples the model the design's
+    /// refits use (companions, trend, jitter sampled when the model fits jitters).
+    pub fn estimators_for(
+        &self,
+        seed: u64,
+        design: &InjectionDesign,
+    ) -> Result<Vec<PosteriorEstimator>, AuditError> {
+        let mut posteriors = self.estimators(seed)?;
+        for p in &mut posteriors {
+            p.posterior.n_companions = design.model.n_companions();
+            p.posterior.trend = design.model.trend;
+            p.posterior.jitter = design.model.fit_jitter;
+        }
+        Ok(posteriors)
+    }
+}
+
 impl Default for InjectionSettings {
     fn default() -> Self {
         let lsq = LeastSquaresSettings::default();
@@ -210,8 +250,11 @@ pub struct AuditSettings {
     pub data: Option<DataIdentity>,
     /// How the table is read.
     pub read: ReadSettings,
-    /// The least-squares fit of the real data.
-    pub fit: FitSettings,
+    /// The model fitted to the real data and to every simulation.
+    pub model: ModelSpec,
+    /// Version 1 only: the fit settings (turned into `model` when read).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fit: Option<FitSettings>,
     /// The injection–recovery grid.
     pub injection: InjectionSettings,
     /// Master seed of every simulation.
@@ -225,7 +268,8 @@ impl Default for AuditSettings {
             version: SETTINGS_VERSION,
             data: None,
             read: ReadSettings::default(),
-            fit: FitSettings::default(),
+            model: ModelSpec::DEFAULT,
+            fit: None,
             injection: InjectionSettings::default(),
             seed: 1,
         }
@@ -251,12 +295,35 @@ pub enum AuditError {
         /// Hash of the table given.
         found: String,
     },
+    /// The model specification is unusable.
+    #[error("model: {0}")]
+    Model(ModelSpecError),
     /// The least-squares fit of the real data failed.
     #[error("least-squares fit: {0}")]
     Fit(FitError),
     /// The simulations cannot run.
-    #[error(transparent)]
-    Inject(#[from] InjectError),
+    #[error("{0}")]
+    Inject(InjectError),
+}
+
+// Conversions without `#[source]`: the message already holds the cause, so an error chain
+// printed in full does not repeat it.
+impl From<ModelSpecError> for AuditError {
+    fn from(error: ModelSpecError) -> Self {
+        AuditError::Model(error)
+    }
+}
+
+impl From<FitError> for AuditError {
+    fn from(error: FitError) -> Self {
+        AuditError::Fit(error)
+    }
+}
+
+impl From<InjectError> for AuditError {
+    fn from(error: InjectError) -> Self {
+        AuditError::Inject(error)
+    }
 }
 
 // The message above already prints the inner error, so it is not also reported as `source()`
@@ -279,7 +346,7 @@ impl AuditSettings {
     /// Parse a settings file (JSON). Unknown fields, a wrong `format` or a
     /// newer `version` are errors, so a typo never silently changes a result.
     pub fn from_json(text: &str) -> Result<Self, AuditError> {
-        let settings: AuditSettings =
+        let mut settings: AuditSettings =
             serde_json::from_str(text).map_err(|e| AuditError::Settings(e.to_string()))?;
         if settings.format != SETTINGS_FORMAT {
             return Err(AuditError::Settings(format!(
@@ -293,6 +360,17 @@ impl AuditSettings {
                 settings.version
             )));
         }
+        match (settings.version, settings.fit.take()) {
+            (1, Some(fit)) => settings.model = fit.to_model(),
+            (1, None) => settings.model = FitSettings::default().to_model(),
+            (_, Some(_)) => return Err(AuditError::Settings(
+                "\"fit\" belongs to version-1 files; version 2 describes the model in \"model\""
+                    .into(),
+            )),
+            _ => {}
+        }
+        settings.version = SETTINGS_VERSION;
+        settings.model.validate()?;
         Ok(settings)
     }
 
@@ -319,20 +397,9 @@ impl AuditSettings {
     }
 
     fn fit_options(&self) -> FitOptions {
-        let defaults = FitOptions::default();
-        let limits = match self.fit.max_period {
-            Some(max_period) => FrequencyLimits::PeriodRange {
-                min_period: self.fit.min_period,
-                max_period,
-            },
-            None => FrequencyLimits::MaxFrequency(1.0 / self.fit.min_period),
-        };
         FitOptions {
-            limits,
-            trend: self.fit.trend,
-            jitter: self.fit.jitter,
             seed: self.seed,
-            ..defaults
+            ..FitOptions::default()
         }
     }
 
@@ -354,11 +421,14 @@ impl AuditSettings {
     }
 }
 
-/// The result of an audit.
+/// The result of an audit of one companion.
 #[derive(Debug, Clone, Serialize)]
 pub struct AuditReport {
     /// The least-squares fit of the real data.
     pub fit: FitReport,
+    /// The model behind the audit: companion audited, trend, jitters, χ² test, false-alarm
+    /// probability, what the simulations hold fixed.
+    pub context: AuditContext,
     /// Bias, scatter and coverage per grid cell and estimator.
     pub injection: InjectionSummary,
     /// The calibrated statement about the real data.
@@ -369,10 +439,11 @@ pub struct AuditReport {
     pub trials_total: u64,
 }
 
-/// A prepared audit: the fit is done, the simulation design is fixed.
+/// A prepared audit of one companion: the fit is done, the simulation design is fixed.
 #[derive(Debug)]
 pub struct AuditPlan {
-    fit: FitReport,
+    model_fit: ModelFit,
+    context: AuditContext,
     design: InjectionDesign,
     least_squares: LeastSquaresEstimator,
     posteriors: Vec<PosteriorEstimator>,
@@ -380,15 +451,102 @@ pub struct AuditPlan {
     fitted: FittedOrbit,
 }
 
+/// The fit of the real data under the settings' model.
+fn fit_table(table: &VelocityTable, settings: &AuditSettings) -> Result<ModelFit, AuditError> {
+    let model = settings.model.validate()?;
+    let data = FitData::from_table(table);
+    Ok(fit_model(&data, &model, &settings.fit_options())?)
+}
+
+/// Velocity of every part of the fitted `solution` but companion `audited` at the data's
+/// epochs: the other companions, the offsets and the trend, by the fit's own model.
+fn background_velocities(
+    data: &FitData,
+    solution: &crate::fit::Solution,
+    trend: bool,
+    audited: usize,
+) -> Vec<f64> {
+    let mut layout = ParameterLayout::new(solution.companions.len(), data.n_instruments(), trend);
+    for (flag, c) in layout.circular.iter_mut().zip(&solution.companions) {
+        *flag = c.held_circular;
+    }
+    let mut params = solution.parameters[..layout.n_params()].to_vec();
+    params[layout.companion_start(audited) + 1] = 0.0;
+    let problem = RvProblem::new(data, layout, EccentricityCoordinates::E);
+    let mut model = vec![0.0; data.n_points()];
+    problem.model_velocities(&params, &mut model);
+    model
+}
+
+/// The rest of the model in each simulation of companion `audited` (0-based) of `fit`: the
+/// background velocity (other companions, trend, offsets of the eccentric solution), the
+/// fitted instrument jitters (when the jitter mode fitted them), and the refit's model with the
+/// audited companion's period first.
+pub fn trial_model(data: &FitData, fit: &ModelFit, audited: usize) -> TrialModel {
+    let solution = &fit.report.eccentric;
+    let trend = solution.trend.is_some();
+    let mut periods = vec![solution.companions[audited].period.value];
+    periods.extend(
+        solution
+            .companions
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| *i != audited)
+            .map(|(_, c)| c.period.value),
+    );
+    TrialModel {
+        background: background_velocities(data, solution, trend, audited),
+        instrument_jitters: if fit.jitter.fitted {
+            solution
+                .instruments
+                .iter()
+                .map(|i| i.jitter.unwrap_or(0.0))
+                .collect()
+        } else {
+            Vec::new()
+        },
+        periods,
+        trend,
+        fit_jitter: fit.jitter.fitted,
+    }
+}
+
 impl AuditPlan {
-    /// Fit `table` and fix the simulation design at the fitted orbit.
+    /// Fit `table` and fix the simulation design of the first audited companion (the one of
+    /// `settings.model.audit_companion`, else companion 1). [`AuditPlan::all`] gives every
+    /// audited companion from one fit.
     pub fn new(table: &VelocityTable, settings: &AuditSettings) -> Result<Self, AuditError> {
+        let model = settings.model.validate()?;
+        let model_fit = fit_table(table, settings)?;
+        Self::build(table, settings, model_fit, model.audited()[0])
+    }
+
+    /// One plan per audited companion (every companion unless the settings choose one), all
+    /// from one fit of the real data.
+    pub fn all(table: &VelocityTable, settings: &AuditSettings) -> Result<Vec<Self>, AuditError> {
+        let model = settings.model.validate()?;
+        let model_fit = fit_table(table, settings)?;
+        model
+            .audited()
+            .into_iter()
+            .map(|c| Self::build(table, settings, model_fit.clone(), c))
+            .collect()
+    }
+
+    /// The plan of companion `audited` (0-based) from a fit already made.
+    fn build(
+        table: &VelocityTable,
+        settings: &AuditSettings,
+        model_fit: ModelFit,
+        audited: usize,
+    ) -> Result<Self, AuditError> {
         let data = FitData::from_table(table);
-        let fit = fit_orbit(&data, &settings.fit_options())?;
-        let companion = &fit.eccentric.companions[0];
+        let inj = &settings.injection;
+        let solution = &model_fit.report.eccentric;
+        let companion = &solution.companions[audited];
         let period = companion.period.value;
         let semi_amplitude = companion.semi_amplitude.value;
-        let inj = &settings.injection;
+        let model = trial_model(&data, &model_fit, audited);
         let design = InjectionDesign {
             sampling: Sampling::from_table(table),
             period,
@@ -398,10 +556,15 @@ impl AuditPlan {
             jitter: inj.jitter,
             trials_per_cell: inj.trials_per_cell,
             seed: settings.seed,
+            model,
         };
         design.validate()?;
         let least_squares = settings.least_squares();
-        let posteriors = settings.injection.posterior.estimators(settings.seed)?;
+        // The posterior inside each trial samples the same model as the refits.
+        let posteriors = settings
+            .injection
+            .posterior
+            .estimators_for(settings.seed, &design)?;
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
         let mut observed: Vec<Option<EccentricityEstimate>> = Vec::new();
@@ -421,8 +584,10 @@ impl AuditPlan {
             omega: companion.omega_deg.value.to_radians(),
             lucy_sweeney_p,
         };
+        let context = AuditContext::new(&model_fit, audited, inj.period_search);
         Ok(AuditPlan {
-            fit,
+            model_fit,
+            context,
             design,
             least_squares,
             posteriors,
@@ -431,9 +596,25 @@ impl AuditPlan {
         })
     }
 
+    /// The model behind this audit, for the statement.
+    pub fn context(&self) -> &AuditContext {
+        &self.context
+    }
+
+    /// The fit of the model to the real data (with the χ² test, jitter decision, detections
+    /// and the notes the output must open with).
+    pub fn model_fit(&self) -> &ModelFit {
+        &self.model_fit
+    }
+
+    /// The audited companion, 1-based.
+    pub fn companion(&self) -> usize {
+        self.context.companion
+    }
+
     /// The least-squares fit of the real data.
     pub fn fit(&self) -> &FitReport {
-        &self.fit
+        &self.model_fit.report
     }
 
     /// The simulation design.
@@ -478,7 +659,8 @@ impl AuditPlan {
         indices.sort_unstable();
         indices.dedup();
         Ok(AuditReport {
-            fit: self.fit.clone(),
+            fit: self.model_fit.report.clone(),
+            context: self.context.clone(),
             injection,
             statement,
             trials_done: indices.len() as u64,

@@ -20,4 +20,5 @@ pub mod posterior;
 pub mod priors;
 pub mod random;
 pub mod sampler;
+pub mod spec;
 pub mod table;

@@ -1,4 +1,53 @@
-//! Maximum-likelihood jitter of one instrument for fixed model residuals.
+//! Jitter of one instrument for fixed model residuals: plain maximum likelihood, and the
+//! modified likelihood of Baluev (2009), which is much less biased low.
+
+use serde::{Deserialize, Serialize};
+
+/// How a jitter is estimated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum JitterMethod {
+    /// Plain maximum likelihood ([`ml_jitter`]): biased low by the fitted parameters.
+    MaximumLikelihood,
+    /// The modified likelihood of Baluev (2009, MNRAS 393, 969; volume from memory): the
+    /// likelihood of the residuals scaled by √(N/(N − d)), d the number of fitted model
+    /// parameters, N the number of epochs ([`modified_likelihood_jitter`]).
+    #[default]
+    ModifiedLikelihood,
+}
+
+impl JitterMethod {
+    /// The method in words, with its source.
+    pub fn label(self) -> &'static str {
+        match self {
+            JitterMethod::MaximumLikelihood => "maximum likelihood",
+            JitterMethod::ModifiedLikelihood => {
+                "modified likelihood of Baluev (2009), residuals scaled by sqrt(N/(N-d))"
+            }
+        }
+    }
+}
+
+/// The jitter of one instrument by the modified maximum-likelihood method of Baluev (2009,
+/// MNRAS 393, 969 — "Accounting for velocity jitter in planet search surveys"; the form below
+/// from memory): the likelihood is maximised with every residual multiplied by √(N/(N − d)),
+/// where N is the number of epochs of the whole fit and d the number of fitted model
+/// parameters (orbits, offsets, trend; not the jitters). This removes, to first order, the
+/// downward bias of the plain maximum-likelihood jitter, which sees residuals shrunk by the
+/// fit. With N ≤ d the factor is undefined and plain maximum likelihood is returned.
+pub fn modified_likelihood_jitter(
+    residuals: &[f64],
+    sigmas: &[f64],
+    n_points: usize,
+    n_model_params: usize,
+) -> f64 {
+    if n_points <= n_model_params {
+        return ml_jitter(residuals, sigmas);
+    }
+    let scale = libm::sqrt(n_points as f64 / (n_points - n_model_params) as f64);
+    let scaled: Vec<f64> = residuals.iter().map(|r| r * scale).collect();
+    ml_jitter(&scaled, sigmas)
+}
 
 /// The jitter s ≥ 0 [m/s] that maximises the Gaussian likelihood of `residuals` (data − model,
 /// m/s) with uncertainties `sigmas` (m/s) inflated to √(σ² + s²), i.e. minimises

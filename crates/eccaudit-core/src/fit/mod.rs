@@ -1,5 +1,5 @@
 //! Global least-squares Keplerian orbit fit: period search, multi-start Levenberg–Marquardt,
-//! optional maximum-likelihood jitter, covariance, and the Lucy & Sweeney eccentricity test.
+//! optional jitter (Baluev 2009 modified likelihood), χ² goodness of fit, covariance, and the Lucy & Sweeney eccentricity test.
 //!
 //! Split, as in [`crate::lsq`]: [`problem`] is the RV residual problem with its analytic
 //! Jacobian; [`multistart`] is the driver (period search → starts → LM → best → polish →
@@ -7,6 +7,7 @@
 //! [`lucy_sweeney`] and [`jitter`] are the two statistical pieces.
 
 pub mod figures;
+pub mod goodness;
 pub mod jitter;
 pub mod lucy_sweeney;
 pub mod multistart;
@@ -19,6 +20,8 @@ use thiserror::Error;
 use crate::lsq::{LsqError, LsqOptions};
 use crate::periodogram::{FrequencyLimits, PeriodogramError};
 
+pub use goodness::{chi_squared_p_value, Goodness, EXCESS_SCATTER_P};
+pub use jitter::JitterMethod;
 pub use lucy_sweeney::{eccentricity_error, lucy_sweeney, LucySweeney, LUCY_SWEENEY_THRESHOLD};
 pub use multistart::{fit_from_start, fit_orbit, StartPoint};
 pub use problem::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
@@ -71,8 +74,10 @@ pub struct FitOptions {
     /// The period search must find a peak with false-alarm probability at most this, else
     /// [`FitError::NoSignificantPeriod`]. Ignored for periods given in `initial_periods`.
     pub max_false_alarm_probability: f64,
-    /// Fit one jitter per instrument by maximum likelihood.
+    /// Fit one jitter per instrument.
     pub jitter: bool,
+    /// How the jitters are estimated (when `jitter`).
+    pub jitter_method: JitterMethod,
     /// Lucy–Sweeney threshold; eccentricities with p above it are refitted circular.
     pub lucy_sweeney_threshold: f64,
     /// Stellar mass [M_sun]; when given, m sin i and the relative semi-major axis are reported.
@@ -101,6 +106,7 @@ impl Default for FitOptions {
             n_phase_scan: 12,
             max_false_alarm_probability: 0.01,
             jitter: false,
+            jitter_method: JitterMethod::ModifiedLikelihood,
             lucy_sweeney_threshold: LUCY_SWEENEY_THRESHOLD,
             stellar_mass: None,
             start_lsq: LsqOptions {
@@ -173,7 +179,8 @@ pub enum FitError {
     #[error(
         "no significant period for companion {companion}: the highest periodogram peak \
          (P = {period:.6} d, power {power:.3}) has false-alarm probability {false_alarm_probability:.3}, \
-         above the limit {threshold}; give a starting period or relax the limit"
+         above the limit {threshold}; give a starting period (--period) or raise the limit \
+         (--max-fap)"
     )]
     NoSignificantPeriod {
         /// 1-based companion number.

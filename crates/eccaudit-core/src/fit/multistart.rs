@@ -3,7 +3,7 @@
 
 use nalgebra::{DMatrix as Matrix, DVector};
 
-use super::jitter::ml_jitter;
+use super::jitter::{ml_jitter, modified_likelihood_jitter, JitterMethod};
 use super::problem::{
     convert_coordinates, decode_companion, encode_companion, keplerian_shape,
     EccentricityCoordinates, ElementsAtEpoch, FitData, ParameterLayout, RvProblem,
@@ -377,8 +377,9 @@ struct StageBest {
 ///    [`LmSolver`] reused throughout; the least χ² wins. e < 1 is kept by the model answering NaN
 ///    for e ≥ [`super::MAX_ECCENTRICITY`] (the solver rejects such steps).
 /// 4. **Polish** of the winner in (e cos ω, e sin ω) coordinates, regular at e = 0.
-/// 5. **Jitter** (optional): alternate LM at fixed jitter with a per-instrument maximum-likelihood
-///    update ([`ml_jitter`]) until the jitters change by less than 10⁻⁶ of the median
+/// 5. **Jitter** (optional): alternate LM at fixed jitter with a per-instrument update by
+///    `options.jitter_method` (Baluev 2009 modified likelihood,
+///    [`modified_likelihood_jitter`], by default; plain [`ml_jitter`] on request) until the jitters change by less than 10⁻⁶ of the median
 ///    uncertainty (at most [`MAX_JITTER_ITERATIONS`]); a coordinate ascent of the likelihood.
 /// 6. **Report**: covariance `(JᵀJ)⁻¹` of the analytic Jacobian in (e cos ω, e sin ω)
 ///    coordinates, σ_e by the delta method, and the Lucy & Sweeney (1971, AJ 76, 544) test; if
@@ -499,6 +500,7 @@ pub fn fit_orbit(data: &FitData, options: &FitOptions) -> Result<FitReport, FitE
                 jitter: fit.jitter.as_deref(),
                 jitter_iterations: fit.jitter.as_ref().map(|_| fit.jitter_iterations),
                 jitter_converged: fit.jitter_converged,
+                jitter_method: options.jitter_method,
                 termination: fit.termination,
                 stellar_mass: options.stellar_mass,
                 lucy_sweeney_threshold: options.lucy_sweeney_threshold,
@@ -756,7 +758,12 @@ fn refine_with_jitter(
                 .filter(|&i| data.instruments()[i] == j)
                 .map(|i| (data.velocities()[i] - model[i], data.uncertainties()[i]))
                 .unzip();
-            let updated = ml_jitter(&res, &sig);
+            let updated = match options.jitter_method {
+                JitterMethod::MaximumLikelihood => ml_jitter(&res, &sig),
+                JitterMethod::ModifiedLikelihood => {
+                    modified_likelihood_jitter(&res, &sig, data.n_points(), layout.n_params())
+                }
+            };
             change = change.max((updated - *slot).abs());
             *slot = updated;
         }

@@ -5,6 +5,8 @@ use std::fmt;
 
 use serde::Serialize;
 
+use super::goodness::chi_squared_p_value;
+use super::jitter::JitterMethod;
 use super::lucy_sweeney::{eccentricity_error, lucy_sweeney, LucySweeney};
 use super::problem::{
     decode_companion, EccentricityCoordinates, FitData, ParameterLayout, RvProblem,
@@ -74,7 +76,7 @@ pub struct InstrumentFit {
     pub n_points: usize,
     /// Offset γ [m/s].
     pub offset: Estimate,
-    /// Maximum-likelihood jitter [m/s] when fitted.
+    /// Jitter [m/s] when fitted (method in [`Solution::jitter_method`]).
     pub jitter: Option<f64>,
     /// Unweighted rms of the residuals [m/s].
     pub rms: f64,
@@ -97,6 +99,12 @@ pub struct Solution {
     pub dof: usize,
     /// χ²/dof.
     pub reduced_chi_squared: Option<f64>,
+    /// P(χ²_dof ≥ χ²): the χ² goodness-of-fit p-value ([`chi_squared_p_value`]); None when
+    /// dof = 0. With fitted jitters χ² is close to dof by construction, so a small p then means
+    /// the model itself misses something.
+    pub chi_squared_p: Option<f64>,
+    /// How the jitters were estimated, when fitted.
+    pub jitter_method: Option<JitterMethod>,
     /// Unweighted rms of all residuals [m/s].
     pub rms: f64,
     /// True when the final Levenberg–Marquardt run met a convergence test (or stopped at machine
@@ -229,6 +237,7 @@ pub(crate) struct SolutionContext<'a> {
     pub jitter: Option<&'a [f64]>,
     pub jitter_iterations: Option<usize>,
     pub jitter_converged: bool,
+    pub jitter_method: JitterMethod,
     pub termination: Termination,
     pub stellar_mass: Option<f64>,
     pub lucy_sweeney_threshold: f64,
@@ -445,6 +454,8 @@ pub(crate) fn build_solution(ctx: &SolutionContext, params_in: &[f64]) -> Soluti
         n_params: total_params,
         dof,
         reduced_chi_squared: (dof > 0).then(|| chi_squared / dof as f64),
+        chi_squared_p: chi_squared_p_value(chi_squared, dof),
+        jitter_method: ctx.jitter.map(|_| ctx.jitter_method),
         rms: rms(&raw),
         converged,
         termination: ctx.termination,
@@ -550,11 +561,17 @@ impl fmt::Display for Solution {
         let reduced = self
             .reduced_chi_squared
             .map_or_else(|| "-".to_string(), |r| format!("{r:.4}"));
+        let p = self
+            .chi_squared_p
+            .map_or_else(|| "-".to_string(), |p| format!("{p:.3e}"));
         writeln!(
             f,
-            "  chi2 = {:.4}, dof = {}, reduced chi2 = {reduced}, rms = {:.3} m/s, parameters = {}",
+            "  chi2 = {:.4}, dof = {}, reduced chi2 = {reduced}, chi2 p = {p}, rms = {:.3} m/s, parameters = {}",
             self.chi_squared, self.dof, self.rms, self.n_params
         )?;
+        if let Some(method) = self.jitter_method {
+            writeln!(f, "  jitter: {}", method.label())?;
+        }
         writeln!(
             f,
             "  convergence: {} ({}); covariance: {}",

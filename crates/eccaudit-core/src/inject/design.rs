@@ -261,6 +261,36 @@ pub enum DesignError {
     },
 }
 
+/// The rest of the model in every trial: what is simulated besides the injected companion,
+/// and the model each simulation is refitted with (the one fitted to the real data).
+///
+/// The default is the bare case: no background, no instrument jitter, one companion, no trend,
+/// no fitted jitter.
+#[derive(Debug, Clone, PartialEq, Serialize, Default)]
+pub struct TrialModel {
+    /// Velocity of everything but the injected companion at each epoch [m/s]: the other
+    /// companions, the trend and the instrument offsets at their fitted values, evaluated once
+    /// by the fit's own model ([`crate::fit::RvProblem::model_velocities`]). Empty = zero.
+    pub background: Vec<f64>,
+    /// Jitter of each instrument [m/s] added in quadrature to the noise of its epochs; unknown
+    /// to the estimators, which fit it when `fit_jitter`. Empty = none.
+    pub instrument_jitters: Vec<f64>,
+    /// Starting periods [d] of the refit, the injected companion first (its entry is replaced
+    /// by the design's period); the length is the number of companions refitted.
+    pub periods: Vec<f64>,
+    /// Refit a linear trend.
+    pub trend: bool,
+    /// Refit one jitter per instrument (Baluev 2009 modified likelihood).
+    pub fit_jitter: bool,
+}
+
+impl TrialModel {
+    /// Companions in the refit (at least 1).
+    pub fn n_companions(&self) -> usize {
+        self.periods.len().max(1)
+    }
+}
+
 /// The full design of an injection–recovery run.
 ///
 /// The grid is true e × K × ω (ω random when `omegas` is empty); every cell gets
@@ -286,6 +316,8 @@ pub struct InjectionDesign {
     pub trials_per_cell: usize,
     /// Master seed.
     pub seed: u64,
+    /// The rest of the model: background velocities, instrument jitters, the refit's model.
+    pub model: TrialModel,
 }
 
 /// One cell of the grid: the injected e, K and ω (None: random per trial).
@@ -369,6 +401,44 @@ impl InjectionDesign {
                 )
             })
             .map_err(DesignError::from)?;
+        let m = &self.model;
+        if !m.background.is_empty() && m.background.len() != self.sampling.n_epochs() {
+            return bad(
+                "background velocities",
+                m.background.len() as f64,
+                "one per epoch",
+            );
+        }
+        if let Some(&v) = m.background.iter().find(|v| !v.is_finite()) {
+            return bad("background velocity", v, "must be finite");
+        }
+        if !m.instrument_jitters.is_empty()
+            && m.instrument_jitters.len() != self.sampling.instrument_names.len()
+        {
+            return bad(
+                "instrument jitters",
+                m.instrument_jitters.len() as f64,
+                "one per instrument",
+            );
+        }
+        if let Some(&j) = m
+            .instrument_jitters
+            .iter()
+            .find(|j| !(j.is_finite() && **j >= 0.0))
+        {
+            return bad("instrument jitter", j, "must be ≥ 0");
+        }
+        if m.periods.len() > crate::spec::MAX_COMPANIONS {
+            return bad("refitted companions", m.periods.len() as f64, "at most 3");
+        }
+        if let Some(&p) = m
+            .periods
+            .iter()
+            .skip(1)
+            .find(|p| !(p.is_finite() && **p > 0.0))
+        {
+            return bad("starting period", p, "must be positive");
+        }
         Ok(())
     }
 
@@ -420,7 +490,37 @@ impl InjectionDesign {
         0.5 * (lo + hi)
     }
 
-    /// Total noise σ of each epoch: √(σ_i² + jitter²) [m/s].
+    /// Starting periods of the refit of a simulation: the model's, with the design's period
+    /// first.
+    pub fn refit_periods(&self) -> Vec<f64> {
+        let mut periods = self.model.periods.clone();
+        if periods.is_empty() {
+            periods.push(self.period);
+        } else {
+            periods[0] = self.period;
+        }
+        periods
+    }
+
+    /// σ of the simulated noise of each epoch: √(σ_i² + jitter² + s_j²) with s_j the fitted
+    /// jitter of the epoch's instrument (the known part alone when there is none) [m/s].
+    pub fn simulation_sigmas(&self) -> Vec<f64> {
+        let known = self.noise_sigmas();
+        if self.model.instrument_jitters.is_empty() {
+            return known;
+        }
+        known
+            .iter()
+            .zip(&self.sampling.instruments)
+            .map(|(s, &j)| {
+                let extra = self.model.instrument_jitters[j];
+                libm::sqrt(s * s + extra * extra)
+            })
+            .collect()
+    }
+
+    /// The uncertainties the estimators are told: √(σ_i² + jitter²) [m/s] (the design's known
+    /// extra noise; fitted instrument jitters are left to the estimators).
     pub fn noise_sigmas(&self) -> Vec<f64> {
         self.sampling
             .uncertainties
@@ -471,6 +571,7 @@ mod tests {
             jitter: 0.0,
             trials_per_cell: 5,
             seed: 3,
+            model: TrialModel::default(),
         }
     }
 

@@ -73,8 +73,12 @@ pub struct TrialRecord {
 /// From [`stream_rng`]`(design.seed, trial)`, in this order: ω uniform in [0, 2π) (only when the
 /// design has no ω axis), the mean anomaly at the reference epoch uniform in [0, 2π), then one
 /// standard normal deviate per epoch (Marsaglia & Bray 1964 polar method), scaled by
-/// √(σ_i² + jitter²). The model is the Keplerian of the cell with zero offsets. Returns the
-/// trial and the generator, positioned after these draws.
+/// [`InjectionDesign::simulation_sigmas`] (√(σ_i² + jitter² + s_j²), s_j the fitted jitter of
+/// the epoch's instrument). The velocity is the Keplerian of the cell plus the design's
+/// background (the other companions, trend and offsets at their fitted values; zero when
+/// absent) plus that noise; the data carry the uncertainties of
+/// [`InjectionDesign::noise_sigmas`]. Returns the trial and the generator, positioned after
+/// these draws.
 pub fn simulate_trial(
     design: &InjectionDesign,
     trial: u64,
@@ -109,10 +113,19 @@ pub fn simulate_trial(
         });
     }
     let sigmas = design.noise_sigmas();
+    let noise = design.simulation_sigmas();
+    let background = &design.model.background;
     let velocities: Vec<f64> = shape
         .iter()
-        .zip(&sigmas)
-        .map(|(s, sigma)| cell.semi_amplitude * s + sigma * standard_normal(&mut rng))
+        .zip(&noise)
+        .enumerate()
+        .map(|(i, (s, sigma))| {
+            let signal = match background.get(i) {
+                Some(b) => cell.semi_amplitude * s + b,
+                None => cell.semi_amplitude * s,
+            };
+            signal + sigma * standard_normal(&mut rng)
+        })
         .collect();
     let data = FitData::new(
         &design.sampling.times,
@@ -245,6 +258,7 @@ mod tests {
             jitter: 1.0,
             trials_per_cell: 3,
             seed: 99,
+            model: crate::inject::TrialModel::default(),
         }
     }
 

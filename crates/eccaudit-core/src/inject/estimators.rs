@@ -6,7 +6,9 @@ use serde::Serialize;
 use thiserror::Error;
 
 use super::design::InjectionDesign;
-use crate::fit::{fit_orbit, lucy_sweeney, FitData, FitError, FitOptions, LUCY_SWEENEY_THRESHOLD};
+use crate::fit::{
+    fit_orbit, lucy_sweeney, CompanionFit, FitData, FitError, FitOptions, LUCY_SWEENEY_THRESHOLD,
+};
 use crate::random::SimRng;
 
 /// z of the two-sided 95% normal interval (common practice).
@@ -144,8 +146,11 @@ impl LeastSquaresSettings {
 }
 
 /// The least-squares (minimum χ²) estimator: the multi-start Levenberg–Marquardt fit of
-/// [`fit_orbit`] with one companion, one offset per instrument, no trend, no fitted jitter
-/// (the weights are the stated uncertainties with the design's jitter in quadrature).
+/// [`fit_orbit`] with the model of the design's [`super::TrialModel`] — the companions, one
+/// offset per instrument, the trend and the jitters (Baluev 2009 modified likelihood) of the
+/// fit to the real data; by default one companion, no trend, no fitted jitter. The weights are
+/// the stated uncertainties with the design's known extra noise in quadrature. The audited
+/// companion is the refitted one whose period is nearest (in ln P) the design's period.
 ///
 /// Output `lsq`: ê of the eccentric solution, with the formal intervals ê ± σ_e (68%) and
 /// ê ± 1.96 σ_e (95%) clipped to [0, 1), σ_e from the covariance by the delta method; it calls
@@ -161,12 +166,31 @@ pub struct LeastSquaresEstimator {
 }
 
 impl LeastSquaresEstimator {
-    /// The fit options used for a data set whose period is expected near `period`.
+    /// The fit options used for a data set whose period is expected near `period` (one
+    /// companion, no trend, no jitter).
     pub fn fit_options(&self, period: f64) -> FitOptions {
+        self.options(vec![period], false, false)
+    }
+
+    /// The fit options of a data set of `design`: the model of [`InjectionDesign::model`],
+    /// starting at [`InjectionDesign::refit_periods`] (or searching the periodogram for each
+    /// companion with [`TrialPeriod::Search`]).
+    pub fn fit_options_for(&self, design: &InjectionDesign) -> FitOptions {
+        self.options(
+            design.refit_periods(),
+            design.model.trend,
+            design.model.fit_jitter,
+        )
+    }
+
+    fn options(&self, periods: Vec<f64>, trend: bool, jitter: bool) -> FitOptions {
         let s = &self.settings;
         FitOptions {
+            n_companions: periods.len().max(1),
+            trend,
+            jitter,
             initial_periods: match s.period {
-                TrialPeriod::StartAtKnown => vec![period],
+                TrialPeriod::StartAtKnown => periods,
                 TrialPeriod::Search => Vec::new(),
             },
             n_peaks: s.n_peaks.max(1),
@@ -245,9 +269,9 @@ impl Estimator for LeastSquaresEstimator {
         design: &InjectionDesign,
         _rng: &mut SimRng,
     ) -> Result<Vec<EccentricityEstimate>, EstimatorError> {
-        let report = fit_orbit(data, &self.fit_options(design.period))?;
+        let report = fit_orbit(data, &self.fit_options_for(design))?;
         let solution = &report.eccentric;
-        let companion = &solution.companions[0];
+        let companion = nearest_companion(&solution.companions, design.period);
         let e_hat = companion.eccentricity.value;
         let sigma_e = companion.eccentricity.error.unwrap_or(f64::NAN);
         let (lower68, upper68, lower95, upper95) = if sigma_e.is_finite() {
@@ -284,6 +308,16 @@ impl Estimator for LeastSquaresEstimator {
         }
         Ok(out)
     }
+}
+
+/// The companion whose period is nearest `period` in ln P (the first on a tie; the audited
+/// companion of a refit).
+pub fn nearest_companion(companions: &[CompanionFit], period: f64) -> &CompanionFit {
+    let distance = |c: &CompanionFit| libm::fabs(libm::log(c.period.value / period));
+    companions
+        .iter()
+        .min_by(|a, b| distance(a).total_cmp(&distance(b)))
+        .expect("a fit has at least one companion")
 }
 
 /// The outputs of a set of estimators, in order.

@@ -9,6 +9,7 @@
 //! the same trait); [`summary`] and [`statement`] turn records into numbers and words;
 //! [`trial_file`] is the text format of the trials (resumable, mergeable).
 
+pub mod context;
 pub mod design;
 pub mod engine;
 pub mod estimators;
@@ -19,16 +20,18 @@ pub mod trial_file;
 
 use thiserror::Error;
 
+pub use context::{AuditContext, InstrumentNoise, OtherCompanion};
 pub use design::{
     default_eccentricity_grid, DesignError, GridCell, InjectionDesign, Sampling, Schedule, Spacing,
+    TrialModel,
 };
 pub use engine::{
     run_trial, run_trials, settings_fingerprint, simulate_trial, Outcome, SimulatedTrial,
     TrialRecord,
 };
 pub use estimators::{
-    all_outputs, EccentricityEstimate, Estimator, EstimatorError, LeastSquaresEstimator,
-    LeastSquaresSettings, OutputInfo, TrialPeriod,
+    all_outputs, nearest_companion, EccentricityEstimate, Estimator, EstimatorError,
+    LeastSquaresEstimator, LeastSquaresSettings, OutputInfo, TrialPeriod,
 };
 pub use posterior_estimator::PosteriorEstimator;
 pub use statement::{
@@ -39,6 +42,12 @@ pub use trial_file::{
     csv_header, read_trial_file, record_from_csv_row, record_to_csv_row, write_trial_file,
     TrialFile, TrialFileError, TrialFileHead,
 };
+
+impl From<DesignError> for InjectError {
+    fn from(error: DesignError) -> Self {
+        InjectError::Design(error)
+    }
+}
 
 /// What can go wrong in an injection–recovery run.
 #[derive(Debug, Clone, PartialEq, Error)]

@@ -116,7 +116,7 @@ impl Estimator for PosteriorEstimator {
         let prior = self.prior.validate().map_err(|e| other(&e))?;
         let report = fit_orbit(
             data,
-            &LeastSquaresEstimator::default().fit_options(design.period),
+            &LeastSquaresEstimator::default().fit_options_for(design),
         )?;
         let start = start_from_fit(
             &report,

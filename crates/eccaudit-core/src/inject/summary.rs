@@ -342,6 +342,7 @@ mod tests {
             jitter: 0.0,
             trials_per_cell: 4,
             seed: 8,
+            model: crate::inject::TrialModel::default(),
         };
         let lsq = LeastSquaresEstimator::default();
         let est: [&dyn Estimator; 1] = [&lsq];

@@ -458,6 +458,7 @@ mod tests {
             jitter: 1.0,
             trials_per_cell: 3,
             seed: 99,
+            model: crate::inject::TrialModel::default(),
         }
     }
 

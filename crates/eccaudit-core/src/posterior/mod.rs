@@ -147,6 +147,9 @@ pub enum PosteriorError {
         /// What it must be.
         reason: &'static str,
     },
+    /// The model of a request is impossible (companions, periods, range, limit).
+    #[error("model: {0}")]
+    Model(crate::spec::ModelSpecError),
     /// The observer cancelled.
     #[error("cancelled while sampling prior {prior_index} after {steps_done} steps")]
     Cancelled {

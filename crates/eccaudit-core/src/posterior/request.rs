@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 use crate::fit::FitOptions;
 use crate::priors::ScalarPrior;
 use crate::sampler::SamplerSettings;
+use crate::spec::{JitterMode, ModelSpec};
 
 use super::run::{default_prior_set, SensitivitySettings};
 use super::spec::parse_prior_spec;
@@ -28,18 +29,17 @@ pub struct SensitivityRequest {
     pub burn: usize,
     /// Seed of the sampler, the same for every prior (default 1).
     pub seed: u64,
-    /// Starting period [d] of the least-squares start (skips the period search); none by default.
-    pub period: Option<f64>,
+    /// The model: companions (each optionally with a given period), trend, jitter mode
+    /// (`auto` and `fit` sample one jitter per instrument, `off` samples none), period range of
+    /// the least-squares start's search, false-alarm limit (marginal peaks are sampled all the
+    /// same; see [`crate::spec::fit_model`]).
+    pub model: ModelSpec,
     /// Period prior, log-uniform on [min, max] days (default [1, 10⁴]).
     pub period_range: [f64; 2],
     /// Largest K [m/s] of its modified Jeffreys prior with knee 1 m/s (default 2·10⁵).
     pub k_max: f64,
     /// Largest jitter [m/s] of its modified Jeffreys prior with knee 1 m/s (default 10³).
     pub jitter_max: f64,
-    /// Sample a jitter (default true).
-    pub jitter: bool,
-    /// Sample a linear trend, uniform on ±10 m/s/d (default false).
-    pub trend: bool,
 }
 
 impl Default for SensitivityRequest {
@@ -50,12 +50,10 @@ impl Default for SensitivityRequest {
             steps: 4000,
             burn: 1000,
             seed: 1,
-            period: None,
+            model: ModelSpec::DEFAULT,
             period_range: [1.0, 1.0e4],
             k_max: 2.0e5,
             jitter_max: 1.0e3,
-            jitter: true,
-            trend: false,
         }
     }
 }
@@ -78,9 +76,11 @@ impl SensitivityRequest {
                 })
                 .collect::<Result<Vec<_>, _>>()?
         };
+        let model = self.model.validate().map_err(PosteriorError::Model)?;
         let mut posterior = PosteriorSettings {
-            jitter: self.jitter,
-            trend: self.trend,
+            jitter: self.model.jitter != JitterMode::Off,
+            trend: self.model.trend,
+            n_companions: self.model.companions,
             ..PosteriorSettings::default()
         };
         posterior.priors.period = ScalarPrior::LogUniform {
@@ -96,15 +96,6 @@ impl SensitivityRequest {
             max: self.jitter_max,
         };
         posterior.priors.validate()?;
-        if let Some(p) = self.period {
-            if !(p > 0.0 && p.is_finite()) {
-                return Err(PosteriorError::RequestSetting {
-                    setting: "period",
-                    value: p,
-                    reason: "must be a positive number of days",
-                });
-            }
-        }
         Ok(SensitivitySettings {
             posterior,
             priors,
@@ -115,10 +106,7 @@ impl SensitivityRequest {
                 seed: self.seed,
                 ..SamplerSettings::default()
             },
-            fit: FitOptions {
-                initial_periods: self.period.into_iter().collect(),
-                ..FitOptions::default()
-            },
+            fit: model.fit_options(posterior.jitter, &FitOptions::default()),
         })
     }
 }
@@ -137,6 +125,7 @@ mod tests {
         assert_eq!(settings.sampler.n_burn, 1000);
         assert!(settings.posterior.jitter);
         assert!(settings.fit.initial_periods.is_empty());
+        assert_eq!(settings.posterior.n_companions, 1);
     }
 
     #[test]
@@ -168,14 +157,9 @@ mod tests {
     fn unknown_fields_and_bad_periods_are_refused() {
         assert!(serde_json::from_str::<SensitivityRequest>(r#"{"walker": 8}"#).is_err());
         let request: SensitivityRequest =
-            serde_json::from_str(r#"{"walkers": 16, "period": -3}"#).unwrap();
+            serde_json::from_str(r#"{"walkers": 16, "model": {"periods": [-3]}}"#).unwrap();
         assert_eq!(request.walkers, 16);
-        assert!(matches!(
-            request.to_settings(),
-            Err(PosteriorError::RequestSetting {
-                setting: "period",
-                ..
-            })
-        ));
+        let err = request.to_settings().unwrap_err().to_string();
+        assert!(err.contains("period = -3"), "{err}");
     }
 }

@@ -578,7 +578,10 @@ mod tests {
             steps: 60,
             burn: 20,
             seed: 5,
-            period: Some(40.0),
+            model: crate::spec::ModelSpec {
+                periods: vec![40.0],
+                ..crate::spec::ModelSpec::DEFAULT
+            },
             ..SensitivityRequest::default()
         }
         .to_settings()
