@@ -328,12 +328,6 @@ impl From<InjectError> for AuditError {
 
 // The message above already prints the inner error, so it is not also reported as `source()`
 // (which would make a printed chain say it twice).
-impl From<FitError> for AuditError {
-    fn from(err: FitError) -> Self {
-        Self::Fit(err)
-    }
-}
-
 /// SHA-256 of a table's bytes as lower-case hex: the data identity of a settings file.
 pub fn data_fingerprint(bytes: &[u8]) -> String {
     Sha256::digest(bytes)

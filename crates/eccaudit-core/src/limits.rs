@@ -35,8 +35,8 @@ pub const MAX_STEPS: u64 = 10_000_000;
 /// the chains near 1 GiB.
 pub const MAX_STORED_DRAWS: u64 = 10_000_000;
 
-/// Most Keplerian companions of a model or a fit.
-pub const MAX_COMPANIONS: u64 = 10;
+/// Most Keplerian companions of a model or a fit (the model specification's 1 to 3).
+pub const MAX_COMPANIONS: u64 = 3;
 
 /// Most starting points of one fit option (periodogram peaks, ω values, random starts,
 /// starting eccentricities, phases scanned).

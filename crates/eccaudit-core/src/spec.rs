@@ -13,8 +13,8 @@ use thiserror::Error;
 use crate::fit::{fit_orbit, FitData, FitError, FitOptions, FitReport, Goodness, JitterMethod};
 use crate::periodogram::FrequencyLimits;
 
-/// Most companions a model may have.
-pub const MAX_COMPANIONS: usize = 3;
+/// Most companions a model may have ([`crate::limits::MAX_COMPANIONS`]).
+pub const MAX_COMPANIONS: usize = crate::limits::MAX_COMPANIONS as usize;
 
 /// Whether instrument jitters are fitted (and simulated).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]

@@ -43,6 +43,8 @@ pub use trial_file::{
     TrialFile, TrialFileError, TrialFileHead,
 };
 
+// The Design message already prints the inner error, so it is not also reported as `source()`
+// (which would make a printed chain say it twice).
 impl From<DesignError> for InjectError {
     fn from(error: DesignError) -> Self {
         InjectError::Design(error)
@@ -86,12 +88,4 @@ pub enum InjectError {
     /// The statement cannot be made.
     #[error("eccentricity statement: {0}")]
     Statement(String),
-}
-
-// The message above already prints the inner error, so it is not also reported as `source()`
-// (which would make a printed chain say it twice).
-impl From<DesignError> for InjectError {
-    fn from(err: DesignError) -> Self {
-        Self::Design(err)
-    }
 }
