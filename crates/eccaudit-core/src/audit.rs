@@ -180,7 +180,9 @@ impl PosteriorInjectionSettings {
             .enumerate()
             .map(|(idx, spec)| {
                 let prior = parse_prior_spec(spec).map_err(|e| {
-                    AuditError::Settings(format!("injection.posterior.priors[{idx}]: {e}"))
+                    AuditError::Settings(crate::one_line(&format!(
+                        "injection.posterior.priors[{idx}]: {e}"
+                    )))
                 })?;
                 let tag: String = spec
                     .trim()
@@ -340,12 +342,12 @@ impl AuditSettings {
     /// Parse a settings file (JSON). Unknown fields, a wrong `format` or a
     /// newer `version` are errors, so a typo never silently changes a result.
     pub fn from_json(text: &str) -> Result<Self, AuditError> {
-        let mut settings: AuditSettings =
-            serde_json::from_str(text).map_err(|e| AuditError::Settings(e.to_string()))?;
+        let mut settings: AuditSettings = serde_json::from_str(text)
+            .map_err(|e| AuditError::Settings(crate::one_line(&e.to_string())))?;
         if settings.format != SETTINGS_FORMAT {
             return Err(AuditError::Settings(format!(
                 "\"format\" is \"{}\", expected \"{SETTINGS_FORMAT}\"",
-                settings.format
+                crate::one_line(&settings.format)
             )));
         }
         if settings.version > SETTINGS_VERSION {

@@ -22,3 +22,28 @@ pub mod random;
 pub mod sampler;
 pub mod spec;
 pub mod table;
+
+/// Text from an input (a table cell, a file name, a settings value) as an error message shows
+/// it: control characters (a newline inside a quoted field, a CR, a NUL) escaped as `\n`,
+/// `\r`, `\u{0}`, so that every error stays one line.
+pub(crate) fn one_line(text: &str) -> String {
+    text.chars()
+        .flat_map(|c| {
+            let escaped: Vec<char> = if c.is_control() {
+                c.escape_default().collect()
+            } else {
+                vec![c]
+            };
+            escaped
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn one_line_escapes_control_characters_and_keeps_other_text() {
+        assert_eq!(super::one_line("rv [km/s]"), "rv [km/s]");
+        assert_eq!(super::one_line("err\n1.0\r\u{0}é"), "err\\n1.0\\r\\u{0}é");
+    }
+}

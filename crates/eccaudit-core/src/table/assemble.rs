@@ -49,8 +49,8 @@ impl<'a> Field<'a> {
             source_name: self.source_name.to_string(),
             line: self.line,
             column: self.column,
-            column_name: self.column_name.to_string(),
-            value: self.text.to_string(),
+            column_name: crate::one_line(self.column_name),
+            value: crate::one_line(self.text),
         }
     }
     pub(super) fn error_not_finite(&self) -> TableError {
@@ -58,8 +58,8 @@ impl<'a> Field<'a> {
             source_name: self.source_name.to_string(),
             line: self.line,
             column: self.column,
-            column_name: self.column_name.to_string(),
-            value: self.text.to_string(),
+            column_name: crate::one_line(self.column_name),
+            value: crate::one_line(self.text),
         }
     }
     pub(super) fn error_non_positive(&self) -> TableError {
@@ -67,8 +67,8 @@ impl<'a> Field<'a> {
             source_name: self.source_name.to_string(),
             line: self.line,
             column: self.column,
-            column_name: self.column_name.to_string(),
-            value: self.text.to_string(),
+            column_name: crate::one_line(self.column_name),
+            value: crate::one_line(self.text),
         }
     }
     pub(super) fn number(&self) -> Result<f64, TableError> {
@@ -149,8 +149,8 @@ pub(super) fn assemble(
                 source_name: source_name.to_string(),
                 line: row.line,
                 first_line,
-                time: row.time_text.clone(),
-                instrument: row.instrument.clone(),
+                time: crate::one_line(&row.time_text),
+                instrument: crate::one_line(&row.instrument),
             });
         }
         row_instruments.push(instrument);

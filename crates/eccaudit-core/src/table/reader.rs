@@ -37,7 +37,7 @@ impl FromStr for Delimiter {
             "\t" | "\\t" | "tab" | "tsv" => Ok(Delimiter::Tab),
             "whitespace" | "space" | "spaces" | "ws" => Ok(Delimiter::Whitespace),
             _ => Err(OptionParseError {
-                value: text.to_string(),
+                value: crate::one_line(text),
                 what: "a delimiter",
                 expected: "comma, semicolon, tab or whitespace",
             }),
@@ -243,7 +243,7 @@ pub(super) fn read_records(
                 .position()
                 .map(|position| line_counter.line_of(position.byte() as usize))
                 .unwrap_or(record_index + 1),
-            message: err.to_string(),
+            message: crate::one_line(&err.to_string()),
         })?;
         if record.iter().all(str::is_empty) {
             continue;
@@ -289,15 +289,15 @@ fn layout_from_header(record: &Record, source_name: &str) -> Result<Layout, Tabl
                 source_name: source_name.to_string(),
                 line: record.line,
                 column,
-                name: cell.clone(),
+                name: crate::one_line(cell),
                 accepted: ACCEPTED_NAMES.to_string(),
             },
             HeaderProblem::UnknownUnit(unit) => TableError::UnknownUnit {
                 source_name: source_name.to_string(),
                 line: record.line,
                 column,
-                name: cell.clone(),
-                unit,
+                name: crate::one_line(cell),
+                unit: crate::one_line(&unit),
             },
         })?;
         let slot = &mut found[header.role as usize];
@@ -306,9 +306,9 @@ fn layout_from_header(record: &Record, source_name: &str) -> Result<Layout, Tabl
                 source_name: source_name.to_string(),
                 line: record.line,
                 column,
-                name: cell.clone(),
+                name: crate::one_line(cell),
                 first_column: *first_index + 1,
-                first_name: first_name.clone(),
+                first_name: crate::one_line(first_name),
                 role: header.role.name().to_string(),
             });
         }
@@ -372,7 +372,7 @@ fn resolve_units(
                         source_name: source_name.to_string(),
                         line: header_line,
                         column: index + 1,
-                        name: name.clone(),
+                        name: crate::one_line(name),
                         header_unit,
                         explicit_unit,
                     });
@@ -423,7 +423,7 @@ fn resolve_time_convention(
                     source_name: source_name.to_string(),
                     line: layout.header_line.unwrap_or(layout.reference_line),
                     column: time_index + 1,
-                    name: time_name.clone(),
+                    name: crate::one_line(time_name),
                     header_convention: TimeConvention::stated(header, StatedBy::Header).label(),
                     explicit_convention: TimeConvention::stated(given, StatedBy::Explicit).label(),
                 });
@@ -519,7 +519,8 @@ fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvent
 /// convention is inferred from the magnitude of the times when not stated.
 /// Rows out of time order are sorted (stably), with a notice.
 pub fn parse_table(text: &str, options: &ReadOptions) -> Result<VelocityTable, TableError> {
-    let source_name = options.source_name.as_str();
+    let source_name = crate::one_line(&options.source_name);
+    let source_name = source_name.as_str();
     let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let delimiter = options.delimiter.unwrap_or_else(|| detect_delimiter(text));
     let records = read_records(text, delimiter, source_name)?;
