@@ -6,12 +6,15 @@
 
 use core::f64::consts::PI;
 
-use rand::{RngExt, SeedableRng};
-use rand_xoshiro::Xoshiro256PlusPlus;
-
+mod bench;
 mod lanes;
+mod trig;
 
+#[cfg(test)]
+use bench::*;
+pub use bench::{benchmark_inputs, solve_all};
 pub(crate) use lanes::{LaneMask, Lanes, Real};
+use trig::*;
 
 /// 2π.
 pub const TWO_PI: f64 = 2.0 * PI;
@@ -373,113 +376,6 @@ fn starter_two_thirds_power_fast<T: Real>(x: T) -> T {
     x * y
 }
 
-/// π/2 split for the quadrant reduction: `PIO2_1` holds the first 33 bits of π/2 (so n·PIO2_1 is
-/// exact for small n) and `PIO2_1T` = π/2 − PIO2_1 (FreeBSD msun / Sun fdlibm `e_rem_pio2.c`
-/// constants `pio2_1`, `pio2_1t`, as carried by the `libm` crate).
-const PIO2_1: f64 = f64::from_bits(0x3FF9_21FB_5440_0000);
-const PIO2_1T: f64 = f64::from_bits(0x3DD0_B461_1A62_6331);
-
-/// Polynomial coefficients of Sun Microsystems fdlibm `k_sin.c` (`__kernel_sin`, S1–S6,
-/// Copyright 1993 Sun Microsystems, freely redistributable; the same bits as FreeBSD msun, musl
-/// and the `libm` crate's `k_sin.rs`): sin x ≈ x + S1 x³ + … + S6 x¹³ on |x| ≤ π/4 with
-/// |error| < 2^−58 (fdlibm's comment).
-const SIN_S1: f64 = f64::from_bits(0xBFC5_5555_5555_5549); // −1.66666666666666324348e−01
-const SIN_S2: f64 = f64::from_bits(0x3F81_1111_1110_F8A6); // 8.33333333332248946124e−03
-const SIN_S3: f64 = f64::from_bits(0xBF2A_01A0_19C1_61D5); // −1.98412698298579493134e−04
-const SIN_S4: f64 = f64::from_bits(0x3EC7_1DE3_57B1_FE7D); // 2.75573137070700676789e−06
-const SIN_S5: f64 = f64::from_bits(0xBE5A_E5E6_8A2B_9CEB); // −2.50507602534068634195e−08
-const SIN_S6: f64 = f64::from_bits(0x3DE5_D93A_5ACF_D57C); // 1.58969099521155010221e−10
-
-/// Polynomial coefficients of Sun Microsystems fdlibm `k_cos.c` (`__kernel_cos`, C1–C6, same
-/// provenance): cos x ≈ 1 − x²/2 + C1 x⁴ + … + C6 x¹⁴ on |x| ≤ π/4 with |error| < 2^−58.
-const COS_C1: f64 = f64::from_bits(0x3FA5_5555_5555_554C); // 4.16666666666666019037e−02
-const COS_C2: f64 = f64::from_bits(0xBF56_C16C_16C1_5177); // −1.38888888888741095749e−03
-const COS_C3: f64 = f64::from_bits(0x3EFA_01A0_19CB_1590); // 2.48015872894767294178e−05
-const COS_C4: f64 = f64::from_bits(0xBE92_7E4F_809C_52AD); // −2.75573143513906633035e−07
-const COS_C5: f64 = f64::from_bits(0x3E21_EE9E_BDB4_B1C4); // 2.08757232129817482790e−09
-const COS_C6: f64 = f64::from_bits(0xBDA8_FAE9_BE88_38D4); // −1.13596475577881948265e−11
-
-/// sin(x + y) for |x| ≤ π/4 and a tail |y| ≤ ulp(x)/2: fdlibm's `__kernel_sin` (k_sin.c, the
-/// branch with a tail), plain IEEE arithmetic without FMA.
-#[inline(always)]
-fn kernel_sin<T: Real>(x: T, y: T) -> T {
-    let z = x * x;
-    let w = z * z;
-    let r = z * (z * SIN_S4 + SIN_S3) + SIN_S2 + z * w * (z * SIN_S6 + SIN_S5);
-    let v = z * x;
-    x - ((z * (y * 0.5 - v * r) - y) - v * SIN_S1)
-}
-
-/// cos(x + y) for |x| ≤ π/4 and a tail |y| ≤ ulp(x)/2: fdlibm's `__kernel_cos` (k_cos.c, the
-/// branch-free FreeBSD/musl form), plain IEEE arithmetic without FMA.
-#[inline(always)]
-fn kernel_cos<T: Real>(x: T, y: T) -> T {
-    let z = x * x;
-    let w = z * z;
-    let r = z * (z * (z * COS_C3 + COS_C2) + COS_C1) + w * w * (z * (z * COS_C6 + COS_C5) + COS_C4);
-    let hz = z * 0.5;
-    let w = T::splat(1.0) - hz;
-    w + (((T::splat(1.0) - w) - hz) + (z * r - x * y))
-}
-
-/// sin x and cos x for x in about [−5π/4, 5π/4] (the starter E₁ lies in [0, π]), branch-free:
-/// x − nπ/2 = y₀ + y₁ with n = round(2x/π) (the medium-range step of fdlibm `e_rem_pio2.c`), the
-/// fdlibm kernels on |y₀| ≤ π/4, and the quadrant n mod 4 applied with bit selects:
-/// 0: (sin y, cos y); 1: (cos y, −sin y); 2: (−sin y, −cos y); 3: (−cos y, sin y).
-#[inline(always)]
-fn sincos_zero_to_pi<T: Real>(x: T) -> (T, T) {
-    // shifted = 1.5·2^52 + n exactly, so its low mantissa bits are n mod 4 (also for n < 0).
-    let shifted = x * core::f64::consts::FRAC_2_PI + TO_INT;
-    let n = shifted - TO_INT;
-    let r = x - n * PIO2_1;
-    let w = n * PIO2_1T;
-    let y0 = r - w;
-    let y1 = (r - y0) - w;
-    let sy = kernel_sin(y0, y1);
-    let cy = kernel_cos(y0, y1);
-    // Bit-level selects: LLVM turns `if`-selects of this shape into real branches, which the
-    // random quadrant would mispredict about half the time.
-    let sin = T::zip3_bits(sy, cy, shifted, |sy_bits, cy_bits, shifted_bits| {
-        let quadrant = shifted_bits & 3;
-        let swap_mask = (quadrant & 1).wrapping_neg(); // all ones in odd quadrants
-        let flip = ((quadrant >> 1) & 1) << 63; // quadrants 2, 3
-        ((sy_bits & !swap_mask) | (cy_bits & swap_mask)) ^ flip
-    });
-    let cos = T::zip3_bits(sy, cy, shifted, |sy_bits, cy_bits, shifted_bits| {
-        let quadrant = shifted_bits & 3;
-        let swap_mask = (quadrant & 1).wrapping_neg();
-        let flip = (((quadrant + 1) >> 1) & 1) << 63; // quadrants 1, 2
-        ((cy_bits & !swap_mask) | (sy_bits & swap_mask)) ^ flip
-    });
-    (sin, cos)
-}
-
-/// sin δ and cos δ for |δ| ≲ 1e-3 by their Taylor series to the δ⁵ term (common practice).
-#[inline(always)]
-fn small_angle_sincos<T: Real>(delta: T) -> (T, T) {
-    let d2 = delta * delta;
-    let sin = delta * (T::splat(1.0) - d2 * (1.0 / 6.0) * (T::splat(1.0) - d2 * (1.0 / 20.0)));
-    let cos = T::splat(1.0) - d2 * 0.5 * (T::splat(1.0) - d2 * (1.0 / 12.0));
-    (sin, cos)
-}
-
-/// 1 − cos x from sin x and cos x without cancellation: sin²x / (1 + cos x) when cos x > 0.
-#[inline(always)]
-fn one_minus_cos(sin: f64, cos: f64) -> f64 {
-    if cos > 0.0 {
-        sin * sin / (1.0 + cos)
-    } else {
-        1.0 - cos
-    }
-}
-
-/// [`one_minus_cos`] for lanes: both forms computed, the right one selected (same bits).
-#[inline(always)]
-fn one_minus_cos_lanes<T: Real>(sin: T, cos: T) -> T {
-    let positive = T::splat(0.0).lt_lanes(cos);
-    T::select(positive, sin * sin / (cos + 1.0), T::splat(1.0) - cos)
-}
-
 /// The branch-free common path of [`eccentric_anomaly_reduced`] for lanes: (E, sin E, cos E)
 /// and whether each lane is valid (false: NaN, or a rare case of [`solve_nonnegative`]; the
 /// caller then uses [`eccentric_anomaly_reduced`], whose common path performs exactly the same
@@ -610,125 +506,6 @@ pub(crate) fn true_anomaly_cos_sin_prepared(
     let cos_nu = (one_minus_e - two_sin2_half) * inv_denominator;
     let sin_nu = sqrt_one_minus_e2 * anomaly.sin * inv_denominator;
     (cos_nu, sin_nu)
-}
-
-/// Deterministic benchmark workload: `n` pairs (M, e) with M uniform in [0, 2π) and e uniform in
-/// [0, 0.99], drawn from `Xoshiro256PlusPlus::seed_from_u64(seed)`. Identical on native and wasm.
-pub fn benchmark_inputs(n: usize, seed: u64) -> Vec<(f64, f64)> {
-    let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed);
-    (0..n)
-        .map(|_| {
-            let mean_anomaly: f64 = rng.random_range(0.0..TWO_PI);
-            let eccentricity: f64 = rng.random_range(0.0..=0.99);
-            (mean_anomaly, eccentricity)
-        })
-        .collect()
-}
-
-/// The branch-free common path of [`eccentric_anomaly`] for raw (M, e) pairs (one value or
-/// several lanes): E ∈ [0, 2π) and whether it is valid. It is false for an eccentricity outside
-/// [0, 1), |M| beyond the Cody–Waite range, NaN, or one of the rare cases of
-/// [`solve_nonnegative`]; the caller then uses [`eccentric_anomaly`] (whose common path performs
-/// exactly the same operations, so the bits agree).
-#[inline(always)]
-fn eccentric_anomaly_fast<T: Real>(mean_anomaly: T, e: T) -> (T, T::Mask) {
-    let e_valid = e.ge(0.0) & e.lt(1.0);
-    let e = T::select(e_valid, e, T::splat(0.0));
-    let m_in_range = mean_anomaly.abs().lt(CODY_WAITE_LIMIT);
-    let reduced = cody_waite_signed(mean_anomaly);
-    let step = markley_step(reduced.abs(), e);
-    let (angle, _, _) = rotate_by_correction(&step);
-    let ok = e_valid & m_in_range & step.usable & step.d5.abs().lt(TAYLOR_DELTA_LIMIT);
-    (wrap_negative(reduced.unit_with_sign() * angle), ok)
-}
-
-/// [`eccentric_anomaly`] for a raw (M, e) pair; NaN for an eccentricity outside [0, 1).
-#[inline]
-fn eccentric_anomaly_or_nan(mean_anomaly: f64, e: f64) -> f64 {
-    match Eccentricity::new(e) {
-        Ok(eccentricity) => eccentric_anomaly(mean_anomaly, eccentricity),
-        Err(_) => f64::NAN,
-    }
-}
-
-/// How many independent solves [`solve_all`] interleaves, so that the processor overlaps their
-/// long dependency chains (divisions, square root, sine and cosine): two SSE2 registers of two
-/// lanes each.
-const SOLVE_LANES: usize = 4;
-
-/// The lane count of [`solve_all`] on x86-64 processors with AVX2: two 256-bit registers of four.
-#[cfg(target_arch = "x86_64")]
-const SOLVE_LANES_AVX2: usize = 8;
-
-/// Solves Kepler's equation for every (M, e) pair of `inputs` and returns the sum of the
-/// eccentric anomalies (added in input order), a checksum that keeps the optimiser from removing
-/// the work. Pairs with an eccentricity outside [0, 1) contribute NaN (so the checksum becomes
-/// NaN) instead of panicking. Each E is bit for bit the value of [`eccentric_anomaly`].
-///
-/// On x86-64 processors with AVX2 or AVX-512F the same code runs with wider registers (detected
-/// at run time);
-/// the lanes still perform only correctly rounded IEEE operations without fused multiply–add,
-/// so the bits do not change.
-pub fn solve_all(inputs: &[(f64, f64)]) -> f64 {
-    #[cfg(target_arch = "x86_64")]
-    {
-        if std::is_x86_feature_detected!("avx512f") {
-            // SAFETY: the processor supports AVX-512F, checked just above.
-            return unsafe { solve_all_avx512(inputs) };
-        }
-        if std::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked just above.
-            return unsafe { solve_all_avx2(inputs) };
-        }
-    }
-    solve_all_lanes::<SOLVE_LANES>(inputs)
-}
-
-/// [`solve_all_lanes`] compiled for AVX-512F: eight lanes in one 512-bit register.
-///
-/// # Safety
-/// The processor must support AVX-512F.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-unsafe fn solve_all_avx512(inputs: &[(f64, f64)]) -> f64 {
-    solve_all_lanes::<SOLVE_LANES_AVX2>(inputs)
-}
-
-/// [`solve_all_lanes`] compiled for AVX2.
-///
-/// # Safety
-/// The processor must support AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-unsafe fn solve_all_avx2(inputs: &[(f64, f64)]) -> f64 {
-    solve_all_lanes::<SOLVE_LANES_AVX2>(inputs)
-}
-
-/// [`solve_all`] with `N` lanes.
-#[inline(always)]
-fn solve_all_lanes<const N: usize>(inputs: &[(f64, f64)]) -> f64 {
-    let mut sum = 0.0;
-    let mut chunks = inputs.chunks_exact(N);
-    for chunk in &mut chunks {
-        let mean_anomalies = Lanes(core::array::from_fn(|i| chunk[i].0));
-        let eccentricities = Lanes(core::array::from_fn(|i| chunk[i].1));
-        let (Lanes(mut angles), valid) =
-            eccentric_anomaly_fast::<Lanes<N>>(mean_anomalies, eccentricities);
-        if !valid.all() {
-            for (i, (angle, &(mean_anomaly, e))) in angles.iter_mut().zip(chunk).enumerate() {
-                if !valid.lane(i) {
-                    *angle = eccentric_anomaly_or_nan(mean_anomaly, e);
-                }
-            }
-        }
-        for angle in angles {
-            sum += angle;
-        }
-    }
-    for &(mean_anomaly, e) in chunks.remainder() {
-        sum += eccentric_anomaly_or_nan(mean_anomaly, e);
-    }
-    sum
 }
 
 #[cfg(test)]
