@@ -21,4 +21,5 @@ pub mod priors;
 pub mod random;
 pub mod sampler;
 pub mod spec;
+pub mod survey;
 pub mod table;
