@@ -38,7 +38,8 @@ pub struct Args {
     #[command(flatten)]
     pub table: TableArgs,
     /// Print a Slurm batch script that runs this survey (same flags) as a job array of N
-    /// tasks, each task one shard, all writing into --out; then exit.
+    /// tasks, each task one shard, all writing into --out (created now, for the task logs);
+    /// then exit.
     #[arg(long, value_name = "N")]
     pub write_sbatch: Option<usize>,
     /// With --write-sbatch: CPUs per array task (the trials of a table use them all).
@@ -273,6 +274,8 @@ fn sbatch_script(args: &Args, n: usize) -> anyhow::Result<String> {
         words.push(shell_word(&a));
     }
     let out = cwd.join(&args.run.out);
+    // Slurm opens each task's log in --out before the task starts: the folder must exist.
+    fs::create_dir_all(&out).with_context(|| format!("cannot create `{}`", out.display()))?;
     Ok(format!(
         "#!/bin/bash\n\
          # eccaudit survey as a Slurm job array of {n} tasks, written by `eccaudit survey --write-sbatch`.\n\
