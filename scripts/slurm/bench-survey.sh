@@ -12,9 +12,11 @@ ROOT=$(pwd)
 N=${N:-100}
 TRIALS=${TRIALS:-10}
 cargo build --release --quiet --bin eccaudit --example make_survey_tables
-B=$ROOT/target/release/eccaudit
 W=${1:-$(mktemp -d /tmp/eccaudit-bench.XXXXXX)}
 mkdir -p "$W"; W=$(cd "$W" && pwd)
+# A copy of the binary, so a rebuild while the benchmark runs changes nothing.
+cp "$ROOT/target/release/eccaudit" "$W/eccaudit"
+B=$W/eccaudit
 rm -rf "$W"/data "$W"/local "$W"/array-*
 "$ROOT/target/release/examples/make_survey_tables" "$W/data" "$N" 40 1 >/dev/null
 FLAGS=(--trials "$TRIALS")
