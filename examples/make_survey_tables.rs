@@ -51,6 +51,30 @@ pub fn survey_table(index: u64, n_epochs: usize, seed: u64) -> String {
     text
 }
 
+/// A table of two companions (P = 5.3 d, K = 40 m/s, e = 0.2; P = 43 d, K = 25 m/s, e = 0.1),
+/// `n_epochs` random nights over 300 d, error bars of 2–4 m/s, from the stream (seed, 1000).
+pub fn two_companion_table(n_epochs: usize, seed: u64) -> String {
+    let mut rng = stream_rng(seed, 1000);
+    let t0 = 2_460_000.0;
+    let inner = OrbitalElements::new(5.3, 40.0, 0.2, 1.1, t0 + 1.2).expect("valid elements");
+    let outer = OrbitalElements::new(43.0, 25.0, 0.1, 4.0, t0 + 17.0).expect("valid elements");
+    let model = RvModel::new(vec![inner, outer], vec![3.0], 0.0, t0).expect("a valid model");
+    let mut times: Vec<f64> = (0..n_epochs)
+        .map(|_| t0 + rng.random_range(0.0..300.0f64).floor() + rng.random_range(0.55..0.85))
+        .collect();
+    times.sort_by(f64::total_cmp);
+    let mut text = format!(
+        "# synthetic two-companion star (seed {seed}): P = 5.3 and 43 d, K = 40 and 25 m/s, e = 0.2 and 0.1\nbjd,rv [m/s],sigma [m/s]\n"
+    );
+    for t in times {
+        let sigma = rng.random_range(2.0..4.0);
+        let truth = model.velocity(t, 0).expect("instrument 0 exists");
+        let v = normal(&mut rng, truth, sigma);
+        writeln!(text, "{t:.5},{v:.2},{sigma:.2}").expect("writing to a String");
+    }
+    text
+}
+
 /// Writes `n` tables `star-NNN.csv` and `manifest.csv` into `dir`.
 pub fn write_survey(dir: &Path, n: usize, n_epochs: usize, seed: u64) -> std::io::Result<()> {
     std::fs::create_dir_all(dir.join("tables"))?;

@@ -385,6 +385,40 @@ fn bad_tables_are_reported_and_the_others_audited() {
     assert_eq!(json[3]["status"], "error");
 }
 
+/// A manifest row asking for two companions gives two catalogue rows and the per-companion
+/// folders of `eccaudit audit --companions 2`, with the same numbers.
+#[test]
+fn two_companions_give_two_rows() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("two.csv"),
+        survey_tables::two_companion_table(60, 4),
+    )
+    .unwrap();
+    std::fs::write(dir.path().join("m.csv"), "table,companions\ntwo.csv,2\n").unwrap();
+    let out = dir.path().join("out");
+    survey(&dir.path().join("m.csv"), &out, &[]).success();
+    let rows: serde_json::Value = serde_json::from_str(&read(&out.join("catalogue.json"))).unwrap();
+    assert_eq!(rows.as_array().unwrap().len(), 2, "{rows}");
+    assert_eq!(rows[0]["companion"], 1);
+    assert_eq!(rows[1]["companion"], 2);
+    let single = dir.path().join("single");
+    eccaudit()
+        .arg("audit")
+        .arg(dir.path().join("two.csv"))
+        .args(["--companions", "2", "--out"])
+        .arg(&single)
+        .args(AUDIT_FLAGS)
+        .assert()
+        .success();
+    for c in ["c1", "c2"] {
+        for file in ["trials.csv", "statement.json", "context.json"] {
+            let a = read(&out.join("001-two").join(c).join(file));
+            assert!(a == read(&single.join(c).join(file)), "{c}/{file} differs");
+        }
+    }
+}
+
 /// A malformed manifest stops the survey with one line naming file, line and column.
 #[test]
 fn a_bad_manifest_is_one_clear_line() {

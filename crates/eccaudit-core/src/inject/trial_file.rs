@@ -273,7 +273,8 @@ pub fn read_trial_file(
 /// Merges trial files of the same run (shards, or pieces of an interrupted run) given as
 /// `(name, text)` pairs: the first lines and column headers must agree; each file's cut-short
 /// last row is dropped; the result is the complete-file form ([`write_trial_file`]): every
-/// trial once, in order. Works on the text alone (no estimators needed), so the rows come out
+/// trial once, in order (indices beyond the planned count, the extra trials an adaptive run
+/// adds, are kept like the others). Works on the text alone (no estimators needed), so the rows come out
 /// byte for byte as written. Returns the text and the number of distinct trials.
 pub fn merge_trial_files(files: &[(&str, &str)]) -> Result<(String, u64), TrialFileError> {
     let Some((first_name, first_text)) = files.first() else {
@@ -348,10 +349,8 @@ pub fn merge_trial_files(files: &[(&str, &str)]) -> Result<(String, u64), TrialF
                         reason: "not a whole number".into(),
                     },
                 })?;
-            if trial < head.n_trials {
-                let fields: Vec<String> = row.iter().map(str::to_string).collect();
-                rows.push((trial, csv_line(&fields)));
-            }
+            let fields: Vec<String> = row.iter().map(str::to_string).collect();
+            rows.push((trial, csv_line(&fields)));
         }
     }
     rows.sort_by_key(|r| r.0);
