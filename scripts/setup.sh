@@ -8,13 +8,32 @@
 #    (scripts/setup-wasm.sh, the route of ../shared/toolchain);
 # 2. wasm-bindgen-cli at exactly the version in Cargo.lock;
 # 3. Debian's chromium + chromium-driver, and the browser-test driver
-#    (playwright-core from npm, no browser download) under tests/browser.
+#    (playwright-core from npm, no browser download) under tests/browser;
+# 4. Debian's slurmctld, slurmd, slurm-client and munge (as root), for the
+#    Slurm job-array test.
 #
 # It writes target/wasm-env.sh; source it in a subshell before a wasm build.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
 log() { printf '[setup] %s\n' "$*" >&2; }
+
+# Debian packages: `apt-get update` once, before the first install of this run.
+APT_UPDATED=0
+apt_ensure() {
+  local missing=() p
+  for p in "$@"; do
+    dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q 'install ok installed' || missing+=("$p")
+  done
+  [[ ${#missing[@]} -eq 0 ]] && return 0
+  if [[ $APT_UPDATED -eq 0 ]]; then
+    log "apt-get update"
+    apt-get update -qq
+    APT_UPDATED=1
+  fi
+  log "apt-get install ${missing[*]}"
+  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "${missing[@]}" >/dev/null
+}
 
 NO_BROWSER=0
 [[ "${1:-}" == "--no-browser" ]] && NO_BROWSER=1
@@ -39,8 +58,7 @@ if rustup target list --installed 2>/dev/null | grep -qx wasm32-unknown-unknown;
       || cargo install wasm-bindgen-cli --version "=$WB_VERSION" --quiet
   fi
   if [[ $NO_BROWSER == 0 ]]; then
-    dpkg-query -W -f='${Status}' chromium chromium-driver 2>/dev/null | grep -c 'install ok installed' | grep -qx 2 \
-      || { apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends chromium chromium-driver >/dev/null; }
+    apt_ensure chromium chromium-driver
   fi
   cat > "$ENV_FILE" <<ENV
 # wasm32-unknown-unknown build environment (rustup target). Source it in a subshell.
@@ -62,5 +80,11 @@ if [[ $NO_BROWSER == 0 ]]; then
     log "npm ci (tests/browser: playwright-core, no browser download)"
     (cd tests/browser && PLAYWRIGHT_SKIP_BROWSER_DOWNLOAD=1 npm ci --no-audit --no-fund --silent)
   fi
+fi
+# 4. Slurm and munge, for the job-array test (scripts/slurm/test-survey.sh); root only.
+if [[ $(id -u) == 0 ]] && command -v apt-get >/dev/null; then
+  apt_ensure slurmctld slurmd slurm-client munge
+else
+  log "not root or no apt-get: Slurm not installed; the Slurm job-array test will be SKIPPED"
 fi
 log "ready: $ENV_FILE"

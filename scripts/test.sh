@@ -3,7 +3,8 @@
 #   0. lint gates: formatting, clippy with warnings as errors (workspace lints, the core's
 #      disallowed methods in crates/eccaudit-core/clippy.toml);
 #   1. native: unit, reference-value, property and CLI tests (cargo test), then the core's
-#      tests again with debug assertions and overflow checks (profile `checked`);
+#      tests again with debug assertions and overflow checks (profile `checked`); then survey
+#      shards as a real Slurm job array on a one-node cluster (scripts/slurm/test-survey.sh);
 #   2. wasm: build the adapter, run its tests in headless Chromium;
 #   3. page: drive the built page in headless Chromium (tests/browser).
 set -euo pipefail
@@ -22,6 +23,9 @@ cargo test --workspace --release
 
 echo "== core tests with debug assertions and overflow checks"
 cargo test --profile checked -p eccaudit-core
+
+echo "== Slurm job arrays on a one-node cluster (skipped, loudly, without root/apt-get)"
+bash scripts/slurm/test-survey.sh
 
 echo "== wasm build"
 bash scripts/build-wasm.sh

@@ -33,6 +33,10 @@ enum Command {
     Inject(commands::inject::Args),
     /// Fit, injection-recovery at the fitted orbit, and a bias-aware eccentricity statement.
     Audit(commands::audit::Args),
+    /// Audit every table of a manifest: one folder per table and a catalogue (CSV, JSON).
+    Survey(commands::survey::Args),
+    /// Combine the outputs of shards (--shard I/N) into the files of a single run.
+    Merge(commands::merge::Args),
     /// Posterior of e under several eccentricity priors: the prior-sensitivity set and BF01.
     Priors(commands::priors::Args),
     /// Time the hot loops (Kepler solve) natively.
@@ -51,6 +55,8 @@ fn main() -> ExitCode {
         Command::Fit(args) => commands::fit::run(args),
         Command::Inject(args) => commands::inject::run(args),
         Command::Audit(args) => commands::audit::run(args),
+        Command::Survey(args) => commands::survey::run(args),
+        Command::Merge(args) => commands::merge::run(args),
         Command::Priors(args) => commands::priors::run(args),
         Command::Bench(args) => commands::bench::run(args),
     };

@@ -1,6 +1,7 @@
 // eccaudit page: DOM and events only. Every number comes from the wasm core.
 import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
 import { wireAudit } from "./audit-view.js";
+import { wireSurvey } from "./survey-view.js";
 import { initPriorsView } from "./priors-view.js";
 import { addFigureExports, addTableExports, stem } from "./exports.js";
 
@@ -413,6 +414,7 @@ async function main() {
   wireFit();
   wireExports();
   state.audit = wireAudit({ currentTable: () => state.table, el });
+  wireSurvey({ settingsFor: state.audit.settingsFor, el });
   initPriorsView({ currentTable: () => state.source });
   if (demos.length > 0) {
     select.value = "0";

@@ -344,6 +344,8 @@ export function wireAudit({ currentTable, el }) {
   addTableExports($("audit-summary"), { fileStem: named("injection-summary"), json: () => result().report.injection });
 
   return {
+    /** The settings of the form (JSON) completed for `table` (throws on a bad entry). */
+    settingsFor: readSettings,
     /** A new table was loaded: stop any run and drop the result of the old table. */
     tableChanged() {
       if (job) cancel("a new table was loaded");

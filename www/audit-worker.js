@@ -16,6 +16,8 @@ self.onmessage = async (event) => {
   try {
     if (msg.type === "init") {
       await init();
+      run?.free();  // a survey sends one table after another
+      run = null;
       run = new AuditRun(msg.text, msg.name, msg.settings);
       postMessage({ type: "ready", nTrials: run.nTrials });
     } else if (msg.type === "run") {

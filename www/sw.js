@@ -13,6 +13,7 @@ const APP_SHELL = [
   "./priors-view.js",
   "./exports.js",
   "./audit-worker.js",
+  "./survey-view.js",
   "./style.css",
   "./pkg/eccaudit_web.js",
   "./pkg/eccaudit_web_bg.wasm",

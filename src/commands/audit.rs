@@ -7,15 +7,16 @@
 //! so the command line reproduces the page's numbers exactly.
 
 use std::fs;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use anyhow::Context;
 use eccaudit_core::audit::{
-    data_fingerprint, AuditPlan, AuditSettings, DataIdentity, InjectionSettings, ReadSettings,
+    data_fingerprint, AuditPlan, AuditReport, AuditSettings, DataIdentity, InjectionSettings,
+    ReadSettings,
 };
 use eccaudit_core::table::{parse_table, ReadOptions};
 
-use super::inject::{posterior_settings, run_design, write_outputs, RunArgs};
+use super::inject::{posterior_settings, run_design_with, shard_note, write_outputs, RunArgs};
 use super::input::TableArgs;
 use super::model_args::ModelArgs;
 
@@ -47,16 +48,21 @@ pub struct Args {
     pub json: bool,
 }
 
-/// The settings from the command-line flags.
-fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
-    let run = &args.run;
+/// The settings from the command-line flags (shared by `audit` and `survey`).
+pub fn settings_from_flags(
+    run: &RunArgs,
+    table: &TableArgs,
+    model: &ModelArgs,
+    companion: Option<usize>,
+    identity: Option<DataIdentity>,
+) -> AuditSettings {
     AuditSettings {
-        data: Some(identity),
+        data: identity,
         read: ReadSettings {
-            velocity_unit: args.table.velocity_unit,
-            time: args.table.time,
+            velocity_unit: table.velocity_unit,
+            time: table.time,
         },
-        model: args.model.spec(args.companion),
+        model: model.spec(companion),
         injection: InjectionSettings {
             eccentricities: if run.eccentricities.is_empty() {
                 InjectionSettings::default().eccentricities
@@ -75,6 +81,36 @@ fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
         seed: run.seed,
         ..AuditSettings::default()
     }
+}
+
+/// Writes an audit's files into `out`: summary.json and the figures, statement.txt,
+/// statement.json, context.json and settings.json (shared by `audit` and `survey`).
+pub fn write_audit_outputs(
+    report: &AuditReport,
+    settings: &AuditSettings,
+    out: &Path,
+) -> anyhow::Result<()> {
+    let lsq_observed = report
+        .statement
+        .calibrations
+        .first()
+        .map(|c| c.observed.point);
+    write_outputs(&report.injection, out, lsq_observed)?;
+    fs::write(out.join("statement.txt"), report.statement.text())
+        .with_context(|| format!("cannot write into `{}`", out.display()))?;
+    fs::write(
+        out.join("statement.json"),
+        serde_json::to_string_pretty(&report.statement)?,
+    )
+    .with_context(|| format!("cannot write into `{}`", out.display()))?;
+    fs::write(
+        out.join("context.json"),
+        serde_json::to_string_pretty(&report.context)?,
+    )
+    .with_context(|| format!("cannot write into `{}`", out.display()))?;
+    fs::write(out.join("settings.json"), settings.to_json())
+        .with_context(|| format!("cannot write into `{}`", out.display()))?;
+    Ok(())
 }
 
 /// Fit, simulate, summarise, state.
@@ -98,7 +134,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 .with_context(|| format!("settings `{}`", path.display()))?;
             settings
         }
-        None => settings_from_flags(&args, identity),
+        None => settings_from_flags(
+            &args.run,
+            &args.table,
+            &args.model,
+            args.companion,
+            Some(identity),
+        ),
     };
     if let Some(path) = &args.write_settings {
         fs::write(path, settings.to_json())
@@ -139,30 +181,16 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             run.out = args.run.out.join(format!("c{}", plan.companion()));
         }
         let estimators = plan.estimators();
-        let (records, complete) = run_design(plan.design(), &estimators, &run)?;
+        let shard = run.shard()?;
+        let (records, complete) = run_design_with(plan.design(), &estimators, &run, shard, None)?;
+        if shard.is_split() && !complete {
+            shard_note(shard, &records, plan.n_trials(), &run.out);
+            continue;
+        }
         let report = plan.finish(&records)?;
-        let lsq_observed = report
-            .statement
-            .calibrations
-            .first()
-            .map(|c| c.observed.point);
-        write_outputs(&report.injection, &run.out, lsq_observed)?;
-        let text = report.statement.text();
         let out = &run.out;
-        fs::write(out.join("statement.txt"), &text)
-            .with_context(|| format!("cannot write into `{}`", out.display()))?;
-        fs::write(
-            out.join("statement.json"),
-            serde_json::to_string_pretty(&report.statement)?,
-        )
-        .with_context(|| format!("cannot write into `{}`", out.display()))?;
-        fs::write(
-            out.join("context.json"),
-            serde_json::to_string_pretty(&report.context)?,
-        )
-        .with_context(|| format!("cannot write into `{}`", out.display()))?;
-        fs::write(out.join("settings.json"), settings.to_json())
-            .with_context(|| format!("cannot write into `{}`", out.display()))?;
+        write_audit_outputs(&report, &settings, out)?;
+        let text = report.statement.text();
         if !args.json {
             if several {
                 println!();

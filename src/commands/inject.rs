@@ -18,6 +18,7 @@ use eccaudit_core::inject::{
     Schedule, Spacing, TrialModel, TrialPeriod, TrialRecord,
 };
 use eccaudit_core::spec::{fit_model, ModelFit, ModelSpec};
+use eccaudit_core::survey::Shard;
 use eccaudit_core::table::VelocityTable;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{bias_figure, distribution_figure, draw_bias_curve, draw_distributions};
@@ -88,6 +89,61 @@ pub struct RunArgs {
     /// Hide the progress bar (it is hidden anyway when standard error is not a terminal).
     #[arg(long)]
     pub quiet: bool,
+    /// Run slice I of N (0 ≤ I < N) of the work: trial t when t mod N = I (for `survey`: table
+    /// i when i mod N = I). Inside a Slurm job array the slice defaults to the array task's
+    /// (SLURM_ARRAY_TASK_ID of SLURM_ARRAY_TASK_COUNT); `--shard 0/1` runs everything.
+    /// Combine the slices with `eccaudit merge`.
+    #[arg(long, value_name = "I/N")]
+    pub shard: Option<Shard>,
+}
+
+impl RunArgs {
+    /// The slice of the work to run: `--shard`, else the Slurm array task's, else all of it.
+    pub fn shard(&self) -> anyhow::Result<Shard> {
+        if let Some(shard) = self.shard {
+            return Ok(shard);
+        }
+        let var = |name: &str| std::env::var(name).ok().filter(|v| !v.trim().is_empty());
+        let Some(id) = var("SLURM_ARRAY_TASK_ID") else {
+            return Ok(Shard::WHOLE);
+        };
+        let number = |name: &str, text: &str| -> anyhow::Result<usize> {
+            text.trim()
+                .parse::<usize>()
+                .with_context(|| format!("{name}=`{text}` is not a whole number"))
+        };
+        let id = number("SLURM_ARRAY_TASK_ID", &id)?;
+        let min =
+            var("SLURM_ARRAY_TASK_MIN").map_or(Ok(0), |v| number("SLURM_ARRAY_TASK_MIN", &v))?;
+        let span = match var("SLURM_ARRAY_TASK_MAX") {
+            Some(max) => Some(number("SLURM_ARRAY_TASK_MAX", &max)? + 1 - min),
+            None => None,
+        };
+        let count = match (var("SLURM_ARRAY_TASK_COUNT"), span) {
+            (Some(c), Some(span)) => {
+                let c = number("SLURM_ARRAY_TASK_COUNT", &c)?;
+                if c != span {
+                    bail!(
+                        "the Slurm array is not a plain range (SLURM_ARRAY_TASK_COUNT={c}, \
+                         MIN..MAX spans {span}): give --shard I/N"
+                    );
+                }
+                c
+            }
+            (Some(c), None) => number("SLURM_ARRAY_TASK_COUNT", &c)?,
+            (None, Some(span)) => span,
+            (None, None) => bail!(
+                "SLURM_ARRAY_TASK_ID is set but neither SLURM_ARRAY_TASK_COUNT nor \
+                 SLURM_ARRAY_TASK_MAX: give --shard I/N"
+            ),
+        };
+        let index = id.checked_sub(min).with_context(|| {
+            format!("SLURM_ARRAY_TASK_ID={id} is below SLURM_ARRAY_TASK_MIN={min}")
+        })?;
+        let shard = Shard::new(index, count)?;
+        eprintln!("eccaudit: note: running shard {shard} (from the Slurm job array)");
+        Ok(shard)
+    }
 }
 
 /// Arguments of `eccaudit inject`.
@@ -230,12 +286,32 @@ fn write_csv_file(
     Ok(())
 }
 
-/// Runs every pending trial of `design` over the thread pool, appending each row to
-/// `out/trials.csv` as it finishes; returns all records (old and new) sorted by trial index.
-pub fn run_design(
+/// A progress bar on standard error (hidden with `quiet` or when it is not a terminal).
+pub fn progress_bar(quiet: bool, length: u64, unit: &str) -> ProgressBar {
+    let progress = if quiet || !std::io::stderr().is_terminal() {
+        ProgressBar::hidden()
+    } else {
+        ProgressBar::with_draw_target(Some(length), ProgressDrawTarget::stderr())
+    };
+    progress.set_style(
+        ProgressStyle::with_template(&format!(
+            "{{spinner}} [{{elapsed_precise}}] {{wide_bar}} {{pos}}/{{len}} {unit} (ETA {{eta}}) {{msg}}"
+        ))
+        .expect("the progress template is valid"),
+    );
+    progress
+}
+
+/// Runs the pending trials of `design` that belong to `shard` over the thread pool, appending
+/// each row to `out/trials.csv` as it finishes (advancing `bar` when given, else its own);
+/// returns all records (old and new) sorted by trial index, and whether every trial of the
+/// design is done.
+pub fn run_design_with(
     design: &InjectionDesign,
     estimators: &[&dyn Estimator],
     run: &RunArgs,
+    shard: Shard,
+    bar: Option<&ProgressBar>,
 ) -> anyhow::Result<(Vec<TrialRecord>, bool)> {
     fs::create_dir_all(&run.out)
         .with_context(|| format!("cannot create `{}`", run.out.display()))?;
@@ -264,7 +340,9 @@ pub fn run_design(
     for r in &records {
         done[r.trial as usize] = true;
     }
-    let pending: Vec<u64> = (0..n_trials).filter(|&t| !done[t as usize]).collect();
+    let pending: Vec<u64> = (0..n_trials)
+        .filter(|&t| !done[t as usize] && shard.contains(t))
+        .collect();
     let to_run = run
         .stop_after
         .map_or(pending.len() as u64, |s| s.min(pending.len() as u64));
@@ -274,17 +352,14 @@ pub fn run_design(
         .open(&csv_path)
         .with_context(|| format!("cannot append to `{}`", csv_path.display()))?;
     let writer = Mutex::new(file);
-    let progress = if run.quiet || !std::io::stderr().is_terminal() {
-        ProgressBar::hidden()
-    } else {
-        ProgressBar::with_draw_target(Some(to_run), ProgressDrawTarget::stderr())
+    let own_bar;
+    let progress = match bar {
+        Some(bar) => bar,
+        None => {
+            own_bar = progress_bar(run.quiet, to_run, "trials");
+            &own_bar
+        }
     };
-    progress.set_style(
-        ProgressStyle::with_template(
-            "{spinner} [{elapsed_precise}] {wide_bar} {pos}/{len} trials (ETA {eta})",
-        )
-        .expect("the progress template is valid"),
-    );
     let started = AtomicU64::new(0);
     let work = || -> anyhow::Result<Vec<TrialRecord>> {
         pending
@@ -308,7 +383,9 @@ pub fn run_design(
             .install(work)?,
         None => work()?,
     };
-    progress.finish_and_clear();
+    if bar.is_none() {
+        progress.finish_and_clear();
+    }
     drop(writer);
     records.extend(new_records);
     records.sort_by_key(|r| r.trial);
@@ -316,6 +393,18 @@ pub fn run_design(
     // The final file holds every row in trial order, whatever order they finished in.
     write_csv_file(&csv_path, &fingerprint, n_trials, estimators, &records)?;
     Ok((records, complete))
+}
+
+/// What a shard of a trial grid leaves behind, and how to combine the shards.
+pub fn shard_note(shard: Shard, records: &[TrialRecord], n_trials: u64, out: &Path) {
+    let mine = (0..n_trials).filter(|&t| shard.contains(t)).count();
+    let done = records.iter().filter(|r| shard.contains(r.trial)).count();
+    eprintln!(
+        "eccaudit: note: shard {shard}: {done} of its {mine} trials are in {}; when every shard \
+         is done, `eccaudit merge SHARD_DIRS... --out DIR` combines them and the same command \
+         with `--out DIR --resume` (no --shard) writes the summary",
+        out.join("trials.csv").display()
+    );
 }
 
 /// Writes summary.json and the two figures.
@@ -405,7 +494,12 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
         .chain(posteriors.iter().map(|p| p as &dyn Estimator))
         .collect();
-    let (records, complete) = run_design(&design, &estimators, &args.run)?;
+    let shard = args.run.shard()?;
+    let (records, complete) = run_design_with(&design, &estimators, &args.run, shard, None)?;
+    if shard.is_split() && !complete {
+        shard_note(shard, &records, design.n_trials(), &args.run.out);
+        return Ok(());
+    }
     let summary = summarise(&design, &estimators, &records);
     write_outputs(&summary, &args.run.out, None)?;
     if args.json {

@@ -8,8 +8,10 @@ pub mod fit;
 pub mod fit_plots;
 pub mod inject;
 pub mod input;
+pub mod merge;
 pub mod model_args;
 pub mod priors;
+pub mod survey;
 pub mod table;
 
 /// The bytes of an input file, refusing one larger than

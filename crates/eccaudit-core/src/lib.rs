@@ -21,6 +21,7 @@ pub mod priors;
 pub mod random;
 pub mod sampler;
 pub mod spec;
+pub mod survey;
 pub mod table;
 
 /// Text from an input (a table cell, a file name, a settings value) as an error message shows

@@ -218,7 +218,7 @@ impl AuditRun {
         Ok(bias_figure(&report.injection, observed))
     }
 
-    fn report(&self) -> Result<&(Vec<TrialRecord>, AuditReport), JsValue> {
+    pub(crate) fn report(&self) -> Result<&(Vec<TrialRecord>, AuditReport), JsValue> {
         self.finished
             .as_ref()
             .ok_or_else(|| js_error("no result yet: finish the run first"))

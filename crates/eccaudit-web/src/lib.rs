@@ -14,6 +14,7 @@ mod demo;
 mod fit;
 mod priors;
 mod render;
+mod survey;
 
 pub use audit::{audit_settings_for, default_audit_settings, AuditRun};
 pub use bench::KeplerBench;
@@ -21,6 +22,7 @@ pub use dataset::{CurveElements, Dataset};
 pub use demo::demo_tables;
 pub use fit::FitSettings;
 pub use priors::{default_prior_specs, PriorSet};
+pub use survey::{catalogue_csv_text, catalogue_json_text, survey_error_rows, survey_folder};
 
 use serde::Serialize;
 use wasm_bindgen::prelude::*;

@@ -270,6 +270,99 @@ pub fn read_trial_file(
     Ok(TrialFile { head, records })
 }
 
+/// Merges trial files of the same run (shards, or pieces of an interrupted run) given as
+/// `(name, text)` pairs: the first lines and column headers must agree; each file's cut-short
+/// last row is dropped; the result is the complete-file form ([`write_trial_file`]): every
+/// trial once, in order (indices beyond the planned count, the extra trials an adaptive run
+/// adds, are kept like the others). Works on the text alone (no estimators needed), so the rows come out
+/// byte for byte as written. Returns the text and the number of distinct trials.
+pub fn merge_trial_files(files: &[(&str, &str)]) -> Result<(String, u64), TrialFileError> {
+    let Some((first_name, first_text)) = files.first() else {
+        return Err(TrialFileError::NotATrialFile {
+            source_name: "(no files)".into(),
+            first_line: String::new(),
+        });
+    };
+    let head = read_head(first_text, first_name)?;
+    let mut header: Option<Vec<String>> = None;
+    let mut rows: Vec<(u64, String)> = Vec::new();
+    for (name, text) in files {
+        let this = read_head(text, name)?;
+        if this.fingerprint != head.fingerprint || this.n_trials != head.n_trials {
+            return Err(TrialFileError::OtherSettings {
+                source_name: name.to_string(),
+                found: format!("{} ({} trials)", this.fingerprint, this.n_trials),
+                expected: format!(
+                    "{} ({} trials) of `{first_name}`",
+                    head.fingerprint, head.n_trials
+                ),
+            });
+        }
+        let complete = match text.rfind('\n') {
+            Some(i) => &text[..=i],
+            None => "",
+        };
+        let csv_error = |e: csv::Error| TrialFileError::Csv {
+            source_name: name.to_string(),
+            line: e.position().map_or(0, |p| p.line()),
+            reason: e.to_string(),
+        };
+        let mut reader = csv::ReaderBuilder::new()
+            .comment(Some(b'#'))
+            .from_reader(complete.as_bytes());
+        let columns: Vec<String> = reader
+            .headers()
+            .map_err(csv_error)?
+            .iter()
+            .map(str::to_string)
+            .collect();
+        match &header {
+            None => header = Some(columns),
+            Some(h) if *h != columns => {
+                let column = h
+                    .iter()
+                    .zip(&columns)
+                    .position(|(a, b)| a != b)
+                    .unwrap_or(h.len().min(columns.len()));
+                return Err(TrialFileError::Columns {
+                    source_name: name.to_string(),
+                    column: column + 1,
+                    found: columns.get(column).cloned().unwrap_or_default(),
+                    expected: h.get(column).cloned().unwrap_or_default(),
+                });
+            }
+            Some(_) => {}
+        }
+        for row in reader.records() {
+            let row = row.map_err(csv_error)?;
+            let line = row.position().map_or(0, |p| p.line());
+            let field = row.get(0).unwrap_or("");
+            let trial = field
+                .trim()
+                .parse::<u64>()
+                .map_err(|_| TrialFileError::Row {
+                    source_name: name.to_string(),
+                    error: InjectError::CsvRow {
+                        line,
+                        column: "trial".into(),
+                        value: field.to_string(),
+                        reason: "not a whole number".into(),
+                    },
+                })?;
+            let fields: Vec<String> = row.iter().map(str::to_string).collect();
+            rows.push((trial, csv_line(&fields)));
+        }
+    }
+    rows.sort_by_key(|r| r.0);
+    rows.dedup_by_key(|r| r.0);
+    let mut out = first_line(&head.fingerprint, head.n_trials);
+    out.push_str(&csv_line(&header.unwrap_or_default()));
+    for (_, line) in &rows {
+        out.push_str(line);
+    }
+    Ok((out, rows.len() as u64))
+}
+
 /// Header of the trial CSV for these estimators.
 pub fn csv_header(estimators: &[&dyn Estimator]) -> Vec<String> {
     let mut header: Vec<String> = [
@@ -523,6 +616,26 @@ mod tests {
             write_trial_file("00aa", 6, &estimators, &partial.records),
             write_trial_file("00aa", 6, &estimators, &records[..5])
         );
+
+        // Shards (interleaved, one cut short, one repeating a trial) merge into the whole file.
+        let shard = |k: u64| -> String {
+            let mut text = file_start("00aa", 6, &estimators);
+            for r in records.iter().filter(|r| r.trial % 3 == k) {
+                text.push_str(&row_line(r, &estimators));
+            }
+            text
+        };
+        let (s0, s1, mut s2) = (shard(0), shard(1), shard(2));
+        s2.push_str(&row_line(&records[0], &estimators));
+        s2.push_str("5,0,0.4");
+        let (merged, n) = merge_trial_files(&[("s2", &s2), ("s0", &s0), ("s1", &s1)]).unwrap();
+        assert_eq!(n, 6);
+        assert_eq!(merged, whole);
+        let other = shard(1).replace("00aa", "00bb");
+        let err = merge_trial_files(&[("s0", &s0), ("s1", &other)])
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("`s1`") && err.contains("00bb"), "{err}");
 
         let err = read_trial_file(&whole, "t.csv", &estimators, Some("00bb"))
             .unwrap_err()

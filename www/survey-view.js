@@ -1,0 +1,221 @@
+// eccaudit page: surveys — the full audit of several tables at once (dropped files or a folder),
+// with the injection–recovery settings of the page, and the catalogue (DOM and workers only;
+// every number and every byte of the catalogue comes from the wasm core).
+//
+// Tables run one after another; each table's trials go to a pool of audit workers
+// (audit-worker.js, one per core) in small chunks, exactly as a single audit does. Table i of n
+// (sorted by name) gets the folder name `eccaudit survey` would give it, so the catalogue's CSV
+// and JSON are the bytes the command line writes for a manifest listing the same files in order.
+import { AuditRun, catalogueCsv, catalogueJson, surveyErrorRows, surveyFolder } from "./pkg/eccaudit_web.js";
+import { downloadText } from "./exports.js";
+
+const $ = (id) => document.getElementById(id);
+const messageOf = (err) => (err instanceof Error ? err.message : String(err));
+const tick = () => new Promise((resolve) => setTimeout(resolve, 0));
+const fixed = (v, digits) => (v === null || v === undefined || !Number.isFinite(v) ? "–" : v.toFixed(digits));
+/** Most tables one survey takes in the page (a bound on what a dropped folder allocates). */
+const MAX_TABLES = 2000;
+/** Files that look like velocity tables. */
+const TABLE_FILE = /\.(csv|tsv|txt|dat|rdb)$/i;
+
+/**
+ * Wire the "Survey" section. `settingsFor(table)` returns the audit settings (JSON) of the
+ * page's injection–recovery form completed for `table` ({text, name, velocityUnit,
+ * timeConvention}); `el` builds DOM nodes from text.
+ */
+export function wireSurvey({ settingsFor, el }) {
+  let tables = [];   // [{name, text}], sorted by name
+  let job = null;    // the survey in progress
+  let rows = null;   // catalogue rows of the last finished survey
+  const setState = (s) => { document.body.dataset.surveyState = s; };
+  setState("idle");
+
+  function showError(message) {
+    $("survey-error").textContent = message;
+    $("survey-error").hidden = !message;
+  }
+
+  async function choose(fileList) {
+    showError("");
+    const files = [...fileList].filter((f) => TABLE_FILE.test(f.name));
+    if (files.length > MAX_TABLES) {
+      showError(`${files.length} files: a survey in the page takes at most ${MAX_TABLES} tables (use eccaudit survey)`);
+      return;
+    }
+    const read = await Promise.all(files.map(async (f) => ({ name: f.webkitRelativePath || f.name, text: await f.text() })));
+    read.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
+    tables = read;
+    $("survey-chosen").textContent = tables.length === 0
+      ? "No velocity tables among the files (.csv, .tsv, .txt, .dat, .rdb)."
+      : `${tables.length} table${tables.length === 1 ? "" : "s"}: ${tables.map((t) => t.name).join(", ")}`;
+    $("survey-run").disabled = tables.length === 0 || job !== null;
+  }
+
+  function setRunning(running) {
+    $("survey-run").disabled = running || tables.length === 0;
+    $("survey-cancel").disabled = !running;
+    $("survey-progress-box").hidden = !running;
+  }
+
+  function progress(tableIndex, nTables, done, total) {
+    $("survey-progress").max = Math.max(1, nTables);
+    $("survey-progress").value = tableIndex;
+    $("survey-progress-text").textContent =
+      `table ${Math.min(tableIndex + 1, nTables)} of ${nTables}` + (total > 0 ? ` · ${done} / ${total} trials` : "");
+  }
+
+  function renderCatalogue(list) {
+    const heads = ["table", "status", "P [d]", "K [m/s]", "least-squares e", "estimator", "e", "bias",
+      "calibrated 95% set of e", "circular excluded (p)", "flags or error"];
+    const body = list.map((r) => {
+      const set = r.e_low95 === null ? (r.e_open_above ? "above the grid" : "–")
+        : `${fixed(r.e_low95, 2)}–${fixed(r.e_high95, 2)}${r.e_open_above ? "+" : ""}`;
+      const circular = r.circular_excluded === null ? "–"
+        : `${r.circular_excluded ? "yes" : "no"} (${r.circular_p === null ? "–" : r.circular_p.toPrecision(2)})`;
+      return el("tr", { "data-status": r.status },
+        el("td", {}, r.table), el("td", {}, r.status), el("td", {}, fixed(r.period, 4)),
+        el("td", {}, fixed(r.semi_amplitude, 2)), el("td", {}, fixed(r.lsq_e, 3)), el("td", {}, r.estimator ?? "–"),
+        el("td", {}, fixed(r.e, 3)),
+        el("td", {}, r.bias === null ? "–" : `${fixed(r.bias, 3)} ± ${fixed(r.bias_error, 3)}`),
+        el("td", {}, set), el("td", {}, circular),
+        el("td", {}, r.error ?? r.flags.join(", ")));
+    });
+    $("survey-catalogue").replaceChildren(el("thead", {}, el("tr", {}, ...heads.map((h) => el("th", {}, h)))),
+      el("tbody", {}, ...body));
+    $("survey-results").hidden = list.length === 0;
+  }
+
+  function stopWorkers(j) {
+    for (const w of j.workers) w.terminate();
+    j.workers = [];
+  }
+
+  /** Runs every trial of one table on the worker pool; resolves with the rows. */
+  function runTrials(j, table, settingsJson, total) {
+    return new Promise((resolve, reject) => {
+      const chunk = Math.max(1, Math.min(4, Math.ceil(total / (j.workers.length * 16))));
+      let next = 0;
+      let done = 0;
+      const trialRows = [];
+      const feed = (worker) => {
+        if (next >= total) return;
+        const start = next;
+        next = Math.min(total, start + chunk);
+        worker.postMessage({ type: "run", start, end: next });
+      };
+      j.fail = reject;
+      for (const worker of j.workers) {
+        worker.onmessage = (event) => {
+          if (job !== j) return;
+          const msg = event.data;
+          if (msg.type === "ready") feed(worker);
+          else if (msg.type === "rows") {
+            for (const row of msg.rows) trialRows.push(row);
+            done += msg.rows.length;
+            progress(j.tableIndex, j.nTables, done, total);
+            if (done >= total) resolve(trialRows);
+            else feed(worker);
+          } else if (msg.type === "error") reject(new Error(msg.message));
+        };
+        worker.postMessage({ type: "init", text: table.text, name: table.name, settings: settingsJson });
+      }
+    });
+  }
+
+  async function start() {
+    if (job || tables.length === 0) return;
+    showError("");
+    const list = tables;
+    const n = list.length;
+    const nWorkers = Math.max(1, navigator.hardwareConcurrency || 1);
+    const j = { workers: [], nTables: n, tableIndex: 0, fail: null, startedAt: performance.now() };
+    job = j;
+    rows = null;
+    renderCatalogue([]);
+    setState("running");
+    setRunning(true);
+    for (let i = 0; i < nWorkers; i++) {
+      const worker = new Worker(new URL("./audit-worker.js", import.meta.url), { type: "module", name: `survey-${i}` });
+      worker.onerror = (event) => {
+        event.preventDefault();
+        if (job === j && j.fail) j.fail(new Error(`a worker stopped: ${event.message || "it could not start"}`));
+      };
+      j.workers.push(worker);
+    }
+    const collected = [];
+    for (let i = 0; i < n; i++) {
+      if (job !== j) return;
+      j.tableIndex = i;
+      const table = list[i];
+      const folder = surveyFolder(i, n, table.name);
+      $("survey-status").textContent = `Fitting ${table.name}…`;
+      progress(i, n, 0, 0);
+      await tick();
+      let run = null;
+      try {
+        const settingsJson = settingsFor({ text: table.text, name: table.name, velocityUnit: "", timeConvention: "" });
+        run = new AuditRun(table.text, table.name, settingsJson);
+        const total = run.nTrials;
+        $("survey-status").textContent = `Auditing ${table.name} (${total} trials on ${nWorkers} worker${nWorkers === 1 ? "" : "s"})…`;
+        const trialRows = await runTrials(j, table, settingsJson, total);
+        if (job !== j) { run.free(); return; }
+        run.finish(trialRows);
+        collected.push(...JSON.parse(run.catalogueRows(table.name, folder)));
+      } catch (err) {
+        if (job !== j) { run?.free(); return; }
+        collected.push(...JSON.parse(surveyErrorRows(table.name, folder, messageOf(err))));
+      }
+      run?.free();
+      renderCatalogue(collected);
+    }
+    stopWorkers(j);
+    job = null;
+    rows = collected;
+    const seconds = (performance.now() - j.startedAt) / 1000;
+    const failed = collected.filter((r) => r.status === "error").length;
+    $("survey-status").textContent =
+      `Done: ${n - failed} of ${n} tables audited in ${seconds.toFixed(1)} s` + (failed ? `; ${failed} could not be audited (see the table)` : "") + ".";
+    setState("done");
+    setRunning(false);
+  }
+
+  function cancel() {
+    if (!job) return;
+    const j = job;
+    job = null;
+    stopWorkers(j);
+    $("survey-status").textContent = `Cancelled after ${j.tableIndex} of ${j.nTables} tables; nothing was kept.`;
+    renderCatalogue([]);
+    setState("cancelled");
+    setRunning(false);
+  }
+
+  const zone = $("survey-drop");
+  for (const name of ["dragenter", "dragover"]) {
+    zone.addEventListener(name, (ev) => { ev.preventDefault(); zone.classList.add("dragging"); });
+  }
+  for (const name of ["dragleave", "drop"]) {
+    zone.addEventListener(name, () => zone.classList.remove("dragging"));
+  }
+  zone.addEventListener("drop", (ev) => {
+    ev.preventDefault();
+    choose(ev.dataTransfer.files);
+  });
+  zone.addEventListener("keydown", (ev) => {
+    if (ev.key === "Enter" || ev.key === " ") { ev.preventDefault(); $("survey-files").click(); }
+  });
+  for (const id of ["survey-files", "survey-folder"]) {
+    $(id).addEventListener("change", async (ev) => {
+      await choose(ev.target.files);
+      ev.target.value = "";
+    });
+  }
+  $("survey-run").addEventListener("click", () => { start(); });
+  $("survey-cancel").addEventListener("click", cancel);
+  const exportCatalogue = (make, ext, type) => () => {
+    if (!rows) return;
+    downloadText(make(JSON.stringify(rows)), `eccaudit-catalogue.${ext}`, type);
+  };
+  $("survey-download-csv").addEventListener("click", exportCatalogue(catalogueCsv, "csv", "text/csv"));
+  $("survey-download-json").addEventListener("click", exportCatalogue(catalogueJson, "json", "application/json"));
+}
