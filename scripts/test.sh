@@ -5,7 +5,8 @@
 #   1. native: unit, reference-value, property and CLI tests (cargo test), then the core's
 #      tests again with debug assertions and overflow checks (profile `checked`);
 #   2. wasm: build the adapter, run its tests in headless Chromium;
-#   3. page: drive the built page in headless Chromium (tests/browser).
+#   3. page: drive the built page in headless Chromium (tests/browser);
+#   4. Python: build the eccaudit package (PyO3 + maturin) and run its pytest suite.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash scripts/setup.sh
@@ -37,3 +38,6 @@ echo "== wasm tests in headless Chromium"
 
 echo "== page tests in headless Chromium"
 (cd tests/browser && node --test --test-concurrency=1 --test-reporter=spec)
+
+echo "== Python package (maturin) and its pytest suite"
+bash scripts/test-python.sh

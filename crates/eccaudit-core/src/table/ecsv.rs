@@ -560,7 +560,13 @@ pub fn write_table_ecsv(table: &VelocityTable) -> String {
     let convention = table.time_convention();
     let time_column = time_column_for(&convention);
     let columns = vec![
-        EcsvColumn::float(&time_column.name, Some("d"), "", table.times()),
+        // An astropy Time column carries its format and scale in the metadata, not a unit.
+        EcsvColumn::float(
+            &time_column.name,
+            time_column.serialized.is_none().then_some("d"),
+            "",
+            table.times(),
+        ),
         EcsvColumn::float("rv", Some("m / s"), "radial velocity", table.velocities()),
         EcsvColumn::float(
             "uncertainty",

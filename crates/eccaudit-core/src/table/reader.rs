@@ -448,7 +448,10 @@ fn resolve_time_convention(
         }
         (None, Some(given)) => TimeConvention::stated(given, StatedBy::Explicit),
         (Some(header), None) => TimeConvention::stated(header, StatedBy::Header),
-        (None, None) => return Ok(infer_time_convention(rows, notices)),
+        (None, None) => {
+            let times: Vec<f64> = rows.iter().map(|row| row.time).collect();
+            return Ok(infer_time_convention(&times, notices));
+        }
     };
     let n_full = rows
         .iter()
@@ -476,12 +479,15 @@ fn resolve_time_convention(
     Ok(convention)
 }
 
-fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvention {
-    let n_full = rows
+/// The time convention of times whose convention nobody stated: full Julian dates of unstated
+/// scale when all are at or above [`FULL_JULIAN_DATE_THRESHOLD`], else days from an unknown
+/// origin; `notices` says which and why.
+pub fn infer_time_convention(times: &[f64], notices: &mut Vec<String>) -> TimeConvention {
+    let n_full = times
         .iter()
-        .filter(|row| row.time >= FULL_JULIAN_DATE_THRESHOLD)
+        .filter(|&&time| time >= FULL_JULIAN_DATE_THRESHOLD)
         .count();
-    if n_full == rows.len() {
+    if n_full == times.len() {
         notices.push(
             "time convention not stated: all times are at or above 2400000, so they are taken as \
              full Julian dates of unstated scale (state it in the header, e.g. `bjd`, or with --time)"
@@ -497,7 +503,7 @@ fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvent
             format!(
                 "; {} of {} times are at or above 2400000 and the rest below, which suggests mixed conventions",
                 n_full,
-                rows.len()
+                times.len()
             )
         } else {
             String::new()
