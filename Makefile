@@ -7,7 +7,7 @@ PORT ?= 8765
 serve: wasm
 	node scripts/serve.mjs $(PORT)
 
-## Every test: native, wasm in headless Chromium, and the page.
+## Every test: native, wasm in headless Chromium, the page, and the Python package.
 test:
 	bash scripts/test.sh
 

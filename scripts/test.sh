@@ -6,7 +6,8 @@
 #      tests again with debug assertions and overflow checks (profile `checked`); then survey
 #      shards as a real Slurm job array on a one-node cluster (scripts/slurm/test-survey.sh);
 #   2. wasm: build the adapter, run its tests in headless Chromium;
-#   3. page: drive the built page in headless Chromium (tests/browser).
+#   3. page: drive the built page in headless Chromium (tests/browser);
+#   4. Python: build the eccaudit package (PyO3 + maturin) and run its pytest suite.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash scripts/setup.sh
@@ -41,3 +42,6 @@ echo "== wasm tests in headless Chromium"
 
 echo "== page tests in headless Chromium"
 (cd tests/browser && node --test --test-concurrency=1 --test-reporter=spec)
+
+echo "== Python package (maturin) and its pytest suite"
+bash scripts/test-python.sh

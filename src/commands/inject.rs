@@ -12,6 +12,7 @@ use super::model_args::ModelArgs;
 use anyhow::{bail, Context};
 use eccaudit_core::audit::{trial_model, PosteriorInjectionSettings};
 use eccaudit_core::fit::{FitData, FitOptions};
+use eccaudit_core::inject::trials_ecsv;
 use eccaudit_core::inject::{
     default_eccentricity_grid, run_trial, settings_fingerprint, summarise, trial_file, Estimator,
     InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings, Sampling,
@@ -392,6 +393,11 @@ pub fn run_design_with(
     let complete = records.len() as u64 == n_trials;
     // The final file holds every row in trial order, whatever order they finished in.
     write_csv_file(&csv_path, &fingerprint, n_trials, estimators, &records)?;
+    // The same trials as ECSV, which astropy reads with units.
+    let ecsv_path = run.out.join("trials.ecsv");
+    let meta = [("settings_fingerprint", fingerprint.clone())];
+    fs::write(&ecsv_path, trials_ecsv(&records, estimators, &meta))
+        .with_context(|| format!("cannot write `{}`", ecsv_path.display()))?;
     Ok((records, complete))
 }
 

@@ -17,6 +17,7 @@ pub mod posterior_estimator;
 pub mod statement;
 pub mod summary;
 pub mod trial_file;
+pub mod trials_ecsv;
 
 use thiserror::Error;
 
@@ -42,6 +43,7 @@ pub use trial_file::{
     csv_header, read_trial_file, record_from_csv_row, record_to_csv_row, write_trial_file,
     TrialFile, TrialFileError, TrialFileHead,
 };
+pub use trials_ecsv::trials_ecsv;
 
 // The Design message already prints the inner error, so it is not also reported as `source()`
 // (which would make a printed chain say it twice).

@@ -38,7 +38,11 @@ impl<'a> Field<'a> {
     ) -> Self {
         Field {
             source_name,
-            line: record.line,
+            line: record
+                .field_lines
+                .get(index)
+                .copied()
+                .unwrap_or(record.line),
             column: index + 1,
             column_name,
             text: &record.fields[index],

@@ -241,6 +241,33 @@ pub enum TableError {
         /// The lengths found.
         lengths: String,
     },
+    /// Text that breaks the syntax of its format (XML of a VOTable, YAML of an ECSV header).
+    #[error("{source_name}:{line}:{column}: not valid {format}: {message}")]
+    Syntax {
+        /// File name.
+        source_name: String,
+        /// Line of the problem (1-based).
+        line: usize,
+        /// Character column of the problem (1-based).
+        column: usize,
+        /// What the text should have been (`VOTable XML`, `ECSV header (YAML)`, ...).
+        format: String,
+        /// The parser's message.
+        message: String,
+    },
+    /// Well-formed text that uses something the reader does not support, or a header that
+    /// contradicts itself.
+    #[error("{source_name}:{line}:{column}: {message}")]
+    Unsupported {
+        /// File name.
+        source_name: String,
+        /// Line of the problem (1-based).
+        line: usize,
+        /// Character column of the problem (1-based).
+        column: usize,
+        /// What is wrong and what to do instead.
+        message: String,
+    },
     /// Text the CSV reader could not split into fields.
     #[error("{source_name}:{line}: cannot split the line into fields: {message}")]
     Malformed {

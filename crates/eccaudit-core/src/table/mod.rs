@@ -6,15 +6,19 @@
 //! uncertainties are stored in m/s.
 
 mod assemble;
+mod columns;
+pub mod ecsv;
 mod error;
 mod header;
 mod reader;
 mod summary;
 mod units;
+pub mod votable;
 mod writer;
 
+pub use ecsv::{write_ecsv, write_table_ecsv, EcsvColumn, EcsvValues};
 pub use error::TableError;
-pub use reader::{parse_table, Delimiter, ReadOptions};
+pub use reader::{infer_time_convention, parse_table, Delimiter, ReadOptions, TableFormat};
 pub use summary::{GroupSummary, TableSummary};
 pub use units::{OptionParseError, StatedBy, TimeConvention, TimeScale, TimeSpec, VelocityUnit};
 pub use writer::write_table_csv;

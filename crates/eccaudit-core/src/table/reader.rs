@@ -70,16 +70,16 @@ impl ReadOptions {
 }
 
 /// Where each kind of column sits (0-based field index) and what it is called.
-struct Layout {
+pub(super) struct Layout {
     /// Line of the header, or of the first data row for headerless tables.
-    reference_line: usize,
+    pub(super) reference_line: usize,
     /// Line of the header, if any.
-    header_line: Option<usize>,
-    n_fields: usize,
-    time: (usize, String, Option<TimeSpec>),
-    velocity: (usize, String, Option<VelocityUnit>),
-    uncertainty: (usize, String, Option<VelocityUnit>),
-    instrument: Option<usize>,
+    pub(super) header_line: Option<usize>,
+    pub(super) n_fields: usize,
+    pub(super) time: (usize, String, Option<TimeSpec>),
+    pub(super) velocity: (usize, String, Option<VelocityUnit>),
+    pub(super) uncertainty: (usize, String, Option<VelocityUnit>),
+    pub(super) instrument: Option<usize>,
 }
 
 fn is_comment_or_blank(line: &str) -> bool {
@@ -214,6 +214,9 @@ impl<'a> LineCounter<'a> {
 pub(super) struct Record {
     pub(super) line: usize,
     pub(super) fields: Vec<String>,
+    /// Line of each field, when fields of one record sit on different lines (VOTable);
+    /// empty when they all sit on `line`.
+    pub(super) field_lines: Vec<usize>,
 }
 
 pub(super) fn read_records(
@@ -257,7 +260,11 @@ pub(super) fn read_records(
         while fields.len() > 1 && fields.last().is_some_and(|field| field.is_empty()) {
             fields.pop();
         }
-        records.push(Record { line, fields });
+        records.push(Record {
+            line,
+            fields,
+            field_lines: Vec::new(),
+        });
     }
     Ok(records)
 }
@@ -441,7 +448,10 @@ fn resolve_time_convention(
         }
         (None, Some(given)) => TimeConvention::stated(given, StatedBy::Explicit),
         (Some(header), None) => TimeConvention::stated(header, StatedBy::Header),
-        (None, None) => return Ok(infer_time_convention(rows, notices)),
+        (None, None) => {
+            let times: Vec<f64> = rows.iter().map(|row| row.time).collect();
+            return Ok(infer_time_convention(&times, notices));
+        }
     };
     let n_full = rows
         .iter()
@@ -469,12 +479,15 @@ fn resolve_time_convention(
     Ok(convention)
 }
 
-fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvention {
-    let n_full = rows
+/// The time convention of times whose convention nobody stated: full Julian dates of unstated
+/// scale when all are at or above [`FULL_JULIAN_DATE_THRESHOLD`], else days from an unknown
+/// origin; `notices` says which and why.
+pub fn infer_time_convention(times: &[f64], notices: &mut Vec<String>) -> TimeConvention {
+    let n_full = times
         .iter()
-        .filter(|row| row.time >= FULL_JULIAN_DATE_THRESHOLD)
+        .filter(|&&time| time >= FULL_JULIAN_DATE_THRESHOLD)
         .count();
-    if n_full == rows.len() {
+    if n_full == times.len() {
         notices.push(
             "time convention not stated: all times are at or above 2400000, so they are taken as \
              full Julian dates of unstated scale (state it in the header, e.g. `bjd`, or with --time)"
@@ -490,7 +503,7 @@ fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvent
             format!(
                 "; {} of {} times are at or above 2400000 and the rest below, which suggests mixed conventions",
                 n_full,
-                rows.len()
+                times.len()
             )
         } else {
             String::new()
@@ -508,7 +521,13 @@ fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvent
 }
 
 /// Read a velocity table from text: CSV, TSV, semicolon- or
-/// whitespace-separated, with or without a header, `#` comment lines allowed.
+/// whitespace-separated, ECSV or VOTable, with or without a header, `#` comment lines allowed.
+///
+/// The format is recognised from the content, and from the extension of
+/// `options.source_name` when the content is ambiguous: text starting with
+/// `# %ECSV` is ECSV (see [`super::ecsv`]), text starting with `<?xml` or
+/// `<VOTABLE`, or a file named `*.xml`/`*.vot`, is a VOTable (see
+/// [`super::votable`]); anything else is delimited text.
 ///
 /// With a header, columns may come in any order and are recognised by name
 /// (`time`/`bjd`/`mjd`/..., `rv`/`velocity`/..., `err`/`sigma`/`e_rv`/...,
@@ -519,9 +538,52 @@ fn infer_time_convention(rows: &[Row], notices: &mut Vec<String>) -> TimeConvent
 /// convention is inferred from the magnitude of the times when not stated.
 /// Rows out of time order are sorted (stably), with a notice.
 pub fn parse_table(text: &str, options: &ReadOptions) -> Result<VelocityTable, TableError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    match TableFormat::detect(text, &options.source_name) {
+        TableFormat::Ecsv => super::ecsv::parse_ecsv(text, options),
+        TableFormat::VoTable => super::votable::parse_votable(text, options),
+        TableFormat::Delimited => parse_delimited(text, options),
+    }
+}
+
+/// The file formats [`parse_table`] reads.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TableFormat {
+    /// CSV, TSV, semicolon- or whitespace-separated text.
+    Delimited,
+    /// astropy's Enhanced Character Separated Values (APE 6).
+    Ecsv,
+    /// IVOA VOTable (XML), TABLEDATA serialisation.
+    VoTable,
+}
+
+impl TableFormat {
+    /// The format of `text`, from its first line, or from the extension of `source_name`
+    /// when the first line says nothing.
+    pub fn detect(text: &str, source_name: &str) -> TableFormat {
+        let start = text.trim_start();
+        let lower_name = source_name.to_ascii_lowercase();
+        if start.starts_with("# %ECSV") {
+            TableFormat::Ecsv
+        } else if start.starts_with("<?xml")
+            || start.starts_with("<VOTABLE")
+            || lower_name.ends_with(".vot")
+            || lower_name.ends_with(".xml")
+        {
+            TableFormat::VoTable
+        } else if lower_name.ends_with(".ecsv") {
+            TableFormat::Ecsv
+        } else {
+            TableFormat::Delimited
+        }
+    }
+}
+
+/// [`parse_table`] for delimited text (CSV, TSV, semicolon- or whitespace-separated).
+fn parse_delimited(text: &str, options: &ReadOptions) -> Result<VelocityTable, TableError> {
     let source_name = crate::one_line(&options.source_name);
     let source_name = source_name.as_str();
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let delimiter = options.delimiter.unwrap_or_else(|| detect_delimiter(text));
     let records = read_records(text, delimiter, source_name)?;
     let Some(first) = records.first() else {
@@ -543,9 +605,20 @@ pub fn parse_table(text: &str, options: &ReadOptions) -> Result<VelocityTable, T
             what: format!("a header on line {}", first.line),
         });
     }
-    let mut notices = Vec::new();
+    table_from_records(&layout, data, options, Vec::new())
+}
+
+/// Check and convert the data records of any format once its [`Layout`] is known: fields,
+/// units, time convention, blank instruments, then [`assemble`].
+pub(super) fn table_from_records(
+    layout: &Layout,
+    data: &[Record],
+    options: &ReadOptions,
+    mut notices: Vec<String>,
+) -> Result<VelocityTable, TableError> {
+    let source_name = options.source_name.as_str();
     let (velocity_unit, uncertainty_unit, unit_stated_by) =
-        resolve_units(&layout, options.velocity_unit, source_name, &mut notices)?;
+        resolve_units(layout, options.velocity_unit, source_name, &mut notices)?;
     let mut rows = Vec::with_capacity(data.len());
     for record in data {
         if record.fields.len() != layout.n_fields {
@@ -585,7 +658,7 @@ pub fn parse_table(text: &str, options: &ReadOptions) -> Result<VelocityTable, T
         });
     }
     let time_convention =
-        resolve_time_convention(&layout, options.time, &rows, source_name, &mut notices)?;
+        resolve_time_convention(layout, options.time, &rows, source_name, &mut notices)?;
     name_blank_instruments(&mut rows, &mut notices);
     assemble(
         source_name,

@@ -5,7 +5,7 @@ use super::parse_table;
 use super::{TimeConvention, TimeScale, VelocityTable};
 
 /// Header cell naming a time convention so that [`parse_table`] reads it back.
-fn time_header(convention: &TimeConvention) -> String {
+pub(super) fn time_header(convention: &TimeConvention) -> String {
     let Some(offset) = convention.offset_days else {
         return "time".to_string();
     };
