@@ -20,12 +20,13 @@ use rayon::prelude::*;
 
 use eccaudit_core::audit::{data_fingerprint, AuditPlan, AuditSettings, DataIdentity};
 use eccaudit_core::fit::figures::{phase_fold, search_periodogram};
-use eccaudit_core::fit::{fit_orbit, FitData};
+use eccaudit_core::fit::FitData;
 use eccaudit_core::inject::{
     csv_header, record_to_csv_row, run_trial, summarise, Estimator, InjectionDesign,
     InjectionSummary, Sampling, TrialRecord,
 };
 use eccaudit_core::posterior::{assemble_sensitivity_report, sensitivity_run, sensitivity_start};
+use eccaudit_core::spec::fit_model;
 use eccaudit_core::table::{
     infer_time_convention, parse_table, write_table_ecsv, Delimiter, ReadOptions, StatedBy,
     TableError as CoreTableError, TimeConvention, TimeSpec, VelocityTable, VelocityUnit,
@@ -263,17 +264,20 @@ fn table_from_columns(
     })
 }
 
-/// Least-squares fit. `options_json`: the `fit` settings (see `eccaudit.fit`). Returns the
-/// report JSON (as `eccaudit fit --json`) and the figure data JSON.
+/// Least-squares fit of the model (`fit_model`: jitter decision, goodness of fit, detections).
+/// `options_json`: the `fit` settings (see `eccaudit.fit`). Returns the report JSON (as
+/// `eccaudit fit --json`) and the figure data JSON.
 #[pyfunction]
 fn fit(py: Python<'_>, table: &Table, options_json: &str) -> PyResult<(String, String)> {
     let request: FitRequest = serde_json::from_str(options_json).map_err(value_error)?;
     let data = FitData::from_table(&table.inner);
-    let options = request.options(data.times()).map_err(value_error)?;
+    let (model, base) = request.model().map_err(value_error)?;
     let label = table.inner.time_convention().label();
     py.detach(|| -> PyResult<(String, String)> {
-        let report = fit_orbit(&data, &options).map_err(value_error)?;
+        let fit = fit_model(&data, &model, &base).map_err(value_error)?;
+        let options = model.fit_options(fit.jitter.fitted, &base);
         let periodogram = search_periodogram(&data, &options).ok();
+        let report = &fit.report;
         let solution = report.adopted_solution();
         let folds: Vec<_> = (1..=solution.companions.len())
             .filter_map(|c| phase_fold(&data, solution, report.reference_time, c, 600).ok())
@@ -284,7 +288,7 @@ fn fit(py: Python<'_>, table: &Table, options_json: &str) -> PyResult<(String, S
             "phase_folds": folds,
             "reference_time": report.reference_time,
         });
-        Ok((json(&report)?, figures.to_string()))
+        Ok((json(&fit)?, figures.to_string()))
     })
 }
 
@@ -354,7 +358,7 @@ fn inject(
     let result = run_with_progress(py, threads, progress, |control| {
         let sampling = Sampling::from_table(inner);
         let design = request.design(inner, sampling)?;
-        let (lsq, posteriors) = request.estimators()?;
+        let (lsq, posteriors) = request.estimators(&design)?;
         let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
             .chain(posteriors.iter().map(|p| p as &dyn Estimator))
             .collect();
@@ -446,6 +450,12 @@ fn priors<'py>(
         serde_json::from_str(request_json).map_err(value_error)?;
     let settings = request.to_settings().map_err(value_error)?;
     let data = FitData::from_table(&table.inner);
+    // The model's checks (chi2 test, jitter decision, false-alarm probabilities), as
+    // `eccaudit priors --json` reports them beside the runs.
+    let model = request.model.validate().map_err(value_error)?;
+    let check = fit_model(&data, &model, &settings.fit)
+        .map_err(value_error)?
+        .check();
     let report = run_with_progress(py, threads, progress, |control| {
         let start = sensitivity_start(&data, &settings).map_err(|e| e.to_string())?;
         let n = settings.priors.len();
@@ -506,7 +516,14 @@ fn priors<'py>(
             "title": p.title, "e": p.e, "posterior": p.posterior, "prior": p.prior, "median": p.median,
         })).collect::<Vec<_>>(),
     });
-    Ok((json(&report)?, chains, figure_json.to_string()))
+    let mut value = serde_json::to_value(&report).map_err(value_error)?;
+    if let Some(object) = value.as_object_mut() {
+        object.insert(
+            "model_check".into(),
+            serde_json::to_value(&check).map_err(value_error)?,
+        );
+    }
+    Ok((value.to_string(), chains, figure_json.to_string()))
 }
 
 /// The default audit settings as JSON (a replay file with every field).

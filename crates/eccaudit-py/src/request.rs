@@ -1,93 +1,98 @@
-//! Keyword settings of `fit` and `inject`: the command line's flags as serde structs (the audit
-//! and the priors use the core's own settings types directly).
+//! Keyword settings of `fit` and `inject`: the command line's flags as serde structs, turned
+//! into the core's `ModelSpec` and options as the command line does (the audit and the priors
+//! use the core's own settings types directly).
 
 use serde::Deserialize;
 
-use eccaudit_core::audit::PosteriorInjectionSettings;
-use eccaudit_core::fit::FitOptions;
+use eccaudit_core::audit::{trial_model, PosteriorInjectionSettings};
+use eccaudit_core::fit::{FitData, FitOptions};
 use eccaudit_core::inject::{
     default_eccentricity_grid, InjectionDesign, LeastSquaresEstimator, LeastSquaresSettings,
-    PosteriorEstimator, Sampling, TrialPeriod,
+    PosteriorEstimator, Sampling, TrialModel, TrialPeriod,
 };
-use eccaudit_core::periodogram::FrequencyLimits;
+use eccaudit_core::spec::{fit_model, JitterMode, Model, ModelSpec};
 use eccaudit_core::table::VelocityTable;
 
-/// The settings of `eccaudit fit` (same names and defaults as its flags).
+/// The model flags every fitting command shares (`--companions --period --trend --jitter
+/// --min-period --max-period --max-fap`), as the core's [`ModelSpec`].
+fn model_spec(
+    companions: usize,
+    periods: &[f64],
+    trend: bool,
+    jitter: JitterMode,
+    (min_period, max_period, max_fap): (f64, Option<f64>, f64),
+    audit_companion: Option<usize>,
+) -> ModelSpec {
+    ModelSpec {
+        companions,
+        periods: periods.to_vec(),
+        trend,
+        jitter,
+        min_period,
+        max_period,
+        max_fap,
+        audit_companion,
+    }
+}
+
+/// The settings of `eccaudit fit` (same names and defaults as its flags; `periods` is the
+/// repeated `--period`, `jitter` is `"auto"`, `"fit"` or `"off"`).
 #[derive(Debug, Clone, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct FitRequest {
     companions: usize,
-    min_period: Option<f64>,
-    max_period: Option<f64>,
     periods: Vec<f64>,
+    trend: bool,
+    jitter: JitterMode,
+    min_period: f64,
+    max_period: Option<f64>,
+    max_fap: f64,
     peaks: usize,
     random_starts: usize,
     seed: u64,
-    trend: bool,
-    jitter: bool,
-    max_fap: f64,
     stellar_mass: Option<f64>,
 }
 
 impl Default for FitRequest {
     fn default() -> Self {
+        let spec = ModelSpec::DEFAULT;
         FitRequest {
-            companions: 1,
-            min_period: None,
-            max_period: None,
+            companions: spec.companions,
             periods: Vec::new(),
+            trend: spec.trend,
+            jitter: spec.jitter,
+            min_period: spec.min_period,
+            max_period: spec.max_period,
+            max_fap: spec.max_fap,
             peaks: 3,
             random_starts: 0,
             seed: 1,
-            trend: false,
-            jitter: false,
-            max_fap: 0.01,
             stellar_mass: None,
         }
     }
 }
 
 impl FitRequest {
-    /// The fit options, checked as the command line checks its flags.
-    pub fn options(&self, times: &[f64]) -> Result<FitOptions, String> {
-        if self.companions == 0 {
-            return Err("companions must be at least 1".into());
-        }
-        if self.periods.len() > self.companions {
-            return Err(format!(
-                "{} periods given for {} companion(s)",
-                self.periods.len(),
-                self.companions
-            ));
-        }
-        let mut options = FitOptions {
-            n_companions: self.companions,
-            trend: self.trend,
-            initial_periods: self.periods.clone(),
+    /// The validated model and the base fit options, as `eccaudit fit` builds them.
+    pub fn model(&self) -> Result<(Model, FitOptions), String> {
+        let model = model_spec(
+            self.companions,
+            &self.periods,
+            self.trend,
+            self.jitter,
+            (self.min_period, self.max_period, self.max_fap),
+            None,
+        )
+        .validate()
+        .map_err(|e| e.to_string())?;
+        let base = FitOptions {
             n_peaks: self.peaks,
             n_random_starts: self.random_starts,
             seed: self.seed,
-            max_false_alarm_probability: self.max_fap,
-            jitter: self.jitter,
             stellar_mass: self.stellar_mass,
             ..FitOptions::default()
         };
-        if self.min_period.is_some() || self.max_period.is_some() {
-            let baseline = times.iter().copied().fold(f64::NEG_INFINITY, f64::max)
-                - times.iter().copied().fold(f64::INFINITY, f64::min);
-            let min_period = self.min_period.unwrap_or(1.0);
-            let max_period = self.max_period.unwrap_or(baseline);
-            if !(min_period > 0.0 && max_period > min_period) {
-                return Err(format!(
-                    "period range [{min_period}, {max_period}] d: need 0 < min_period < max_period"
-                ));
-            }
-            options.limits = FrequencyLimits::PeriodRange {
-                min_period,
-                max_period,
-            };
-        }
-        Ok(options)
+        Ok((model, base))
     }
 }
 
@@ -95,12 +100,18 @@ impl FitRequest {
 #[derive(Debug, Clone, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct InjectRequest {
-    period: Option<f64>,
+    companions: usize,
+    periods: Vec<f64>,
+    trend: bool,
+    jitter: JitterMode,
+    min_period: f64,
+    max_period: Option<f64>,
+    max_fap: f64,
     k: Vec<f64>,
     k_over_sigma: Vec<f64>,
     e: Vec<f64>,
     omega_deg: Vec<f64>,
-    jitter: f64,
+    added_noise: f64,
     trials: usize,
     seed: u64,
     period_search: bool,
@@ -117,13 +128,20 @@ pub struct InjectRequest {
 
 impl Default for InjectRequest {
     fn default() -> Self {
+        let spec = ModelSpec::DEFAULT;
         InjectRequest {
-            period: None,
+            companions: spec.companions,
+            periods: Vec::new(),
+            trend: spec.trend,
+            jitter: spec.jitter,
+            min_period: spec.min_period,
+            max_period: spec.max_period,
+            max_fap: spec.max_fap,
             k: Vec::new(),
             k_over_sigma: Vec::new(),
             e: Vec::new(),
             omega_deg: Vec::new(),
-            jitter: 0.0,
+            added_noise: 0.0,
             trials: 200,
             seed: 1,
             period_search: false,
@@ -139,8 +157,8 @@ impl Default for InjectRequest {
 }
 
 impl InjectRequest {
-    /// The design, as `eccaudit inject FILE` builds it: period and K fitted to the table when
-    /// not given (default least-squares fit).
+    /// The design, as `eccaudit inject FILE` builds it: the model fitted to the table (audited
+    /// companion first), its period, and its K unless `k` or `k_over_sigma` is given.
     pub fn design(
         &self,
         table: &VelocityTable,
@@ -149,20 +167,28 @@ impl InjectRequest {
         if !self.k.is_empty() && !self.k_over_sigma.is_empty() {
             return Err("give k or k_over_sigma, not both".into());
         }
-        let fitted = if self.period.is_none() || (self.k.is_empty() && self.k_over_sigma.is_empty())
-        {
-            let data = eccaudit_core::fit::FitData::from_table(table);
-            let report = eccaudit_core::fit::fit_orbit(&data, &FitOptions::default())
-                .map_err(|e| format!("fit of `{}`: {e}", table.source_name()))?;
-            let c = &report.eccentric.companions[0];
-            Some((c.period.value, c.semi_amplitude.value))
-        } else {
-            None
+        let model = model_spec(
+            self.companions,
+            &self.periods,
+            self.trend,
+            self.jitter,
+            (self.min_period, self.max_period, self.max_fap),
+            Some(1),
+        )
+        .validate()
+        .map_err(|e| e.to_string())?;
+        let data = FitData::from_table(table);
+        let base = FitOptions {
+            seed: self.seed,
+            ..FitOptions::default()
         };
-        let period = self.period.or(fitted.map(|f| f.0)).ok_or("no period")?;
+        let fit = fit_model(&data, &model, &base)
+            .map_err(|e| format!("fit of `{}`: {e}", table.source_name()))?;
+        let trial = trial_model(&data, &fit, 0);
+        let companion = &fit.report.eccentric.companions[0];
         let mut design = InjectionDesign {
             sampling,
-            period,
+            period: companion.period.value,
             eccentricities: if self.e.is_empty() {
                 default_eccentricity_grid()
             } else {
@@ -170,25 +196,30 @@ impl InjectRequest {
             },
             semi_amplitudes: vec![1.0],
             omegas: self.omega_deg.iter().map(|d| d.to_radians()).collect(),
-            jitter: self.jitter,
+            jitter: self.added_noise,
             trials_per_cell: self.trials,
             seed: self.seed,
+            model: TrialModel::default(),
         };
         design.validate().map_err(|e| e.to_string())?;
+        design.model = trial;
         design.semi_amplitudes = if !self.k.is_empty() {
             self.k.clone()
         } else if !self.k_over_sigma.is_empty() {
             let unit = design.signal_to_noise(1.0);
             self.k_over_sigma.iter().map(|r| r / unit).collect()
         } else {
-            vec![fitted.map(|f| f.1).ok_or("no semi-amplitude")?]
+            vec![companion.semi_amplitude.value]
         };
         design.validate().map_err(|e| e.to_string())?;
         Ok(design)
     }
 
     /// The estimators, as the command line builds them from the same flags.
-    pub fn estimators(&self) -> Result<(LeastSquaresEstimator, Vec<PosteriorEstimator>), String> {
+    pub fn estimators(
+        &self,
+        design: &InjectionDesign,
+    ) -> Result<(LeastSquaresEstimator, Vec<PosteriorEstimator>), String> {
         let lsq = LeastSquaresEstimator {
             settings: LeastSquaresSettings {
                 period: if self.period_search {
@@ -211,7 +242,9 @@ impl InjectRequest {
             n_steps: self.posterior_steps,
             n_burn: self.posterior_burn,
         };
-        let posteriors = posterior.estimators(self.seed).map_err(|e| e.to_string())?;
+        let posteriors = posterior
+            .estimators_for(self.seed, design)
+            .map_err(|e| e.to_string())?;
         Ok((lsq, posteriors))
     }
 }

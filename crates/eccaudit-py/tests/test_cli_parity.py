@@ -17,9 +17,9 @@ def test_fit_equals_cli_json(cli, path):
 
 
 def test_fit_settings_map_onto_the_cli_flags(cli):
-    py = eccaudit.fit(VELKA, jitter=True, min_period=2, max_period=50, peaks=2, seed=4)
+    py = eccaudit.fit(VELKA, jitter="fit", min_period=2, max_period=50, peaks=2, seed=4)
     assert py.to_dict() == cli(
-        "fit", VELKA, "--json", "--jitter", "--min-period", "2", "--max-period", "50",
+        "fit", VELKA, "--json", "--jitter", "fit", "--min-period", "2", "--max-period", "50",
         "--peaks", "2", "--seed", "4",
     )
 

@@ -171,9 +171,10 @@ def _close(bar: Any) -> None:
 def fit(data: TableLike = None, **settings: Any) -> FitResult:
     """Least-squares Keplerian fit (as ``eccaudit fit``).
 
-    Settings (the command's flags): ``companions`` (1), ``min_period``, ``max_period`` [d],
-    ``periods`` (starting periods), ``peaks`` (3), ``random_starts`` (0), ``seed`` (1),
-    ``trend``, ``jitter``, ``max_fap`` (0.01), ``stellar_mass`` [solar masses]. Table keywords
+    Settings (the command's flags): the model, as the core's ``ModelSpec``: ``companions`` (1),
+    ``periods`` (the repeated ``--period``), ``trend``, ``jitter`` (``"auto"``, ``"fit"`` or
+    ``"off"``), ``min_period`` (1), ``max_period`` [d], ``max_fap`` (0.01); and ``peaks`` (3),
+    ``random_starts`` (0), ``seed`` (1), ``stellar_mass`` [solar masses]. Table keywords
     (``time``, ``rv``, ``err``, ``instrument``, ``velocity_unit``, ``time_convention``) go to
     :func:`eccaudit.table`.
     """
@@ -219,9 +220,10 @@ def inject(
     """Injection–recovery at the table's own epochs and uncertainties (as ``eccaudit inject
     FILE``).
 
-    Settings (the command's flags): ``period`` [d] and ``k`` (list, m/s) or ``k_over_sigma``
-    (fitted to the table when not given), ``e`` (injected eccentricities), ``omega_deg``,
-    ``jitter`` [m/s], ``trials`` (200 per cell), ``seed`` (1), ``period_search``, ``start_e``
+    Settings (the command's flags): the model fitted to the table (``companions``, ``periods``,
+    ``trend``, ``jitter``, ``min_period``, ``max_period``, ``max_fap``, as for :func:`fit`),
+    ``k`` (list, m/s) or ``k_over_sigma`` (default: the fitted K), ``e`` (injected
+    eccentricities), ``omega_deg``, ``added_noise`` [m/s], ``trials`` (200 per cell), ``seed`` (1), ``period_search``, ``start_e``
     ([0.1, 0.4]), ``omega_starts`` (4), ``lucy_sweeney`` (True), ``posterior`` (list of prior
     specs; default ``["uniform"]``, ``[]`` for least squares only), ``posterior_walkers`` (24),
     ``posterior_steps`` (600), ``posterior_burn`` (300).
