@@ -323,9 +323,8 @@ fn sample_through_plane(p: &EccentricityPrior, seed: u64) -> (Vec<f64>, Vec<f64>
         n_walkers: 1000,
         n_steps: 200,
         n_burn: 800,
-        thin: 1,
-        stretch_a: 2.0,
         seed,
+        ..SamplerSettings::default()
     };
     let chains = run_ensemble(
         &target,
