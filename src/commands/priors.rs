@@ -40,7 +40,7 @@ pub struct Args {
     #[arg(long, default_value_t = 1000)]
     pub steps: usize,
     /// Burn-in steps.
-    #[arg(long, default_value_t = 500)]
+    #[arg(long, default_value_t = 200)]
     pub burn: usize,
     /// Independent ensembles per prior (the convergence rule compares them; at least 2).
     #[arg(long, default_value_t = 4)]

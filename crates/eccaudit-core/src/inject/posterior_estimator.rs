@@ -138,14 +138,17 @@ impl Estimator for PosteriorEstimator {
         let other = |e: &dyn std::fmt::Display| {
             EstimatorError::Other(format!("posterior ({}): {e}", self.tag))
         };
-        let prior = self.prior.validate().map_err(|e| other(&e))?;
+        // A prior chosen by period (kipping2013auto) is resolved with the simulated period.
+        let resolved = self.prior.for_period(design.period);
+        let prior = resolved.validate().map_err(|e| other(&e))?;
+        let posterior_settings = self.posterior.with_eccentricity(resolved);
         let report = fit_orbit(
             data,
             &LeastSquaresEstimator::default().fit_options_for(design),
         )?;
         let start = start_from_fit(
             &report,
-            &self.posterior,
+            &posterior_settings,
             &prior,
             data.uncertainties(),
             data.n_instruments(),

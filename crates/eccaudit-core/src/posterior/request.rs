@@ -26,7 +26,7 @@ pub struct SensitivityRequest {
     /// Steps after burn-in before the first convergence check (default 1000); with
     /// `until_converged` the run then extends itself.
     pub steps: usize,
-    /// Burn-in steps (default 500).
+    /// Burn-in steps (default 200; walkers stranded far below the others at its end are moved).
     pub burn: usize,
     /// Independent ensembles (default 4; the convergence rule needs at least 2).
     pub ensembles: usize,
@@ -55,7 +55,7 @@ impl Default for SensitivityRequest {
             priors: Vec::new(),
             walkers: 16,
             steps: 1000,
-            burn: 500,
+            burn: 200,
             ensembles: 4,
             until_converged: true,
             max_evaluations: RunLength::default().max_evaluations,
@@ -145,7 +145,7 @@ mod tests {
         assert_eq!(settings.priors, default_prior_set());
         assert_eq!(settings.sampler.n_walkers, 16);
         assert_eq!(settings.sampler.n_steps, 1000);
-        assert_eq!(settings.sampler.n_burn, 500);
+        assert_eq!(settings.sampler.n_burn, 200);
         assert_eq!(settings.length.n_ensembles, 4);
         assert!(settings.length.until_converged);
         assert!(settings.posterior.jitter);

@@ -8,8 +8,8 @@ use serde::{Deserialize, Serialize};
 use crate::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use crate::priors::{EccentricityPriorSettings, EccentricityShape};
 use crate::sampler::{
-    diagnose_ensembles_at, diagnose_traces, run_until_converged, Chains, ConvergenceThresholds,
-    DiagnosisDepth, RunLength, RunProgress, SamplerError, SamplerSettings, Steer,
+    diagnose_ensembles_at, run_until_converged, Chains, ConvergenceThresholds, DiagnosisDepth,
+    RunLength, RunProgress, SamplerError, SamplerSettings, Steer,
 };
 
 use super::start::{ensemble_starts, start_from_fit, PosteriorStart};
@@ -206,20 +206,9 @@ fn run_posterior_judged(
     let refs: Vec<&Chains> = run.ensembles.iter().collect();
     let e_traces = e_traces_of(&refs);
     let diagnostics = &run.diagnostics;
-    let e_diagnostics = if every {
-        // The quoted figures of e get the full diagnosis (rank-normalised, bulk and tail ESS).
-        diagnose_traces(
-            &e_traces,
-            n_ensembles,
-            "e",
-            refs[0].thin,
-            &thresholds,
-            DiagnosisDepth::Full,
-        )
-        .0
-    } else {
-        diagnostics.parameters[diagnostics.parameters.len() - 1]
-    };
+    // The e entry of the last check: τ-based ESS (N/τ, Foreman-Mackey et al. 2013, §3) for the
+    // Monte-Carlo errors of the summary.
+    let e_diagnostics = diagnostics.parameters[diagnostics.parameters.len() - 1];
     let chains = run.merged();
     let cost = SamplerCost {
         n_walkers: chains.n_walkers,
@@ -401,9 +390,16 @@ pub fn sensitivity_start(
     {
         return Err(PosteriorError::CircularInSet);
     }
-    // Check every prior before spending time on the fit.
+    // Check every prior before spending time on the fit (a prior chosen by period with a
+    // period on either side of the split).
     for p in &settings.priors {
-        settings.posterior.with_eccentricity(*p).priors.validate()?;
+        for period in [1.0, 1.0e3] {
+            settings
+                .posterior
+                .with_eccentricity(p.for_period(period))
+                .priors
+                .validate()?;
+        }
     }
     let fit_options = FitOptions {
         n_companions: settings.posterior.n_companions,
@@ -439,7 +435,9 @@ pub fn sensitivity_run(
             index: prior_index,
             n_priors,
         })?;
-    let posterior = settings.posterior.with_eccentricity(*prior);
+    let posterior = settings
+        .posterior
+        .with_eccentricity(prior.for_period(start.least_squares.period));
     let effective = posterior.effective_eccentricity().validate()?;
     let walker_start = start_from_fit(
         &start.fit,

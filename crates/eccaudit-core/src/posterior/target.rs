@@ -185,6 +185,8 @@ pub struct RvPosterior<'a> {
     fixed_linear_term: f64,
     /// Marginalised: per-instrument sums (3 per instrument) and per-point weights.
     linear_scratch: RefCell<(Vec<f64>, Vec<f64>)>,
+    /// 1/Σ_{i∈j} σᵢ⁻² per instrument (offsets without jitter).
+    inverse_weight_sums: Vec<f64>,
 }
 
 impl<'a> RvPosterior<'a> {
@@ -228,6 +230,11 @@ impl<'a> RvPosterior<'a> {
             ln_turn: libm::log(TWO_PI),
         };
         let full = RefCell::new(vec![0.0; n_orbit_params]);
+        let mut weight_sums = vec![0.0; data.n_instruments()];
+        for (v, &j) in variances.iter().zip(data.instruments()) {
+            weight_sums[j] += 1.0 / v;
+        }
+        let inverse_weight_sums = weight_sums.iter().map(|s| 1.0 / s).collect();
         Ok(Self {
             problem,
             priors,
@@ -249,6 +256,7 @@ impl<'a> RvPosterior<'a> {
                 vec![0.0; 3 * data.n_instruments()],
                 vec![0.0; data.n_points()],
             )),
+            inverse_weight_sums,
         })
     }
 
@@ -462,13 +470,71 @@ impl<'a> RvPosterior<'a> {
             return f64::NEG_INFINITY;
         }
         let data = self.problem.data();
-        // The residuals overwrite the model velocities.
+        let mut scratch = self.linear_scratch.borrow_mut();
+        let (sums, weights) = &mut *scratch;
+        let n_inst = self.problem.layout().n_instruments;
+        let n_linear = self.n_orbit_params - self.n_sampled_orbit;
+        if self.problem.layout().trend_index().is_none() {
+            // Offsets only: N is diagonal, so one pass gives χ² and the per-instrument sums
+            // (Σ w, Σ w r) of the closed form (see [`Self::marginalised`]).
+            sums[..2 * n_inst].fill(0.0);
+            let (weight, rhs) = sums[..2 * n_inst].split_at_mut(n_inst);
+            let value = if self.jitter {
+                let jitters = &x[self.n_sampled_orbit..];
+                let (mut q, mut ln_var) = (0.0, 0.0);
+                for (((m, v), var), &inst) in model
+                    .iter()
+                    .zip(data.velocities())
+                    .zip(&self.variances)
+                    .zip(data.instruments())
+                {
+                    let s = jitters[inst];
+                    let total = var + s * s;
+                    let w = 1.0 / total;
+                    let r = v - m;
+                    let wr = w * r;
+                    q += wr * r;
+                    weight[inst] += w;
+                    rhs[inst] += wr;
+                    ln_var += libm::log(total);
+                }
+                let (mut quad, mut ln_det) = (0.0, 0.0);
+                for j in 0..n_inst {
+                    quad += rhs[j] * rhs[j] / weight[j];
+                    ln_det += libm::log(weight[j]);
+                }
+                -0.5 * (q - quad + ln_var + LN_TWO_PI * model.len() as f64) - 0.5 * ln_det
+                    + 0.5 * n_linear as f64 * LN_TWO_PI
+            } else {
+                let mut q = 0.0;
+                for (((m, v), w), &inst) in model
+                    .iter()
+                    .zip(data.velocities())
+                    .zip(&self.inverse_variances)
+                    .zip(data.instruments())
+                {
+                    let r = v - m;
+                    let wr = w * r;
+                    q += wr * r;
+                    rhs[inst] += wr;
+                }
+                let mut quad = 0.0;
+                for j in 0..n_inst {
+                    quad += rhs[j] * rhs[j] * self.inverse_weight_sums[j];
+                }
+                self.fixed_normalisation - 0.5 * (q - quad) + self.fixed_linear_term
+            };
+            return if value.is_finite() {
+                value
+            } else {
+                f64::NEG_INFINITY
+            };
+        }
+        // With a trend: the residuals overwrite the model velocities, then the arrow system.
         for (m, v) in model.iter_mut().zip(data.velocities()) {
             *m = v - *m;
         }
         let residuals: &[f64] = &model;
-        let mut scratch = self.linear_scratch.borrow_mut();
-        let (sums, weights) = &mut *scratch;
         let value = if self.jitter {
             let jitters = &x[self.n_sampled_orbit..];
             let mut q = 0.0;
@@ -486,7 +552,6 @@ impl<'a> RvPosterior<'a> {
                 ln_var += libm::log(total);
             }
             let (quad, ln_det) = self.normal_solution(weights, residuals, sums);
-            let n_linear = self.n_orbit_params - self.n_sampled_orbit;
             -0.5 * (q - quad + ln_var + LN_TWO_PI * residuals.len() as f64) - 0.5 * ln_det
                 + 0.5 * n_linear as f64 * LN_TWO_PI
         } else {

@@ -217,7 +217,13 @@ impl Diagnostics {
         let tau = self
             .parameters
             .iter()
-            .map(|p| p.autocorrelation.tau.max(p.tau_last_half))
+            .map(|p| {
+                if p.tau_last_half.is_nan() {
+                    p.autocorrelation.tau
+                } else {
+                    p.autocorrelation.tau.max(p.tau_last_half)
+                }
+            })
             .fold(f64::NAN, f64::max);
         tau * self.thin as f64
     }
@@ -373,6 +379,30 @@ pub fn diagnose_traces(
 ) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
     let n = common_length(traces);
     let autocorrelation = integrated_autocorrelation_time(traces);
+    let too_short = !autocorrelation.window_found
+        || !(n as f64 >= thresholds.min_autocorrelation_times * autocorrelation.tau);
+    if depth == DiagnosisDepth::Quick && too_short {
+        // The run must go on anyway: skip the rest of a quick check (the extension needs only τ).
+        let nan = f64::NAN;
+        let diagnostics = ParameterDiagnostics {
+            autocorrelation,
+            tau_last_half: nan,
+            autocorrelation_times_in_run: n as f64 / autocorrelation.tau,
+            r_hat: RHat {
+                bulk: nan,
+                tail: nan,
+                max: nan,
+            },
+            r_hat_walkers: nan,
+            ess_bulk: nan,
+            ess_tail: nan,
+        };
+        let issues = convergence_issues(subject, &diagnostics, 1, thin, thresholds)
+            .into_iter()
+            .filter(|i| i.kind == IssueKind::ShortRun)
+            .collect();
+        return (diagnostics, issues);
+    }
     let last_half: Vec<Vec<f64>> = traces.iter().map(|t| t[n - n / 2..n].to_vec()).collect();
     let tau_last_half = integrated_autocorrelation_time(&last_half).tau;
     let between = |full: bool| {
