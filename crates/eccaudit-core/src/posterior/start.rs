@@ -205,7 +205,7 @@ pub fn ensemble_starts(
     seed: u64,
 ) -> Result<Vec<Vec<f64>>, PosteriorError> {
     let layout = target.layout().clone();
-    let prior = target.eccentricity_prior().clone();
+    let prior = *target.eccentricity_prior();
     let mut out = Vec::with_capacity(n_ensembles);
     let mut full = vec![0.0; start.point.len()];
     for m in 0..n_ensembles {

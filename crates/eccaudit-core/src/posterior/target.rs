@@ -518,10 +518,11 @@ impl<'a> RvPosterior<'a> {
                     q += wr * r;
                     rhs[inst] += wr;
                 }
-                let mut quad = 0.0;
-                for j in 0..n_inst {
-                    quad += rhs[j] * rhs[j] * self.inverse_weight_sums[j];
-                }
+                let quad: f64 = rhs
+                    .iter()
+                    .zip(&self.inverse_weight_sums)
+                    .map(|(b, inv)| b * b * inv)
+                    .sum();
                 self.fixed_normalisation - 0.5 * (q - quad) + self.fixed_linear_term
             };
             return if value.is_finite() {
@@ -775,6 +776,7 @@ mod tests {
     /// widths come from the sampled likelihood itself (Newton on the quadratic), not from the
     /// code under test.
     #[test]
+    #[allow(clippy::needless_range_loop)] // index loops mirror the matrix formulas
     fn marginal_likelihood_equals_the_numerical_integral_over_offsets_and_trend() {
         let data = data();
         for jitter in [true, false] {

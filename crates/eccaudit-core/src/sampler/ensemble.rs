@@ -521,7 +521,12 @@ impl EnsembleState {
         sorted.sort_by(f64::total_cmp);
         let median = sorted[n / 2];
         let stranded: Vec<usize> = (0..n)
-            .filter(|&k| !(self.log_densities[k] >= median - gap))
+            // NaN-safe: a walker whose log-density is not above the cut is stranded.
+            .filter(|&k| {
+                self.log_densities[k].partial_cmp(&(median - gap))
+                    != Some(std::cmp::Ordering::Greater)
+                    && self.log_densities[k] != median - gap
+            })
             .collect();
         let good: Vec<usize> = (0..n).filter(|k| !stranded.contains(k)).collect();
         if good.is_empty() {

@@ -380,7 +380,9 @@ pub fn diagnose_traces(
     let n = common_length(traces);
     let autocorrelation = integrated_autocorrelation_time(traces);
     let too_short = !autocorrelation.window_found
-        || !(n as f64 >= thresholds.min_autocorrelation_times * autocorrelation.tau);
+        || (n as f64)
+            .partial_cmp(&(thresholds.min_autocorrelation_times * autocorrelation.tau))
+            .is_none_or(|o| o == std::cmp::Ordering::Less);
     if depth == DiagnosisDepth::Quick && too_short {
         // The run must go on anyway: skip the rest of a quick check (the extension needs only τ).
         let nan = f64::NAN;
