@@ -145,7 +145,10 @@ pub fn ess_rate(data: &FitData, repeats: usize) -> anyhow::Result<EssRate> {
     for r in 0..repeats.max(1) {
         let settings = SensitivityRequest {
             priors: vec!["uniform".into()],
-            jitter: false,
+            model: eccaudit_core::spec::ModelSpec {
+                jitter: eccaudit_core::spec::JitterMode::Off,
+                ..eccaudit_core::spec::ModelSpec::DEFAULT
+            },
             seed: 1 + r as u64,
             ..SensitivityRequest::default()
         }
