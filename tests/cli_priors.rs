@@ -41,7 +41,10 @@ fn json_has_one_summary_per_prior() {
         assert_eq!(s["density"]["e"].as_array().unwrap().len(), 201);
         assert!(s["information_gain"]["nats"].is_f64());
         assert!(s["bayes_factor"]["status"].is_string());
-        assert_eq!(s["cost"]["n_walkers"], 24);
+        // 4 independent ensembles of 24 walkers, side by side.
+        assert_eq!(s["cost"]["n_walkers"], 96);
+        assert_eq!(s["cost"]["n_ensembles"], 4);
+        assert_eq!(s["converged"], true, "{}", s["verdict"]);
     }
     assert!(report["methods"].as_array().unwrap().len() >= 4);
 }

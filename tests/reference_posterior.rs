@@ -6,8 +6,6 @@
 //! Every statistical check uses a fixed seed; tolerances come from the Monte-Carlo errors the
 //! estimators report (stated at each check).
 
-use std::ops::ControlFlow;
-
 use eccaudit_core::fit::{FitData, FitOptions};
 use eccaudit_core::orbit::OrbitalElements;
 use eccaudit_core::posterior::{
@@ -16,7 +14,7 @@ use eccaudit_core::posterior::{
 };
 use eccaudit_core::priors::regularized_incomplete_beta;
 use eccaudit_core::random::{normal, standard_normal, stream_rng};
-use eccaudit_core::sampler::SamplerSettings;
+use eccaudit_core::sampler::{SamplerSettings, Steer};
 use rand::RngExt;
 
 /// A simulated single-instrument table: `n` irregular epochs over `span` days.
@@ -53,7 +51,7 @@ fn run_set(data: &FitData, period: f64, seed: u64, n_steps: usize) -> Sensitivit
         },
         ..SensitivitySettings::default()
     };
-    prior_sensitivity(data, &settings, &mut |_| ControlFlow::Continue(())).expect("set runs")
+    prior_sensitivity(data, &settings, &mut |_| Steer::Continue).expect("set runs")
 }
 
 #[test]

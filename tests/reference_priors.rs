@@ -107,16 +107,17 @@ fn cdfs_and_densities_match_scipy() {
         0.010_532_224_589_409_257,
         max_relative = 1e-12
     );
-    // Kipping (2013) period-split presets: scipy.stats.beta(1.12, 3.09).cdf(0.25),
-    // scipy.stats.beta(0.697, 3.27).cdf(0.25).
+    // Kipping (2013) period-split presets (short: Beta(0.697, 3.27), long: Beta(1.12, 3.09),
+    // values from memory, see the constants' notes): scipy.stats.beta(0.697, 3.27).cdf(0.25),
+    // scipy.stats.beta(1.12, 3.09).cdf(0.25).
     assert_relative_eq!(
         prior(EccentricityShape::KIPPING_2013_SHORT_PERIOD, 0.0, 1.0).cdf(0.25),
-        0.541_972_573_731_502_5,
+        0.732_314_839_777_692_4,
         max_relative = 1e-12
     );
     assert_relative_eq!(
         prior(EccentricityShape::KIPPING_2013_LONG_PERIOD, 0.0, 1.0).cdf(0.25),
-        0.732_314_839_777_692_4,
+        0.541_972_573_731_502_5,
         max_relative = 1e-12
     );
     // Truncated Beta on [0.05, 0.8]: pdf(0.2)/(F(0.8) − F(0.05)) and the truncated CDF at 0.3.
@@ -323,9 +324,8 @@ fn sample_through_plane(p: &EccentricityPrior, seed: u64) -> (Vec<f64>, Vec<f64>
         n_walkers: 1000,
         n_steps: 200,
         n_burn: 800,
-        thin: 1,
-        stretch_a: 2.0,
         seed,
+        ..SamplerSettings::default()
     };
     let chains = run_ensemble(
         &target,

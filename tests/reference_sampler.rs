@@ -11,9 +11,10 @@ use std::time::Instant;
 
 use eccaudit_core::random::{standard_normal, stream_rng};
 use eccaudit_core::sampler::{
-    diagnose, diagnose_traces, effective_sample_size, ess_bulk, ess_tail,
-    integrated_autocorrelation_time, rank_normalized_split_r_hat, run_ensemble, Chains,
-    ConvergenceThresholds, DensityFn, DiagnosisDepth, IssueKind, LogDensity, SamplerSettings,
+    diagnose, diagnose_ensembles, diagnose_traces, effective_sample_size, ess_bulk, ess_tail,
+    integrated_autocorrelation_time, rank_normalized_split_r_hat, run_ensemble,
+    run_until_converged, Chains, ConvergenceThresholds, DensityFn, DiagnosisDepth, IssueKind,
+    LogDensity, RunLength, SamplerSettings, Steer, StopReason,
 };
 
 /// Mean of f over all stored samples, and its Monte-Carlo standard error from the ESS of f.
@@ -33,6 +34,52 @@ fn mean_and_standard_error(chains: &Chains, f: impl Fn(&[f64]) -> f64) -> (f64, 
     (mean, (var / ess).sqrt(), ess)
 }
 
+/// Four independent ensembles (mixed stretch and differential-evolution moves, the default
+/// `de_fraction`) from Gaussian balls around `start` (ensemble m with m + 1 times `scales`),
+/// run until the ensemble rule holds (budget 2·10⁷ evaluations); returns the merged chains after
+/// asserting convergence.
+fn run_converged(
+    target: &impl LogDensity,
+    start: &[f64],
+    scales: &[f64],
+    settings: SamplerSettings,
+) -> Chains {
+    let dim = start.len();
+    let starts: Vec<Vec<f64>> = (0..4)
+        .map(|m| {
+            let mut rng = stream_rng(settings.seed, 100 + m);
+            (0..settings.n_walkers * dim)
+                .map(|i| {
+                    start[i % dim] + (m + 1) as f64 * scales[i % dim] * standard_normal(&mut rng)
+                })
+                .collect()
+        })
+        .collect();
+    let length = RunLength {
+        max_evaluations: 20_000_000,
+        ..RunLength::default()
+    };
+    let thresholds = ConvergenceThresholds::default();
+    let run = run_until_converged(
+        target,
+        &starts,
+        &settings,
+        &length,
+        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
+        &mut |_| Steer::Continue,
+    )
+    .expect("sampler runs");
+    println!(
+        "{} ({} steps, {} checks)",
+        run.diagnostics.verdict(),
+        run.steps,
+        run.checks
+    );
+    assert!(run.diagnostics.converged, "{}", run.diagnostics.verdict());
+    assert_eq!(run.stop, StopReason::Converged);
+    run.merged()
+}
+
 fn run(
     target: &impl LogDensity,
     start: &[f64],
@@ -46,8 +93,10 @@ fn run(
 }
 
 /// A correlated 4-D Gaussian x = μ + L z (L lower triangular, z standard
-/// normal), so Σ = L Lᵀ; log p = −½ |L⁻¹(x − μ)|² (common practice). Means,
-/// variances and covariances within 4 Monte-Carlo standard errors.
+/// normal), so Σ = L Lᵀ; log p = −½ |L⁻¹(x − μ)|² (common practice), sampled
+/// with the mixed stretch + differential-evolution moves by four ensembles run
+/// until converged. Means, variances and covariances within 4 Monte-Carlo
+/// standard errors (ESS of each quantity's own traces).
 #[test]
 fn correlated_gaussian_moments() {
     let mu = [1.0, -2.0, 0.5, 30.0];
@@ -81,16 +130,12 @@ fn correlated_gaussian_moments() {
     }
     let settings = SamplerSettings {
         n_walkers: 32,
-        n_steps: 20_000,
-        n_burn: 2_000,
-        thin: 1,
-        stretch_a: 2.0,
+        n_steps: 5_000,
+        n_burn: 1_000,
         seed: 2024,
+        ..SamplerSettings::default()
     };
-    let chains = run(&target, &[0.0, 0.0, 0.0, 25.0], &[0.5; 4], settings);
-    let diagnostics = diagnose(&chains);
-    println!("{}\n{:?}", diagnostics.verdict(), diagnostics.parameters);
-    assert!(diagnostics.converged, "{}", diagnostics.verdict());
+    let chains = run_converged(&target, &[0.0, 0.0, 0.0, 25.0], &[0.5; 4], settings);
 
     for i in 0..dim {
         let (mean, se, ess) = mean_and_standard_error(&chains, |x| x[i]);
@@ -134,17 +179,14 @@ fn twisted_gaussian_moments() {
         },
     };
     let settings = SamplerSettings {
-        n_walkers: 64,
-        n_steps: 40_000,
-        n_burn: 4_000,
-        thin: 4,
-        stretch_a: 2.0,
+        n_walkers: 32,
+        n_steps: 10_000,
+        n_burn: 2_000,
+        thin: 2,
         seed: 7,
+        ..SamplerSettings::default()
     };
-    let chains = run(&target, &[0.0; 4], &[1.0; 4], settings);
-    let diagnostics = diagnose(&chains);
-    println!("{}\n{:?}", diagnostics.verdict(), diagnostics.parameters);
-    assert!(diagnostics.converged, "{}", diagnostics.verdict());
+    let chains = run_converged(&target, &[0.0; 4], &[1.0; 4], settings);
     let checks: [(&str, Moment, f64); 6] = [
         ("E y1", Box::new(|y| y[0]), 0.0),
         ("E y2", Box::new(|y| y[1]), 0.0),
@@ -294,15 +336,16 @@ fn autocorrelation_time_of_ar1() {
 /// - AR(1) with φ = 0.9 (τ = 19, common practice): ESS = N/τ within the 10 % of
 ///   `autocorrelation_time_of_ar1` (same τ estimator, same chains), R̂ below 1.01, no issue
 ///   about R̂;
-/// - chains in two modes 5σ apart: R̂ far above 1.01 (as for the rank-normalised R̂ above);
-/// - chains of equal centre and 4× different spread: the folded R̂ catches them.
+/// - two ensembles in modes 5σ apart: R̂ between them far above 1.01;
+/// - two ensembles of equal centre and 4× different spread: the folded R̂ catches them.
 #[test]
 fn quick_diagnosis_on_known_processes() {
     let phi: f64 = 0.9;
     let (n_chains, n) = (32, 20_000);
     let chains = ar1_chains(phi, n_chains, n);
     let thresholds = ConvergenceThresholds::default();
-    let (d, issues) = diagnose_traces(&chains, "x", 1, &thresholds, DiagnosisDepth::Quick);
+    // 32 independent AR(1) chains read as 4 independent ensembles of 8.
+    let (d, issues) = diagnose_traces(&chains, 4, "x", 1, &thresholds, DiagnosisDepth::Quick);
     let ess_true = (n_chains * n) as f64 / ((1.0 + phi) / (1.0 - phi));
     assert!(
         (d.ess_bulk / ess_true - 1.0).abs() < 0.10 && d.ess_tail == d.ess_bulk,
@@ -315,7 +358,7 @@ fn quick_diagnosis_on_known_processes() {
     );
 
     let stuck = iid_normal_chains(8, 2000, 12, |c| if c < 4 { 0.0 } else { 5.0 });
-    let (d, issues) = diagnose_traces(&stuck, "x", 1, &thresholds, DiagnosisDepth::Quick);
+    let (d, issues) = diagnose_traces(&stuck, 2, "x", 1, &thresholds, DiagnosisDepth::Quick);
     assert!(d.r_hat.bulk > 1.5, "{d:?}");
     assert!(issues.iter().any(|i| i.kind == IssueKind::RHat));
 
@@ -329,12 +372,12 @@ fn quick_diagnosis_on_known_processes() {
                 .collect()
         })
         .collect();
-    let (d, _) = diagnose_traces(&spread, "x", 1, &thresholds, DiagnosisDepth::Quick);
+    let (d, _) = diagnose_traces(&spread, 2, "x", 1, &thresholds, DiagnosisDepth::Quick);
     assert!(d.r_hat.tail > 1.1 && d.r_hat.tail > d.r_hat.bulk, "{d:?}");
 }
 
-/// The verdict says "NOT converged" with advice when the run is too short
-/// or the walkers sit in separate modes, and "converged" for a good run.
+/// The verdict says "NOT converged" with advice when the run is cut too short, when
+/// independent ensembles sit in separate modes, and when only one ensemble was run.
 #[test]
 fn verdict_names_the_problem_and_the_fix() {
     let gaussian = DensityFn {
@@ -349,16 +392,19 @@ fn verdict_names_the_problem_and_the_fix() {
             n_walkers: 8,
             n_steps: 100,
             n_burn: 0,
-            thin: 1,
-            stretch_a: 2.0,
             seed: 3,
+            ..SamplerSettings::default()
         },
     );
     let d = diagnose(&short);
     assert!(!d.converged);
     assert!(d.issues.iter().any(|i| i.kind == IssueKind::ShortRun));
+    assert!(d
+        .issues
+        .iter()
+        .any(|i| i.kind == IssueKind::TooFewEnsembles));
     assert!(d.verdict().starts_with("NOT converged"));
-    assert!(d.verdict().contains("raise n_steps"), "{}", d.verdict());
+    assert!(d.verdict().contains("run at least"), "{}", d.verdict());
 
     // Two well-separated modes: walkers started in each stay there.
     let bimodal = DensityFn {
@@ -369,40 +415,18 @@ fn verdict_names_the_problem_and_the_fix() {
             a.max(b) + (1.0 + (a.min(b) - a.max(b)).exp()).ln()
         },
     };
-    // Walkers of one ensemble started at +20 and of another at −20 never
-    // meet; their chains, stacked as one 16-walker ensemble, disagree.
+    // An ensemble started at +20 and another at −20 never meet: the between-ensemble
+    // R̂ catches it.
     let settings = SamplerSettings {
         n_walkers: 8,
         n_steps: 2000,
         n_burn: 0,
-        thin: 1,
-        stretch_a: 2.0,
         seed: 5,
+        ..SamplerSettings::default()
     };
     let right = run(&bimodal, &[20.0, 0.0], &[0.05, 0.05], settings);
     let left = run(&bimodal, &[-20.0, 0.0], &[0.05, 0.05], settings);
-    let mut stacked = right.clone();
-    stacked.n_walkers = 16;
-    stacked.samples.clear();
-    stacked.log_densities.clear();
-    for step in 0..right.n_stored_steps {
-        for walker in 0..8 {
-            stacked
-                .samples
-                .extend_from_slice(right.sample(step, walker));
-            stacked
-                .log_densities
-                .push(right.log_densities[step * 8 + walker]);
-        }
-        for walker in 0..8 {
-            stacked.samples.extend_from_slice(left.sample(step, walker));
-            stacked
-                .log_densities
-                .push(left.log_densities[step * 8 + walker]);
-        }
-    }
-    stacked.accepted.extend_from_slice(&left.accepted);
-    let d = diagnose(&stacked);
+    let d = diagnose_ensembles(&[&right, &left], &ConvergenceThresholds::default());
     assert!(!d.converged);
     let r_hat_issue = d
         .issues
@@ -415,6 +439,73 @@ fn verdict_names_the_problem_and_the_fix() {
     // here), so "far above 1.01" is tested as > 1.5.
     assert!(r_hat_issue.value > 1.5, "{}", r_hat_issue.value);
     assert!(r_hat_issue.advice.contains("several modes"));
+}
+
+/// Run until converged on a deliberately bimodal target (two narrow modes 40σ apart, equal
+/// mass) with ensembles started in both modes: the ensembles never agree, so the run extends
+/// itself until the budget is spent and reports "NOT converged" with the R̂ and budget issues.
+/// A unimodal Gaussian from the same kind of start converges well inside the same budget.
+#[test]
+fn run_until_converged_refuses_a_bimodal_target_and_accepts_a_gaussian() {
+    let bimodal = DensityFn {
+        dim: 2,
+        log_density: |x: &[f64]| {
+            let a = -0.5 * ((x[0] - 20.0).powi(2) + x[1] * x[1]) / 0.25;
+            let b = -0.5 * ((x[0] + 20.0).powi(2) + x[1] * x[1]) / 0.25;
+            a.max(b) + (1.0 + (a.min(b) - a.max(b)).exp()).ln()
+        },
+    };
+    let settings = SamplerSettings {
+        n_walkers: 8,
+        n_steps: 500,
+        n_burn: 100,
+        seed: 9,
+        ..SamplerSettings::default()
+    };
+    let ball = |centre: f64, stream: u64| -> Vec<f64> {
+        let mut rng = stream_rng(9, stream);
+        (0..16)
+            .map(|i| if i % 2 == 0 { centre } else { 0.0 } + 0.1 * standard_normal(&mut rng))
+            .collect()
+    };
+    let starts = vec![ball(20.0, 1), ball(20.0, 2), ball(-20.0, 3), ball(-20.0, 4)];
+    let length = RunLength {
+        max_evaluations: 400_000,
+        ..RunLength::default()
+    };
+    let thresholds = ConvergenceThresholds::default();
+    let run = run_until_converged(
+        &bimodal,
+        &starts,
+        &settings,
+        &length,
+        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
+        &mut |_| Steer::Continue,
+    )
+    .unwrap();
+    assert!(!run.diagnostics.converged);
+    assert_eq!(run.stop, StopReason::Budget);
+    assert!(run.evaluations <= 400_000, "{}", run.evaluations);
+    let kinds: Vec<IssueKind> = run.diagnostics.issues.iter().map(|i| i.kind).collect();
+    assert!(kinds.contains(&IssueKind::RHat), "{kinds:?}");
+    assert!(kinds.contains(&IssueKind::Budget), "{kinds:?}");
+
+    let gaussian = DensityFn {
+        dim: 2,
+        log_density: |x: &[f64]| -0.5 * (x[0] * x[0] + x[1] * x[1]) / 0.25,
+    };
+    let starts = vec![ball(0.5, 1), ball(0.5, 2), ball(-0.5, 3), ball(-0.5, 4)];
+    let run = run_until_converged(
+        &gaussian,
+        &starts,
+        &settings,
+        &length,
+        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
+        &mut |_| Steer::Continue,
+    )
+    .unwrap();
+    assert!(run.diagnostics.converged, "{}", run.diagnostics.verdict());
+    assert_eq!(run.stop, StopReason::Converged);
 }
 
 /// Speed: 32 walkers × 2000 steps (+500 burn-in) on a 6-D Gaussian,

@@ -108,8 +108,11 @@ function runSet(form) {
   }
   hideError();
   const nPriors = set.priorCount;
-  const stepsPerRun = set.stepsPerRun;
+  // Progress counts log-density evaluations against each run's budget; a run that converges
+  // jumps to its end, so the time left is an upper bound.
+  const stepsPerRun = set.budgetPerRun;
   const done = new Array(nPriors).fill(0);
+  const detail = new Array(nPriors).fill("");
   const started = performance.now();
   const running = { workers: new Set(), cancelled: false };
   view.running = running;
@@ -125,8 +128,9 @@ function runSet(form) {
     const elapsed = (performance.now() - started) / 1000;
     const remaining = sum > 0 ? (elapsed * (total - sum)) / sum : Infinity;
     const finished = done.filter((d) => d >= stepsPerRun).length;
-    eta.textContent = `${finished} of ${nPriors} priors done · ${Math.floor((100 * sum) / total)} % · ` +
-      `about ${formatDuration(remaining)} left`;
+    const live = detail.filter((d) => d).join("; ");
+    eta.textContent = `${finished} of ${nPriors} priors done · ${Math.floor((100 * sum) / total)} % ` +
+      `of the budget · at most ${formatDuration(remaining)} left` + (live ? ` · ${live}` : "");
   };
   updateProgress();
 
@@ -151,6 +155,9 @@ function runSet(form) {
       const msg = event.data;
       if (msg.type === "progress") {
         done[index] = msg.done;
+        detail[index] = Number.isFinite(msg.tauTimes)
+          ? `prior ${index + 1}: step ${msg.steps}, ${Math.round(msg.tauTimes)} τ at the last check`
+          : `prior ${index + 1}: step ${msg.steps}`;
         updateProgress();
       } else if (msg.type === "result") {
         worker.terminate();
@@ -162,6 +169,7 @@ function runSet(form) {
           return;
         }
         done[index] = stepsPerRun;
+        detail[index] = "";
         completed++;
         updateProgress();
         if (completed === nPriors) {
@@ -268,7 +276,12 @@ function showResults(set) {
   $("priors-status").textContent =
     `${report.n_points} epochs; least squares P = ${fixed(ls.period, 4)} d, e = ${fixed(ls.e)}` +
     `${ls.e_error === null ? "" : ` ± ${fixed(ls.e_error)}`}. ` +
-    `Sampler: ${s.n_walkers} walkers × (${s.n_burn} burn-in + ${s.n_steps} steps), seed ${s.seed}. ` +
+    `Sampler: ${report.length.n_ensembles} independent ensembles of ${s.n_walkers}+ walkers, ` +
+    `${s.n_burn} burn-in steps, ` +
+    (report.length.until_converged
+      ? `each run extended until converged (at most ${report.length.max_evaluations} evaluations), `
+      : `${s.n_steps} steps, `) +
+    `seed ${s.seed}. ` +
     `Spread of the posterior median over the set: ${fixed(report.median_spread)}.`;
   renderTable(report);
   $("priors-methods").replaceChildren(...report.methods.map((m) => el("li", {}, m)));

@@ -1,6 +1,7 @@
 // eccaudit prior-set worker: runs ONE prior of a sensitivity set off the main thread.
 // Message in: { requestJson, priorIndex, table: { text, sourceName, velocityUnit, timeConvention } }.
-// Messages out: { type: "progress", done, total }, then { type: "result", part } or
+// Messages out: { type: "progress", done, total, steps, tauTimes } (done/total: log-density
+// evaluations against the run's budget; a run that converges stops before it), then { type: "result", part } or
 // { type: "error", message }. The page cancels by terminating the worker.
 import init, { Dataset } from "./pkg/eccaudit_web.js";
 
@@ -12,8 +13,8 @@ self.addEventListener("message", async (event) => {
   try {
     await ready;
     dataset = Dataset.parse(table.text, table.sourceName, table.velocityUnit, table.timeConvention);
-    const part = dataset.runPriorOfSet(requestJson, priorIndex, (done, total) => {
-      self.postMessage({ type: "progress", done, total });
+    const part = dataset.runPriorOfSet(requestJson, priorIndex, (done, total, steps, tauTimes) => {
+      self.postMessage({ type: "progress", done, total, steps, tauTimes });
     });
     const chains = part.chains;
     self.postMessage({ type: "result", part }, [chains.samples.buffer, chains.log_densities.buffer]);

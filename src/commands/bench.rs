@@ -33,6 +33,10 @@ pub struct Args {
     /// Also time the posterior log-density (one Keplerian, 30 epochs) and one fast-preset run.
     #[arg(long)]
     posterior: bool,
+    /// Only measure the effective samples of e per second of a default posterior run (uniform
+    /// e prior, no jitter) on this velocity table, and print them (see scripts/bench-emcee.sh).
+    #[arg(long, value_name = "FILE")]
+    ess: Option<std::path::PathBuf>,
 }
 
 fn median(mut values: Vec<f64>) -> f64 {
@@ -64,6 +68,29 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let debug_build = cfg!(debug_assertions);
     if debug_build {
         eprintln!("eccaudit: warning: debug build; timings are meaningless, use `cargo run --release -- bench`");
+    }
+    if let Some(path) = &args.ess {
+        let table = super::input::read_table(
+            path,
+            &super::input::TableArgs {
+                velocity_unit: None,
+                time: None,
+                delimiter: None,
+            },
+        )?;
+        let data = FitData::from_table(&table);
+        let rate = super::bench_posterior::ess_rate(&data, args.repeats.min(3))?;
+        if args.json {
+            println!("{}", serde_json::to_string(&rate)?);
+        } else {
+            println!(
+                "eccaudit: ESS(e) {:.0} in {:.3} s = {:.0} per second (tau_e {:.1} steps, {} draws, {} evaluations at {:.0} ns, {:.0} % of the run outside the log-density; median e {:.4}; converged {})",
+                rate.ess_e, rate.seconds, rate.ess_per_second, rate.tau_e_steps, rate.draws,
+                rate.evaluations, rate.log_density_ns, 100.0 * rate.overhead_fraction,
+                rate.median_e, rate.converged
+            );
+        }
+        return Ok(());
     }
 
     // Kepler: M uniform in [0, 2π), e uniform in [0, 0.99].

@@ -78,15 +78,19 @@ pub struct RunArgs {
     /// Least squares only: no posterior estimators (much faster).
     #[arg(long, conflicts_with = "posterior_priors")]
     pub no_posterior: bool,
-    /// Walkers of each posterior run.
-    #[arg(long, default_value_t = 24)]
+    /// Walkers per ensemble of each posterior run (4 independent ensembles).
+    #[arg(long, default_value_t = 16)]
     pub posterior_walkers: usize,
-    /// Steps of each posterior run, after burn-in.
-    #[arg(long, default_value_t = 600)]
+    /// Steps of each posterior run after burn-in before its first convergence check; the run
+    /// then extends itself until converged or out of budget.
+    #[arg(long, default_value_t = 400)]
     pub posterior_steps: usize,
     /// Burn-in steps of each posterior run.
-    #[arg(long, default_value_t = 300)]
+    #[arg(long, default_value_t = 200)]
     pub posterior_burn: usize,
+    /// Most log-density evaluations of each posterior run (its per-trial budget).
+    #[arg(long, default_value_t = eccaudit_core::posterior::FAST_MAX_EVALUATIONS)]
+    pub posterior_max_evaluations: u64,
     /// Hide the progress bar (it is hidden anyway when standard error is not a terminal).
     #[arg(long)]
     pub quiet: bool,
@@ -239,6 +243,7 @@ pub fn posterior_settings(run: &RunArgs) -> PosteriorInjectionSettings {
         n_walkers: run.posterior_walkers,
         n_steps: run.posterior_steps,
         n_burn: run.posterior_burn,
+        max_evaluations: run.posterior_max_evaluations,
     }
 }
 

@@ -1,22 +1,26 @@
 //! `eccaudit priors FILE`: sample the posterior under a set of eccentricity priors and print, per
 //! prior, what e looks like (text table or JSON); optionally write the figures as SVG.
 
-use std::ops::ControlFlow;
+use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
 
 use super::input::{read_table, TableArgs};
 use super::model_args::ModelArgs;
 use anyhow::Context;
 use eccaudit_core::fit::FitData;
 use eccaudit_core::posterior::{
-    prior_sensitivity, SensitivityReport, SensitivityRequest, SensitivitySettings,
+    prior_sensitivity, PosteriorProgress, SensitivityReport, SensitivityRequest,
+    SensitivitySettings,
 };
 use eccaudit_core::spec::fit_model;
+use eccaudit_core::sampler::Steer;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
     corner_figure, corner_figure_size, draw_corner, draw_eccentricity_posteriors, draw_traces,
     eccentricity_figure, eccentricity_figure_size, trace_figure, trace_figure_size, CORNER_POINTS,
 };
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 
 /// Arguments of `eccaudit priors`.
 #[derive(Debug, clap::Args)]
@@ -28,15 +32,32 @@ pub struct Args {
     /// Default: uniform:0..0.99, uniform:0..0.8, uniform:0..0.5, kipping2013, rayleigh(0.3), ecosw.
     #[arg(long = "priors", value_name = "SPEC", num_args = 1..)]
     pub priors: Vec<String>,
-    /// Walkers.
-    #[arg(long, default_value_t = 32)]
+    /// Walkers per ensemble (raised to 2·parameters + 2 when the model needs more).
+    #[arg(long, default_value_t = 16)]
     pub walkers: usize,
-    /// Stored steps per walker after burn-in.
-    #[arg(long, default_value_t = 4000)]
+    /// Steps after burn-in before the first convergence check (each run then extends itself
+    /// until converged, unless --fixed-length).
+    #[arg(long, default_value_t = 1000)]
     pub steps: usize,
     /// Burn-in steps.
-    #[arg(long, default_value_t = 1000)]
+    #[arg(long, default_value_t = 200)]
     pub burn: usize,
+    /// Independent ensembles per prior (the convergence rule compares them; at least 2).
+    #[arg(long, default_value_t = 4)]
+    pub ensembles: usize,
+    /// Run exactly --burn + --steps steps instead of extending each run until converged.
+    #[arg(long)]
+    pub fixed_length: bool,
+    /// Most log-density evaluations per prior.
+    #[arg(long, default_value_t = 4_000_000)]
+    pub max_evaluations: u64,
+    /// Stop each prior's run after this many seconds and report it as it stands (the verdict
+    /// then says whether it converged).
+    #[arg(long, value_name = "SECONDS")]
+    pub time_limit: Option<f64>,
+    /// Hide the progress line (it is hidden anyway when standard error is not a terminal).
+    #[arg(long)]
+    pub quiet: bool,
     /// Seed of the sampler (the same for every prior).
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
@@ -68,6 +89,9 @@ fn settings(args: &Args) -> anyhow::Result<SensitivitySettings> {
         walkers: args.walkers,
         steps: args.steps,
         burn: args.burn,
+        ensembles: args.ensembles,
+        until_converged: !args.fixed_length,
+        max_evaluations: args.max_evaluations,
         seed: args.seed,
         model: args.model.spec(None),
         period_range: [args.period_range[0], args.period_range[1]],
@@ -89,8 +113,25 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let check = fit_model(&data, &model, &settings.fit)
         .with_context(|| format!("fit of `{source_name}`"))?
         .check();
-    let report = prior_sensitivity(&data, &settings, &mut |_| ControlFlow::Continue(()))
+    if let Some(limit) = args.time_limit {
+        if !(limit > 0.0 && limit.is_finite()) {
+            anyhow::bail!("--time-limit {limit}: give a positive number of seconds");
+        }
+    }
+    let bar = if args.quiet || !std::io::stderr().is_terminal() {
+        ProgressBar::hidden()
+    } else {
+        ProgressBar::with_draw_target(Some(1000), ProgressDrawTarget::stderr())
+    };
+    bar.set_style(
+        ProgressStyle::with_template("{prefix} [{bar:30}] {msg}")
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    let mut observer = progress_observer(bar.clone(), args.time_limit);
+    let report = prior_sensitivity(&data, &settings, &mut observer)
         .with_context(|| format!("posterior of `{source_name}`"))?;
+    bar.finish_and_clear();
     if args.json {
         for note in &check.notes {
             eprintln!("eccaudit: {note}");
@@ -119,6 +160,43 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         write_plots(dir, &report).with_context(|| format!("plots in `{}`", dir.display()))?;
     }
     Ok(())
+}
+
+/// The observer of `priors`: a progress line per prior (steps, evaluations against the budget,
+/// run length in autocorrelation times at the last check) and the time limit, kept here
+/// because the core reads no clock.
+fn progress_observer(
+    bar: ProgressBar,
+    time_limit: Option<f64>,
+) -> impl FnMut(PosteriorProgress) -> Steer {
+    let mut prior_started = (usize::MAX, Instant::now());
+    move |p: PosteriorProgress| {
+        if prior_started.0 != p.prior_index {
+            prior_started = (p.prior_index, Instant::now());
+            bar.set_prefix(format!("prior {}/{}", p.prior_index + 1, p.n_priors));
+        }
+        bar.set_position((1000 * p.evaluations / p.max_evaluations.max(1)).min(1000));
+        let phase = if p.steps_done < p.n_burn {
+            "burn-in".to_string()
+        } else if p.autocorrelation_times.is_finite() {
+            format!(
+                "{:.0} autocorrelation times at the last check",
+                p.autocorrelation_times
+            )
+        } else {
+            "sampling".to_string()
+        };
+        bar.set_message(format!(
+            "step {} of {} planned; {} evaluations (budget {}); {phase}",
+            p.steps_done, p.total_steps, p.evaluations, p.max_evaluations
+        ));
+        match time_limit {
+            Some(limit) if prior_started.1.elapsed() >= Duration::from_secs_f64(limit) => {
+                Steer::Finish
+            }
+            _ => Steer::Continue,
+        }
+    }
 }
 
 fn write_plots(dir: &Path, report: &SensitivityReport) -> anyhow::Result<()> {

@@ -141,11 +141,16 @@ pub struct PosteriorInjectionSettings {
     pub n_steps: usize,
     /// Burn-in steps.
     pub n_burn: usize,
+    /// Most log-density evaluations per run; each run extends itself until its convergence rule
+    /// holds or this budget runs out (default [`crate::posterior::FAST_MAX_EVALUATIONS`]).
+    pub max_evaluations: u64,
 }
 
 impl Default for PosteriorInjectionSettings {
     /// One prior, uniform on [0, 0.99], with the fast sampler preset of
-    /// [`crate::posterior::fast_sampler_settings`] (24 walkers × (300 + 600) steps).
+    /// [`crate::posterior::fast_sampler_settings`] (4 ensembles of 16 walkers, 200 burn-in and
+    /// at least 400 steps, run until converged within
+    /// [`crate::posterior::FAST_MAX_EVALUATIONS`]).
     fn default() -> Self {
         let fast = fast_sampler_settings(0);
         PosteriorInjectionSettings {
@@ -153,6 +158,7 @@ impl Default for PosteriorInjectionSettings {
             n_walkers: fast.n_walkers,
             n_steps: fast.n_steps,
             n_burn: fast.n_burn,
+            max_evaluations: crate::posterior::FAST_MAX_EVALUATIONS,
         }
     }
 }
@@ -195,11 +201,13 @@ impl PosteriorInjectionSettings {
                         }
                     })
                     .collect();
-                Ok(PosteriorEstimator::new(
-                    prior,
-                    sampler,
-                    format!("posterior_{tag}"),
-                ))
+                Ok(
+                    PosteriorEstimator::new(prior, sampler, format!("posterior_{tag}"))
+                        .with_length(crate::sampler::RunLength {
+                            max_evaluations: self.max_evaluations,
+                            ..crate::posterior::fast_run_length()
+                        }),
+                )
             })
             .collect()
     }
@@ -723,6 +731,7 @@ mod tests {
                     n_walkers: 16,
                     n_steps: 100,
                     n_burn: 50,
+                    max_evaluations: 40_000,
                 },
                 ..InjectionSettings::default()
             },

@@ -3,8 +3,6 @@
 //! assembles the core's `SensitivityReport` (the same JSON as `eccaudit priors --json`) and draws
 //! its figures with eccaudit-plot.
 
-use std::ops::ControlFlow;
-
 use eccaudit_core::fit::FitData;
 use eccaudit_core::posterior::{
     assemble_sensitivity_report, prior_label, sensitivity_run, sensitivity_start,
@@ -126,7 +124,10 @@ fn chains_from_js(value: &JsValue) -> Result<Chains, JsValue> {
 impl Dataset {
     /// Run prior `prior_index` (0-based) of the set asked for by `request_json` (a
     /// `SensitivityRequest` as JSON text) on this table: the least-squares start, then the
-    /// sampler. `progress(stepsDone, totalSteps)` is called at most every 100 ms while sampling.
+    /// sampler, which extends the run until converged or out of budget.
+    /// `progress(evaluations, maxEvaluations, stepsDone, autocorrelationTimes)` is called at
+    /// most every 100 ms while sampling (`autocorrelationTimes`: run length in units of the
+    /// largest τ at the last convergence check, NaN before the first).
     /// Returns `{n_points, least_squares, run, chains}` for [`PriorSet::add_run`]; meant for a
     /// worker (terminate the worker to cancel).
     #[wasm_bindgen(js_name = runPriorOfSet)]
@@ -143,16 +144,18 @@ impl Dataset {
         let mut observer = |p: eccaudit_core::posterior::PosteriorProgress| {
             if let Some(callback) = &progress {
                 let now = js_sys::Date::now();
-                if now - last_call >= PROGRESS_INTERVAL_MS || p.steps_done == p.total_steps {
+                if now - last_call >= PROGRESS_INTERVAL_MS {
                     last_call = now;
-                    let _ = callback.call2(
-                        &JsValue::NULL,
+                    let args = js_sys::Array::of4(
+                        &JsValue::from_f64(p.evaluations as f64),
+                        &JsValue::from_f64(p.max_evaluations as f64),
                         &JsValue::from_f64(p.steps_done as f64),
-                        &JsValue::from_f64(p.total_steps as f64),
+                        &JsValue::from_f64(p.autocorrelation_times),
                     );
+                    let _ = callback.apply(&JsValue::NULL, &args);
                 }
             }
-            ControlFlow::Continue(())
+            eccaudit_core::sampler::Steer::Continue
         };
         let run = sensitivity_run(&data, &settings, &start, prior_index, &mut observer)
             .map_err(js_error)?;
@@ -218,10 +221,11 @@ impl PriorSet {
         self.settings.priors.iter().map(prior_label).collect()
     }
 
-    /// Steps per walker of one run (burn-in included), for progress bars.
-    #[wasm_bindgen(getter, js_name = stepsPerRun)]
-    pub fn steps_per_run(&self) -> usize {
-        self.settings.sampler.n_burn + self.settings.sampler.n_steps
+    /// The evaluation budget of one run (a run that converges stops earlier), for progress
+    /// bars.
+    #[wasm_bindgen(getter, js_name = budgetPerRun)]
+    pub fn budget_per_run(&self) -> f64 {
+        self.settings.length.max_evaluations as f64
     }
 
     /// Store the result of `Dataset.runPriorOfSet` for prior `prior_index`; once every prior has

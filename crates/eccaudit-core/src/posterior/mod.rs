@@ -35,18 +35,18 @@ pub use bayes::{
 };
 pub use request::SensitivityRequest;
 pub use run::{
-    assemble_sensitivity_report, default_prior_set, fast_sampler_settings, method_notes,
-    posterior_eccentricity, prior_sensitivity, run_posterior, sensitivity_run, sensitivity_start,
-    LeastSquaresEccentricity, PosteriorProgress, PosteriorRun, SensitivityReport,
-    SensitivitySettings, SensitivityStart,
+    assemble_sensitivity_report, default_prior_set, fast_run_length, fast_sampler_settings,
+    method_notes, posterior_eccentricity, prior_sensitivity, run_posterior, sensitivity_run,
+    sensitivity_start, LeastSquaresEccentricity, PosteriorProgress, PosteriorRun,
+    SensitivityReport, SensitivitySettings, SensitivityStart, FAST_MAX_EVALUATIONS,
 };
 pub use spec::{parse_prior_spec, DEFAULT_PRIOR_SPECS, SPEC_SHAPES};
-pub use start::{start_from_fit, PosteriorStart};
+pub use start::{ensemble_starts, start_from_fit, PosteriorStart};
 pub use summary::{
     kl_divergence_binned, kl_divergence_histogram, prior_label, summarise_eccentricity,
     DensityCurves, EccentricitySummary, KlEstimate, SamplerCost,
 };
-pub use target::{PosteriorSettings, RvPosterior};
+pub use target::{LinearParameters, PosteriorSettings, RvPosterior};
 
 /// What can go wrong in posterior sampling.
 #[derive(Debug, Clone, PartialEq, Error)]

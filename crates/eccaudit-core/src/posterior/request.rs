@@ -6,7 +6,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::fit::FitOptions;
 use crate::priors::ScalarPrior;
-use crate::sampler::SamplerSettings;
+use crate::sampler::{RunLength, SamplerSettings};
 use crate::spec::{JitterMode, ModelSpec};
 
 use super::run::{default_prior_set, SensitivitySettings};
@@ -21,12 +21,19 @@ pub struct SensitivityRequest {
     /// Eccentricity priors as text specs (see [`parse_prior_spec`]); empty means
     /// [`default_prior_set`].
     pub priors: Vec<String>,
-    /// Walkers (default 32).
+    /// Walkers per ensemble (default 16; raised to 2·dim + 2 when the model needs more).
     pub walkers: usize,
-    /// Stored steps per walker after burn-in (default 4000).
+    /// Steps after burn-in before the first convergence check (default 1000); with
+    /// `until_converged` the run then extends itself.
     pub steps: usize,
-    /// Burn-in steps (default 1000).
+    /// Burn-in steps (default 200; walkers stranded far below the others at its end are moved).
     pub burn: usize,
+    /// Independent ensembles (default 4; the convergence rule needs at least 2).
+    pub ensembles: usize,
+    /// Extend each run until it has converged (default true).
+    pub until_converged: bool,
+    /// Most log-density evaluations per prior (default 4·10⁶).
+    pub max_evaluations: u64,
     /// Seed of the sampler, the same for every prior (default 1).
     pub seed: u64,
     /// The model: companions (each optionally with a given period), trend, jitter mode
@@ -46,9 +53,12 @@ impl Default for SensitivityRequest {
     fn default() -> Self {
         Self {
             priors: Vec::new(),
-            walkers: 32,
-            steps: 4000,
-            burn: 1000,
+            walkers: 16,
+            steps: 1000,
+            burn: 200,
+            ensembles: 4,
+            until_converged: true,
+            max_evaluations: RunLength::default().max_evaluations,
             seed: 1,
             model: ModelSpec::DEFAULT,
             period_range: [1.0, 1.0e4],
@@ -96,6 +106,13 @@ impl SensitivityRequest {
             max: self.jitter_max,
         };
         posterior.priors.validate()?;
+        if self.ensembles == 0 || self.ensembles > 64 {
+            return Err(PosteriorError::RequestSetting {
+                setting: "ensembles",
+                value: self.ensembles as f64,
+                reason: "must be between 1 and 64",
+            });
+        }
         Ok(SensitivitySettings {
             posterior,
             priors,
@@ -105,6 +122,12 @@ impl SensitivityRequest {
                 n_burn: self.burn,
                 seed: self.seed,
                 ..SamplerSettings::default()
+            },
+            length: RunLength {
+                n_ensembles: self.ensembles,
+                until_converged: self.until_converged,
+                max_evaluations: self.max_evaluations,
+                ..RunLength::default()
             },
             fit: model.fit_options(posterior.jitter, &FitOptions::default()),
         })
@@ -120,9 +143,11 @@ mod tests {
     fn empty_request_gives_the_default_set_and_sampler() {
         let settings = SensitivityRequest::default().to_settings().unwrap();
         assert_eq!(settings.priors, default_prior_set());
-        assert_eq!(settings.sampler.n_walkers, 32);
-        assert_eq!(settings.sampler.n_steps, 4000);
-        assert_eq!(settings.sampler.n_burn, 1000);
+        assert_eq!(settings.sampler.n_walkers, 16);
+        assert_eq!(settings.sampler.n_steps, 1000);
+        assert_eq!(settings.sampler.n_burn, 200);
+        assert_eq!(settings.length.n_ensembles, 4);
+        assert!(settings.length.until_converged);
         assert!(settings.posterior.jitter);
         assert!(settings.fit.initial_periods.is_empty());
         assert_eq!(settings.posterior.n_companions, 1);

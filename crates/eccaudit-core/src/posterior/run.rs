@@ -2,41 +2,48 @@
 //! a list of eccentricity priors, one summary each.
 
 use std::fmt;
-use std::ops::ControlFlow;
 
 use serde::{Deserialize, Serialize};
 
 use crate::fit::{fit_orbit, FitData, FitOptions, FitReport};
 use crate::priors::{EccentricityPriorSettings, EccentricityShape};
 use crate::sampler::{
-    diagnose_derived, diagnose_traces, diagnose_with, Chains, ConvergenceThresholds,
-    DiagnosisDepth, EnsembleState, SamplerSettings,
+    diagnose_ensembles_at, run_until_converged, Chains, ConvergenceThresholds, DiagnosisDepth,
+    RunLength, RunProgress, SamplerError, SamplerSettings, Steer,
 };
 
-use super::start::{start_from_fit, PosteriorStart};
+use super::start::{ensemble_starts, start_from_fit, PosteriorStart};
 use super::summary::{summarise_eccentricity, EccentricitySummary, SamplerCost};
 use super::target::{PosteriorSettings, RvPosterior};
 use super::PosteriorError;
 
-/// The fast sampler preset for repeated use (injection–recovery): 24 walkers, 300 burn-in and
-/// 600 stored steps, i.e. 21 624 log-density evaluations with the initial ball. Cost: see
-/// `eccaudit bench --posterior` and the performance table of DEVELOPERS.md (one Keplerian,
-/// 30 epochs: tens of milliseconds per run, almost all of it in `RvProblem::model_velocities`).
-/// Short for convergence by the default thresholds: use it for population statistics, not for
-/// a quoted value.
+/// The fast sampler preset for repeated use (injection–recovery): 16 walkers per ensemble (4
+/// ensembles by [`RunLength`]'s default), 200 burn-in steps and 400 steps before the first
+/// convergence check; the run then extends itself until converged within
+/// [`FAST_MAX_EVALUATIONS`]. Cost: see `eccaudit bench --posterior` and the performance table
+/// of DEVELOPERS.md.
 pub fn fast_sampler_settings(seed: u64) -> SamplerSettings {
     SamplerSettings {
-        n_walkers: 24,
-        n_steps: 600,
-        n_burn: 300,
-        thin: 1,
-        stretch_a: 2.0,
+        n_walkers: 16,
+        n_steps: 400,
+        n_burn: 200,
         seed,
+        ..SamplerSettings::default()
     }
 }
 
-/// Steps advanced between observer calls.
-const CHUNK: usize = 50;
+/// The per-run evaluation budget of injection trials (4 · 10⁵: about 0.2–0.4 s for one
+/// Keplerian at 30 epochs; a well-constrained orbit converges in a fraction of it).
+pub const FAST_MAX_EVALUATIONS: u64 = 400_000;
+
+/// [`RunLength`] of injection trials: 4 ensembles, run until converged within
+/// [`FAST_MAX_EVALUATIONS`].
+pub fn fast_run_length() -> RunLength {
+    RunLength {
+        max_evaluations: FAST_MAX_EVALUATIONS,
+        ..RunLength::default()
+    }
+}
 
 /// Progress of a run or a set of runs.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -47,8 +54,18 @@ pub struct PosteriorProgress {
     pub n_priors: usize,
     /// Steps done in this run (burn-in included).
     pub steps_done: usize,
-    /// Steps of this run.
+    /// Steps planned so far in this run (grows while it extends itself until converged).
     pub total_steps: usize,
+    /// Burn-in steps.
+    pub n_burn: usize,
+    /// Log-density evaluations so far.
+    pub evaluations: u64,
+    /// The run's budget of evaluations.
+    pub max_evaluations: u64,
+    /// Convergence checks so far.
+    pub checks: usize,
+    /// Run length in units of the largest autocorrelation time at the last check (NaN before).
+    pub autocorrelation_times: f64,
 }
 
 /// One run's result: the summary of e, the chains and the parameter names.
@@ -56,29 +73,34 @@ pub struct PosteriorProgress {
 pub struct PosteriorRun {
     /// What the run says about e (companion 1).
     pub summary: EccentricitySummary,
-    /// Names of the sampled parameters, in the chains' order.
+    /// Names of the sampled parameters, in the chains' order (offsets and trend are
+    /// integrated out analytically, see [`RvPosterior::marginalised`]).
     pub parameter_names: Vec<String>,
     /// The start used.
     pub start: PosteriorStart,
-    /// The chains (not serialised: they are large).
+    /// The chains of all ensembles, walkers side by side (not serialised: they are large).
     #[serde(skip)]
     pub chains: Chains,
 }
 
 /// Samples the posterior of `data` under `settings` from `start` and summarises e of the first
-/// companion. `observer` sees progress every 50 steps and may cancel.
+/// companion: independent ensembles run by [`run_until_converged`] with `length`, judged on
+/// every sampled parameter and on e. `observer` sees progress every 50 steps and may finish
+/// early or cancel.
 pub fn run_posterior(
     data: &FitData,
     settings: &PosteriorSettings,
     sampler: &SamplerSettings,
+    length: &RunLength,
     start: &PosteriorStart,
-    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+    observer: &mut impl FnMut(PosteriorProgress) -> Steer,
     prior_index: (usize, usize),
 ) -> Result<PosteriorRun, PosteriorError> {
     run_posterior_judged(
         data,
         settings,
         sampler,
+        length,
         start,
         observer,
         prior_index,
@@ -89,19 +111,28 @@ pub fn run_posterior(
 /// Which quantities decide whether a run has converged.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Judged {
-    /// Every sampled parameter (a run whose result is looked at or quoted).
+    /// Every sampled parameter and e (a run whose result is looked at or quoted).
     EveryParameter,
-    /// e alone, by the quick checks of [`DiagnosisDepth::Quick`] (injection–recovery, where only
-    /// e is used and thousands of runs are summarised together; a small fraction of the cost).
+    /// e alone (injection–recovery, where only e is used and thousands of runs are summarised
+    /// together).
     EccentricityAlone,
 }
 
+/// The smallest even walker count the sampler accepts for `dim` parameters, plus a margin of
+/// two (the stretch move needs at least 2·dim; common practice to exceed it).
+fn walkers_for(dim: usize, asked: usize) -> usize {
+    let wanted = asked.max(2 * dim + 2);
+    wanted + wanted % 2
+}
+
+#[allow(clippy::too_many_arguments)]
 fn run_posterior_judged(
     data: &FitData,
     settings: &PosteriorSettings,
     sampler: &SamplerSettings,
+    length: &RunLength,
     start: &PosteriorStart,
-    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+    observer: &mut impl FnMut(PosteriorProgress) -> Steer,
     prior_index: (usize, usize),
     judged: Judged,
 ) -> Result<PosteriorRun, PosteriorError> {
@@ -109,96 +140,125 @@ fn run_posterior_judged(
         return Err(PosteriorError::CircularInSet);
     }
     let centres = start.lambda_centres(settings, data.n_instruments());
-    let target = RvPosterior::new(data, settings, &centres)?;
-    let mut state = EnsembleState::new(&target, &start.point, &start.scales, sampler)?;
-    while !state.is_finished() {
-        state.advance(&target, CHUNK)?;
-        let progress = state.progress();
-        let report = PosteriorProgress {
-            prior_index: prior_index.0,
-            n_priors: prior_index.1,
-            steps_done: progress.steps_done,
-            total_steps: progress.total_steps,
-        };
-        if observer(report).is_break() {
-            return Err(PosteriorError::Cancelled {
-                prior_index: prior_index.0,
-                steps_done: progress.steps_done,
-            });
-        }
-    }
-    let chains = state.into_chains();
-    let start_index = target.layout().companion_start(0);
-    let e_traces: Vec<Vec<f64>> = (0..chains.n_walkers)
-        .map(|w| {
-            (0..chains.n_stored_steps)
-                .map(|s| {
-                    let x = chains.sample(s, w);
-                    x[start_index + 2] * x[start_index + 2]
-                        + x[start_index + 3] * x[start_index + 3]
+    let target = RvPosterior::marginalised(data, settings, &centres)?;
+    let sampler = SamplerSettings {
+        n_walkers: walkers_for(crate::sampler::LogDensity::dim(&target), sampler.n_walkers),
+        ..*sampler
+    };
+    let n_ensembles = length.n_ensembles.max(1);
+    let starts = ensemble_starts(start, &target, n_ensembles, sampler.n_walkers, sampler.seed)?;
+    let h_index = target.layout().companion_start(0) + 2;
+    let e_traces_of = |ensembles: &[&Chains]| -> Vec<Vec<f64>> {
+        ensembles
+            .iter()
+            .flat_map(|chains| {
+                (0..chains.n_walkers).map(move |w| {
+                    (0..chains.n_stored_steps)
+                        .map(|s| {
+                            let x = chains.sample(s, w);
+                            x[h_index] * x[h_index] + x[h_index + 1] * x[h_index + 1]
+                        })
+                        .collect()
                 })
-                .collect()
-        })
-        .collect();
-    let cost = SamplerCost {
-        n_walkers: chains.n_walkers,
-        n_steps_total: sampler.n_burn + sampler.n_steps,
-        n_samples: chains.n_walkers * chains.n_stored_steps,
-        log_density_evaluations: target.evaluations(),
+            })
+            .collect()
     };
     let thresholds = ConvergenceThresholds::default();
-    let (diagnostics, e_diagnostics) = match judged {
-        Judged::EveryParameter => (
-            diagnose_with(&chains, &thresholds),
-            diagnose_traces(
-                &e_traces,
-                "e",
-                chains.thin,
-                &thresholds,
-                DiagnosisDepth::Full,
-            )
-            .0,
-        ),
-        Judged::EccentricityAlone => {
-            let diagnostics =
-                diagnose_derived(&chains, "e", &e_traces, &thresholds, DiagnosisDepth::Quick);
-            let e = diagnostics.parameters[0];
-            (diagnostics, e)
-        }
+    let every = judged == Judged::EveryParameter;
+    let mut judge = |ensembles: &[&Chains]| {
+        let e = e_traces_of(ensembles);
+        diagnose_ensembles_at(
+            ensembles,
+            &thresholds,
+            DiagnosisDepth::Quick,
+            every,
+            &[("e", &e)],
+        )
+    };
+    let mut run_observer = |p: &RunProgress| {
+        observer(PosteriorProgress {
+            prior_index: prior_index.0,
+            n_priors: prior_index.1,
+            steps_done: p.steps_done,
+            total_steps: p.steps_planned,
+            n_burn: p.n_burn,
+            evaluations: p.evaluations,
+            max_evaluations: p.max_evaluations,
+            checks: p.checks,
+            autocorrelation_times: p.autocorrelation_times,
+        })
+    };
+    let run = run_until_converged(
+        &target,
+        &starts,
+        &sampler,
+        length,
+        &mut judge,
+        &mut run_observer,
+    )
+    .map_err(|error| match error {
+        SamplerError::Cancelled { steps_done, .. } => PosteriorError::Cancelled {
+            prior_index: prior_index.0,
+            steps_done,
+        },
+        other => other.into(),
+    })?;
+    let refs: Vec<&Chains> = run.ensembles.iter().collect();
+    let e_traces = e_traces_of(&refs);
+    let diagnostics = &run.diagnostics;
+    // The e entry of the last check: τ-based ESS (N/τ, Foreman-Mackey et al. 2013, §3) for the
+    // Monte-Carlo errors of the summary.
+    let e_diagnostics = diagnostics.parameters[diagnostics.parameters.len() - 1];
+    let chains = run.merged();
+    let cost = SamplerCost {
+        n_walkers: chains.n_walkers,
+        n_steps_total: run.steps,
+        n_samples: chains.n_walkers * chains.n_stored_steps,
+        log_density_evaluations: target.evaluations(),
+        n_ensembles,
+        stop: run.stop,
+        checks: run.checks,
+        relocated_walkers: run.relocated,
+        autocorrelation_times: (run.steps - sampler.n_burn) as f64 / diagnostics.tau_max_steps(),
     };
     let summary = summarise_eccentricity(
         &e_traces,
         target.eccentricity_prior(),
         &e_diagnostics,
-        &diagnostics,
+        diagnostics,
         cost,
     );
+    let names = settings.parameter_names(data.instrument_names());
     Ok(PosteriorRun {
         summary,
-        parameter_names: settings.parameter_names(data.instrument_names()),
+        parameter_names: target.sampled_names(&names),
         start: start.clone(),
         chains,
     })
 }
 
 /// The function for repeated use (e.g. the injection–recovery engine): the e summary of one run
-/// from a given start, without progress reporting. Pair with [`fast_sampler_settings`].
+/// from a given start, without progress reporting. Pair with [`fast_sampler_settings`] and
+/// [`fast_run_length`].
 ///
-/// Only e is used, so convergence is judged on e alone, by the quick checks of
-/// [`DiagnosisDepth::Quick`] ([`diagnose_derived`]): the full diagnostics of every parameter cost
-/// several times the sampling of a short run and change nothing that is reported per trial.
+/// Only e is used, so convergence is judged on e alone by the same rule
+/// ([`crate::sampler::CONVERGENCE_RULE`]) at the quick depth ([`DiagnosisDepth::Quick`]); the
+/// run extends itself until it holds or the budget of `length` runs out, and the summary says
+/// which (`converged`, `cost.stop`).
 pub fn posterior_eccentricity(
     data: &FitData,
     settings: &PosteriorSettings,
     sampler: &SamplerSettings,
+    length: &RunLength,
     start: &PosteriorStart,
 ) -> Result<EccentricitySummary, PosteriorError> {
     run_posterior_judged(
         data,
         settings,
         sampler,
+        length,
         start,
-        &mut |_| ControlFlow::Continue(()),
+        &mut |_| Steer::Continue,
         (0, 1),
         Judged::EccentricityAlone,
     )
@@ -236,8 +296,11 @@ pub struct SensitivitySettings {
     pub posterior: PosteriorSettings,
     /// The eccentricity priors to compare (at least one; not circular).
     pub priors: Vec<EccentricityPriorSettings>,
-    /// Sampler settings; the same seed is used for every prior.
+    /// Sampler settings (walkers per ensemble, burn-in, steps before the first check); the
+    /// same seed is used for every prior.
     pub sampler: SamplerSettings,
+    /// Ensembles, run until converged or not, budget.
+    pub length: RunLength,
     /// Settings of the least-squares fit that gives the start (its `jitter` and `trend` are
     /// taken from `posterior`).
     pub fit: FitOptions,
@@ -249,6 +312,7 @@ impl Default for SensitivitySettings {
             posterior: PosteriorSettings::default(),
             priors: default_prior_set(),
             sampler: SamplerSettings::default(),
+            length: RunLength::default(),
             fit: FitOptions::default(),
         }
     }
@@ -278,6 +342,8 @@ pub struct SensitivityReport {
     pub settings: PosteriorSettings,
     /// Sampler settings.
     pub sampler: SamplerSettings,
+    /// Run length: ensembles, until converged, budget.
+    pub length: RunLength,
     /// One run per prior, in the order given.
     pub runs: Vec<PosteriorRun>,
     /// Largest minus smallest posterior median of e over the set.
@@ -289,7 +355,7 @@ pub struct SensitivityReport {
 /// The methods behind each figure, for reports.
 pub fn method_notes() -> Vec<String> {
     vec![
-        "Sampling: affine-invariant ensemble (stretch move) in (P, K, √e cos ω, √e sin ω, λ, γ, [trend], [jitter]); the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; walkers start around the least-squares optimum.".into(),
+        "Sampling: independent affine-invariant ensembles (stretch and differential-evolution moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; walkers start around the least-squares optimum, ensembles increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
         "Median, mean, intervals: sample quantiles (type 7); HDI = shortest interval of the samples. Mode: maximum of a Gaussian KDE reflected at the prior's bounds, Silverman bandwidth.".into(),
         "P(e < 0.05): fraction of samples; error √(p(1−p)/ESS_tail).".into(),
         "Information gain: KL(posterior ‖ prior) of e in nats on 50 equal bins over the prior's support, Miller–Madow bias (m−1)/(2 ESS) removed; binning makes it a lower bound.".into(),
@@ -324,9 +390,16 @@ pub fn sensitivity_start(
     {
         return Err(PosteriorError::CircularInSet);
     }
-    // Check every prior before spending time on the fit.
+    // Check every prior before spending time on the fit (a prior chosen by period with a
+    // period on either side of the split).
     for p in &settings.priors {
-        settings.posterior.with_eccentricity(*p).priors.validate()?;
+        for period in [1.0, 1.0e3] {
+            settings
+                .posterior
+                .with_eccentricity(p.for_period(period))
+                .priors
+                .validate()?;
+        }
     }
     let fit_options = FitOptions {
         n_companions: settings.posterior.n_companions,
@@ -352,7 +425,7 @@ pub fn sensitivity_run(
     settings: &SensitivitySettings,
     start: &SensitivityStart,
     prior_index: usize,
-    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+    observer: &mut impl FnMut(PosteriorProgress) -> Steer,
 ) -> Result<PosteriorRun, PosteriorError> {
     let n_priors = settings.priors.len();
     let prior = settings
@@ -362,7 +435,9 @@ pub fn sensitivity_run(
             index: prior_index,
             n_priors,
         })?;
-    let posterior = settings.posterior.with_eccentricity(*prior);
+    let posterior = settings
+        .posterior
+        .with_eccentricity(prior.for_period(start.least_squares.period));
     let effective = posterior.effective_eccentricity().validate()?;
     let walker_start = start_from_fit(
         &start.fit,
@@ -375,6 +450,7 @@ pub fn sensitivity_run(
         data,
         &posterior,
         &settings.sampler,
+        &settings.length,
         &walker_start,
         observer,
         (prior_index, n_priors),
@@ -404,6 +480,7 @@ pub fn assemble_sensitivity_report(
         least_squares,
         settings: settings.posterior,
         sampler: settings.sampler,
+        length: settings.length,
         runs,
         median_spread,
         methods: method_notes(),
@@ -417,7 +494,7 @@ pub fn assemble_sensitivity_report(
 pub fn prior_sensitivity(
     data: &FitData,
     settings: &SensitivitySettings,
-    observer: &mut impl FnMut(PosteriorProgress) -> ControlFlow<()>,
+    observer: &mut impl FnMut(PosteriorProgress) -> Steer,
 ) -> Result<SensitivityReport, PosteriorError> {
     let start = sensitivity_start(data, settings)?;
     let runs = (0..settings.priors.len())
@@ -462,8 +539,28 @@ impl fmt::Display for SensitivityReport {
         )?;
         writeln!(
             f,
-            "Sampler: {} walkers x ({} burn-in + {} steps), seed {}",
-            self.sampler.n_walkers, self.sampler.n_burn, self.sampler.n_steps, self.sampler.seed
+            "Sampler: {} independent ensembles of {} walkers (stretch + differential-evolution \
+             moves; offsets{} integrated out), {} burn-in steps, {}, seed {}",
+            self.length.n_ensembles,
+            self.runs
+                .first()
+                .map_or(self.sampler.n_walkers, |r| r.chains.n_walkers
+                    / self.length.n_ensembles.max(1)),
+            if self.settings.trend {
+                " and trend"
+            } else {
+                ""
+            },
+            self.sampler.n_burn,
+            if self.length.until_converged {
+                format!(
+                    "run until converged (at most {} evaluations per prior)",
+                    self.length.max_evaluations
+                )
+            } else {
+                format!("{} steps", self.sampler.n_steps)
+            },
+            self.sampler.seed
         )?;
         writeln!(f)?;
         writeln!(
@@ -519,6 +616,38 @@ impl fmt::Display for SensitivityReport {
             self.median_spread
         )?;
         for (i, run) in self.runs.iter().enumerate() {
+            let c = &run.summary.cost;
+            writeln!(
+                f,
+                "Run {}: {} after {} steps per walker ({:.0} autocorrelation times, {} \
+                 evaluations, {} checks{})",
+                i + 1,
+                if run.summary.converged {
+                    "converged"
+                } else {
+                    "NOT converged"
+                },
+                c.n_steps_total,
+                c.autocorrelation_times,
+                c.log_density_evaluations,
+                c.checks,
+                if c.relocated_walkers > 0 {
+                    format!(
+                        "; {} stranded walker(s) moved at the end of burn-in",
+                        c.relocated_walkers
+                    )
+                } else {
+                    String::new()
+                }
+            )?;
+            if run.start.disperse_eccentricity {
+                writeln!(
+                    f,
+                    "Run {}: the least-squares e says little (near e_max or poorly \
+                     constrained); walkers started with e drawn from the prior",
+                    i + 1
+                )?;
+            }
             if !run.summary.converged {
                 let first = run.summary.verdict.lines().nth(1).unwrap_or("");
                 writeln!(
@@ -537,6 +666,7 @@ impl fmt::Display for SensitivityReport {
                 )?;
             }
         }
+        writeln!(f, "Convergence {}", crate::sampler::CONVERGENCE_RULE)?;
         writeln!(f, "Methods:")?;
         for note in &self.methods {
             writeln!(f, "- {note}")?;
@@ -594,10 +724,9 @@ mod tests {
         // only on the data, the settings and its index, not on the runs before it.
         let data = data();
         let settings = short_settings();
-        let whole =
-            prior_sensitivity(&data, &settings, &mut |_| ControlFlow::Continue(())).unwrap();
+        let whole = prior_sensitivity(&data, &settings, &mut |_| Steer::Continue).unwrap();
         let start = sensitivity_start(&data, &settings).unwrap();
-        let mut continue_ = |_| ControlFlow::Continue(());
+        let mut continue_ = |_| Steer::Continue;
         let second = sensitivity_run(&data, &settings, &start, 1, &mut continue_).unwrap();
         let first = sensitivity_run(&data, &settings, &start, 0, &mut continue_).unwrap();
         let parts = assemble_sensitivity_report(
@@ -621,10 +750,8 @@ mod tests {
         let data = data();
         let settings = short_settings();
         let start = sensitivity_start(&data, &settings).unwrap();
-        let err = sensitivity_run(&data, &settings, &start, 2, &mut |_| {
-            ControlFlow::Continue(())
-        })
-        .unwrap_err();
+        let err =
+            sensitivity_run(&data, &settings, &start, 2, &mut |_| Steer::Continue).unwrap_err();
         assert_eq!(
             err,
             PosteriorError::PriorIndex {

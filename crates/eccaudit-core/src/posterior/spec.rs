@@ -7,8 +7,10 @@ use crate::priors::{EccentricityPriorSettings, EccentricityShape};
 use super::PosteriorError;
 
 /// The shapes a spec may name, for error messages.
-pub const SPEC_SHAPES: &str = "uniform, beta(a,b), kipping2013, rayleigh(sigma), \
-halfnormal(sigma), loguniform (needs :E_MIN..E_MAX with E_MIN > 0), ecosw (p ∝ e), sqrtecosw";
+pub const SPEC_SHAPES: &str = "uniform, beta(a,b), kipping2013 (all planets), kipping2013short \
+(P < 382.3 d), kipping2013long, kipping2013auto (short or long by the fitted period), \
+rayleigh(sigma), halfnormal(sigma), loguniform (needs :E_MIN..E_MAX with E_MIN > 0), \
+ecosw (p ∝ e), sqrtecosw";
 
 /// [`super::default_prior_set`] written as specs, in the same order (for the page's editable
 /// list and the command line's help).
@@ -77,9 +79,21 @@ pub fn parse_prior_spec(spec: &str) -> Result<EccentricityPriorSettings, Posteri
             want(0)?;
             EccentricityShape::LogUniform
         }
-        "kipping2013" => {
+        "kipping2013" | "kipping2013all" => {
             want(0)?;
             EccentricityShape::KIPPING_2013_ALL
+        }
+        "kipping2013short" => {
+            want(0)?;
+            EccentricityShape::KIPPING_2013_SHORT_PERIOD
+        }
+        "kipping2013long" => {
+            want(0)?;
+            EccentricityShape::KIPPING_2013_LONG_PERIOD
+        }
+        "kipping2013auto" => {
+            want(0)?;
+            EccentricityShape::Kipping2013ByPeriod
         }
         "beta" => {
             want(2)?;
@@ -121,7 +135,13 @@ pub fn parse_prior_spec(spec: &str) -> Result<EccentricityPriorSettings, Posteri
         e_min,
         e_max,
     };
-    settings.validate().map_err(|e| bad(e.to_string()))?;
+    // The by-period shape is checked with a period on either side of the split.
+    for period in [1.0, 1.0e3] {
+        settings
+            .for_period(period)
+            .validate()
+            .map_err(|e| bad(e.to_string()))?;
+    }
     Ok(settings)
 }
 
@@ -151,6 +171,22 @@ mod tests {
         let p = parse_prior_spec("rayleigh(0.3):0..0.8").unwrap();
         assert_eq!(p.shape, EccentricityShape::Rayleigh { sigma: 0.3 });
         assert!(parse_prior_spec("loguniform:0.001..0.99").is_ok());
+    }
+
+    /// Kipping (2013) by name, and by the fitted period: short below 382.3 d, long above
+    /// (values from memory, see `EccentricityShape::KIPPING_2013_SHORT_PERIOD`).
+    #[test]
+    fn kipping_variants_by_name_and_by_period() {
+        let short = parse_prior_spec("kipping2013short").unwrap();
+        assert_eq!(short.shape, EccentricityShape::Beta { a: 0.697, b: 3.27 });
+        let long = parse_prior_spec("kipping2013long").unwrap();
+        assert_eq!(long.shape, EccentricityShape::Beta { a: 1.12, b: 3.09 });
+        let auto = parse_prior_spec("kipping2013auto:0..0.9").unwrap();
+        assert!(auto.validate().is_err());
+        assert_eq!(auto.for_period(23.7).shape, short.shape);
+        assert_eq!(auto.for_period(1200.0).shape, long.shape);
+        assert_eq!(auto.for_period(23.7).e_max, 0.9);
+        assert_eq!(short.for_period(1200.0), short);
     }
 
     #[test]

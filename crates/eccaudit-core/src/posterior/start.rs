@@ -5,8 +5,10 @@ use serde::{Deserialize, Serialize};
 
 use crate::fit::{FitReport, Solution};
 use crate::priors::EccentricityPrior;
+use crate::random::{standard_normal, stream_rng};
+use crate::sampler::LogDensity;
 
-use super::target::PosteriorSettings;
+use super::target::{PosteriorSettings, RvPosterior};
 use super::PosteriorError;
 
 /// Start point and initial-ball scales for [`crate::sampler::EnsembleState::new`], in the
@@ -20,6 +22,12 @@ pub struct PosteriorStart {
     /// True when the least-squares eccentricity lay outside the prior's truncation and the start
     /// was moved inside.
     pub eccentricity_moved: bool,
+    /// True when the least-squares e says little (it sits within 10 % of e_max, or its formal
+    /// error exceeds 0.15 or is unknown): the walkers then draw (√e cos ω, √e sin ω) from the
+    /// prior instead of a ball around the optimum, so that a low-S/N optimum at the e = 0.99
+    /// edge does not pin every walker there.
+    #[serde(default)]
+    pub disperse_eccentricity: bool,
 }
 
 impl PosteriorStart {
@@ -78,6 +86,7 @@ pub fn start_from_fit(
     let mut point = vec![0.0; dim];
     let mut scales = vec![0.0; dim];
     let mut moved = false;
+    let mut disperse = false;
     let (e_min, e_max) = prior.bounds();
     // Index into the solution's own parameter vector (E coordinates, its own circular flags).
     let mut from = 0usize;
@@ -117,6 +126,10 @@ pub fn start_from_fit(
             } else {
                 (1.0, 0.0)
             };
+            let e_error = fitted.eccentricity.error.filter(|s| s.is_finite());
+            if !fitted.held_circular && (e_fit >= 0.9 * e_max || e_error.is_none_or(|s| s > 0.15)) {
+                disperse = true;
+            }
             let mut e = e_fit;
             if e > e_max || e >= 0.95 * e_max {
                 e = 0.9 * e_max;
@@ -169,7 +182,80 @@ pub fn start_from_fit(
         point,
         scales,
         eccentricity_moved: moved,
+        disperse_eccentricity: disperse && !layout.circular.iter().all(|c| *c),
     })
+}
+
+/// Most draws per walker of [`ensemble_starts`] before giving up.
+const MAX_START_DRAWS: usize = 1000;
+
+/// Walker positions (sampled coordinates of `target`) for `n_ensembles` independent ensembles
+/// of `n_walkers` each, ensemble m on random stream 1000 + m of `seed`: a Gaussian ball around
+/// `start.point` whose scales grow with m (1, 2, 3, 4 … times `start.scales`, i.e. ½ to 2
+/// formal errors), so that the ensembles start apart as the between-chain check requires
+/// (Gelman & Rubin 1992, Stat. Sci. 7, 457: over-dispersed starts). With
+/// `start.disperse_eccentricity`, each walker's (√e cos ω, √e sin ω) of every companion is
+/// drawn from the eccentricity prior with ω uniform instead. Draws with a non-finite density
+/// are redrawn, up to 1000 times per walker.
+pub fn ensemble_starts(
+    start: &PosteriorStart,
+    target: &RvPosterior<'_>,
+    n_ensembles: usize,
+    n_walkers: usize,
+    seed: u64,
+) -> Result<Vec<Vec<f64>>, PosteriorError> {
+    let layout = target.layout().clone();
+    let prior = *target.eccentricity_prior();
+    let mut out = Vec::with_capacity(n_ensembles);
+    let mut full = vec![0.0; start.point.len()];
+    for m in 0..n_ensembles {
+        let mut rng = stream_rng(seed, 1000 + m as u64);
+        let widen = (m + 1) as f64;
+        let mut positions = Vec::with_capacity(n_walkers * target.dim());
+        for walker in 0..n_walkers {
+            let mut found = false;
+            for _ in 0..MAX_START_DRAWS {
+                for ((f, &c), &s) in full.iter_mut().zip(&start.point).zip(&start.scales) {
+                    *f = c + widen * s * standard_normal(&mut rng);
+                }
+                if start.disperse_eccentricity {
+                    for c in 0..layout.n_companions() {
+                        if layout.circular[c] {
+                            continue;
+                        }
+                        let i = layout.companion_start(c) + 2;
+                        let e = prior.draw(&mut rng);
+                        let u: f64 = rand::RngExt::random(&mut rng);
+                        let (sin_w, cos_w) = libm::sincos(crate::kepler::TWO_PI * u);
+                        full[i] = libm::sqrt(e) * cos_w;
+                        full[i + 1] = libm::sqrt(e) * sin_w;
+                    }
+                }
+                // Jitters stay positive: reflect at 0.
+                if let Some(j) = target.jitter_start() {
+                    let first_jitter = full.len() - (target.dim() - j);
+                    for s in &mut full[first_jitter..] {
+                        *s = s.abs();
+                    }
+                }
+                let x = target.sampled_point(&full);
+                if target.log_density(&x).is_finite() {
+                    positions.extend_from_slice(&x);
+                    found = true;
+                    break;
+                }
+            }
+            if !found {
+                return Err(crate::sampler::SamplerError::NoValidStart {
+                    walker,
+                    attempts: MAX_START_DRAWS,
+                }
+                .into());
+            }
+        }
+        out.push(positions);
+    }
+    Ok(out)
 }
 
 /// Fails with a readable error when the start lies outside a scalar prior's bounds.

@@ -129,6 +129,16 @@ pub struct SamplerCost {
     pub n_samples: usize,
     /// Log-density evaluations, initial ball included.
     pub log_density_evaluations: u64,
+    /// Independent ensembles.
+    pub n_ensembles: usize,
+    /// Why the run stopped.
+    pub stop: crate::sampler::StopReason,
+    /// Convergence checks made.
+    pub checks: usize,
+    /// Walkers moved at the end of burn-in, stranded far below the others.
+    pub relocated_walkers: usize,
+    /// Steps after burn-in divided by the largest autocorrelation time of the last check.
+    pub autocorrelation_times: f64,
 }
 
 /// What one posterior run says about the eccentricity of one companion.
@@ -168,11 +178,21 @@ pub struct EccentricitySummary {
     pub interval_68: [f64; 2],
     /// Equal-tailed 95 % interval (quantiles 0.025, 0.975).
     pub interval_95: [f64; 2],
-    /// Highest-density (shortest) 68.27 % interval of the samples (Chen & Shao 1999, J. Comput.
-    /// Graph. Stat. 8, 69); it reaches e_min when mass piles there.
+    /// Highest-density 68.27 % interval: the shortest interval of the samples (Chen & Shao
+    /// 1999, J. Comput. Graph. Stat. 8, 69), or the upper limit [e_min, q₀.₆₈₂₇] when the
+    /// highest-density region reaches the lower bound (see [`Self::hdi_68_is_upper_limit`]).
     pub hdi_68: [f64; 2],
-    /// Highest-density 95 % interval.
+    /// True when `hdi_68` is an upper limit: the kernel density at e_min is at least the density
+    /// at the shortest interval's lower end, so the region {e : f(e) ≥ c} holding 68.27 % of
+    /// the mass starts at e_min, and the interval is [e_min, the 68.27 % quantile].
+    pub hdi_68_is_upper_limit: bool,
+    /// Highest-density 95 % interval (same rule as `hdi_68`).
     pub hdi_95: [f64; 2],
+    /// True when `hdi_95` is an upper limit [e_min, q₀.₉₅].
+    pub hdi_95_is_upper_limit: bool,
+    /// True when the kernel density peaks at e_min itself: the mode is then the boundary, not
+    /// an interior maximum, and is reported as e_min with this flag set.
+    pub mode_at_boundary: bool,
     /// P(e < 0.05 | D).
     pub p_nearly_circular: f64,
     /// Its Monte-Carlo error √(p(1−p)/ESS_tail).
@@ -441,6 +461,17 @@ pub fn summarise_eccentricity(
         }
     }
     let median_density = kde.density(median).max(1e-300);
+    let mode_at_boundary = mode <= lo;
+    let density_at_lo = kde.density(lo);
+    let hdi = |mass: f64| {
+        let shortest = highest_density_interval(&sorted, mass);
+        if density_at_lo >= kde.density(shortest[0]) {
+            ([lo, quantile_sorted(&sorted, mass)], true)
+        } else {
+            (shortest, false)
+        }
+    };
+    let (hdi_68, hdi_95) = (hdi(0.682_689_492_137_086), hdi(0.95));
     let p_low = sorted.partition_point(|&e| e < NEARLY_CIRCULAR) as f64 / nf;
     let grid: Vec<f64> = (0..DENSITY_GRID_POINTS)
         .map(|i| i as f64 / (DENSITY_GRID_POINTS - 1) as f64)
@@ -468,8 +499,11 @@ pub fn summarise_eccentricity(
         kde_bandwidth: bandwidth,
         interval_68: quantiles(0.158_655_253_931_457_05, 0.841_344_746_068_543),
         interval_95: quantiles(0.025, 0.975),
-        hdi_68: highest_density_interval(&sorted, 0.682_689_492_137_086),
-        hdi_95: highest_density_interval(&sorted, 0.95),
+        hdi_68: hdi_68.0,
+        hdi_68_is_upper_limit: hdi_68.1,
+        hdi_95: hdi_95.0,
+        hdi_95_is_upper_limit: hdi_95.1,
+        mode_at_boundary,
         p_nearly_circular: p_low,
         p_nearly_circular_mc_error: libm::sqrt(p_low * (1.0 - p_low) / tail),
         information_gain: kl_divergence_histogram(&sorted, bulk, prior),

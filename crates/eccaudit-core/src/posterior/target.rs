@@ -130,6 +130,17 @@ impl PosteriorSettings {
     }
 }
 
+/// How the parameters that enter the model linearly (one offset γ per instrument and the trend)
+/// are treated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LinearParameters {
+    /// Sampled like the others, under their priors.
+    Sampled,
+    /// Integrated out analytically under flat priors (see [`RvPosterior::marginalised`]).
+    Marginalised,
+}
+
 /// The scalar priors of [`RvPosterior`] with their constants computed once.
 #[derive(Debug, Clone, Copy)]
 struct PreparedPriors {
@@ -162,6 +173,20 @@ pub struct RvPosterior<'a> {
     fixed_normalisation: f64,
     scratch: RefCell<Vec<f64>>,
     evaluations: Cell<u64>,
+    linear: LinearParameters,
+    /// Marginalised: the sampled orbital parameters (the companions' block).
+    n_sampled_orbit: usize,
+    /// Marginalised: the full parameter vector with zero offsets and trend.
+    full: RefCell<Vec<f64>>,
+    /// Marginalised: Σ ln(prior density) of the offsets and the trend at any inside point
+    /// (flat priors: −Σ ln width).
+    linear_log_prior: f64,
+    /// Marginalised without jitter: −½ ln det(AᵀWA) + (L/2) ln 2π, fixed.
+    fixed_linear_term: f64,
+    /// Marginalised: per-instrument sums (3 per instrument) and per-point weights.
+    linear_scratch: RefCell<(Vec<f64>, Vec<f64>)>,
+    /// 1/Σ_{i∈j} σᵢ⁻² per instrument (offsets without jitter).
+    inverse_weight_sums: Vec<f64>,
 }
 
 impl<'a> RvPosterior<'a> {
@@ -204,6 +229,12 @@ impl<'a> RvPosterior<'a> {
             trend: settings.trend_prior.prepared(),
             ln_turn: libm::log(TWO_PI),
         };
+        let full = RefCell::new(vec![0.0; n_orbit_params]);
+        let mut weight_sums = vec![0.0; data.n_instruments()];
+        for (v, &j) in variances.iter().zip(data.instruments()) {
+            weight_sums[j] += 1.0 / v;
+        }
+        let inverse_weight_sums = weight_sums.iter().map(|s| 1.0 / s).collect();
         Ok(Self {
             problem,
             priors,
@@ -216,7 +247,152 @@ impl<'a> RvPosterior<'a> {
             fixed_normalisation,
             scratch: RefCell::new(vec![0.0; data.n_points()]),
             evaluations: Cell::new(0),
+            linear: LinearParameters::Sampled,
+            n_sampled_orbit: n_orbit_params,
+            full,
+            linear_log_prior: 0.0,
+            fixed_linear_term: 0.0,
+            linear_scratch: RefCell::new((
+                vec![0.0; 3 * data.n_instruments()],
+                vec![0.0; data.n_points()],
+            )),
+            inverse_weight_sums,
         })
+    }
+
+    /// The target with the offsets (and the trend, when modelled) integrated out analytically
+    /// (Gregory 2005, ApJ 631, 1198, §3 and appendix, for the offset; the same Gaussian integral
+    /// for any set of linear parameters). The sampled vector is the companions' block followed
+    /// by the jitters; offsets and trend are absent.
+    ///
+    /// With the model v = f(θ) + A b, A the n × L design matrix of the linear parameters b
+    /// (A_ij = 1 when point i belongs to instrument j; t_i − t_ref in the trend column), the
+    /// per-point weights w_i = 1/(σ_i² + s²_inst(i)) (s the jitter, 0 when not sampled), r = v − f
+    /// and W = diag(w), the likelihood is Gaussian in b:
+    ///
+    /// ln L(θ, b) = −½ (r − Ab)ᵀW(r − Ab) − ½ Σᵢ ln(2π/wᵢ).
+    ///
+    /// Under a flat prior p(b) = Π_j 1/Δ_j (the offsets' uniform prior; the trend's) wide
+    /// enough to hold the likelihood (±3·10⁵ m/s by default: the truncation is neglected),
+    /// completing the square with N = AᵀWA, b̂ = N⁻¹AᵀWr gives
+    ///
+    /// ln ∫ L p db = −½ χ²_min − ½ ln det N + (L/2) ln 2π − ½ Σᵢ ln(2π/wᵢ) − Σ_j ln Δ_j,
+    ///
+    /// χ²_min = rᵀWr − (AᵀWr)ᵀ N⁻¹ (AᵀWr). With a jitter, N depends on it through the weights,
+    /// so the ln det N term (for offsets alone, Σ_j ln Σ_{i∈j} wᵢ) must be kept: it is what
+    /// makes the marginal posterior of the jitter correct (dropping it biases s low). Without a
+    /// jitter N is fixed and the term is a constant. N is diagonal without a trend; with a trend
+    /// it is solved by Cholesky (L ≤ instruments + 1).
+    pub fn marginalised(
+        data: &'a FitData,
+        settings: &PosteriorSettings,
+        lambda_centres: &[f64],
+    ) -> Result<Self, PosteriorError> {
+        let mut target = Self::new(data, settings, lambda_centres)?;
+        let layout = target.problem.layout().clone();
+        target.linear = LinearParameters::Marginalised;
+        target.n_sampled_orbit = layout.offsets_start();
+        let width = |prior: &ScalarPrior| {
+            let (lo, hi) = prior.bounds();
+            -libm::log(hi - lo)
+        };
+        target.linear_log_prior = layout.n_instruments as f64 * width(&settings.priors.offset)
+            + if layout.trend_index().is_some() {
+                width(&settings.trend_prior)
+            } else {
+                0.0
+            };
+        if !target.jitter {
+            let weights = target.inverse_variances.clone();
+            let mut sums = vec![0.0; 3 * layout.n_instruments];
+            let (_, ln_det) =
+                target.normal_solution(&weights, &vec![0.0; weights.len()], &mut sums);
+            let n_linear = layout.n_params() - layout.offsets_start();
+            target.fixed_linear_term = -0.5 * ln_det + 0.5 * n_linear as f64 * LN_TWO_PI;
+        }
+        Ok(target)
+    }
+
+    /// How the linear parameters are treated.
+    pub fn linear_parameters(&self) -> LinearParameters {
+        self.linear
+    }
+
+    /// The sampled coordinates of a point given in the full layout (companions, offsets, trend,
+    /// jitters): itself when the linear parameters are sampled, without them when marginalised.
+    pub fn sampled_point(&self, full: &[f64]) -> Vec<f64> {
+        match self.linear {
+            LinearParameters::Sampled => full.to_vec(),
+            LinearParameters::Marginalised => full[..self.n_sampled_orbit]
+                .iter()
+                .chain(&full[self.n_orbit_params..])
+                .copied()
+                .collect(),
+        }
+    }
+
+    /// Names of the sampled parameters (`names` of the full layout, e.g.
+    /// [`PosteriorSettings::parameter_names`]).
+    pub fn sampled_names(&self, names: &[String]) -> Vec<String> {
+        match self.linear {
+            LinearParameters::Sampled => names.to_vec(),
+            LinearParameters::Marginalised => names[..self.n_sampled_orbit]
+                .iter()
+                .chain(&names[self.n_orbit_params..])
+                .cloned()
+                .collect(),
+        }
+    }
+
+    /// (bᵀN⁻¹b with b = AᵀWr, ln det N) for weights `w` and residuals `r` in the design of
+    /// [`Self::marginalised`]; `sums` holds 3 entries per instrument of scratch.
+    fn normal_solution(&self, w: &[f64], r: &[f64], sums: &mut [f64]) -> (f64, f64) {
+        let layout = self.problem.layout();
+        let n_inst = layout.n_instruments;
+        let data = self.problem.data();
+        sums.fill(0.0);
+        let (weight, rest) = sums.split_at_mut(n_inst);
+        let (rhs, cross) = rest.split_at_mut(n_inst);
+        let (mut stt, mut bt) = (0.0, 0.0);
+        if layout.trend_index().is_some() {
+            for (((&wi, &ri), &inst), &t) in w
+                .iter()
+                .zip(r)
+                .zip(data.instruments())
+                .zip(data.shifted_times())
+            {
+                weight[inst] += wi;
+                rhs[inst] += wi * ri;
+                cross[inst] += wi * t;
+                stt += wi * t * t;
+                bt += wi * ri * t;
+            }
+        } else {
+            for ((&wi, &ri), &inst) in w.iter().zip(r).zip(data.instruments()) {
+                weight[inst] += wi;
+                rhs[inst] += wi * ri;
+            }
+        }
+        let mut quad = 0.0;
+        let mut ln_det = 0.0;
+        for j in 0..n_inst {
+            quad += rhs[j] * rhs[j] / weight[j];
+            ln_det += libm::log(weight[j]);
+        }
+        if layout.trend_index().is_some() {
+            // Block elimination of the arrow matrix [[diag(S), c], [cᵀ, S_tt]]: the Schur
+            // complement of the diagonal block is S_tt − Σ c_j²/S_j, the right-hand side
+            // B_t − Σ c_j B_j/S_j; det N = Π S_j · Schur.
+            let mut schur = stt;
+            let mut reduced = bt;
+            for j in 0..n_inst {
+                schur -= cross[j] * cross[j] / weight[j];
+                reduced -= cross[j] * rhs[j] / weight[j];
+            }
+            quad += reduced * reduced / schur;
+            ln_det += libm::log(schur);
+        }
+        (quad, ln_det)
     }
 
     /// The checked priors (eccentricity prior as effectively used).
@@ -234,9 +410,9 @@ impl<'a> RvPosterior<'a> {
         self.problem.layout()
     }
 
-    /// Index of the first jitter, when sampled.
+    /// Index of the first jitter in the sampled vector, when sampled.
     pub fn jitter_start(&self) -> Option<usize> {
-        self.jitter.then_some(self.n_orbit_params)
+        self.jitter.then_some(self.n_sampled_orbit)
     }
 
     /// Log-density evaluations so far.
@@ -266,24 +442,140 @@ impl<'a> RvPosterior<'a> {
             }
             lp -= prepared.ln_turn;
         }
-        let offsets = layout.offsets_start();
-        for j in 0..layout.n_instruments {
-            lp += prepared.offset.log_density(x[offsets + j]);
-        }
-        if let Some(t) = layout.trend_index() {
-            lp += prepared.trend.log_density(x[t]);
+        if self.linear == LinearParameters::Sampled {
+            let offsets = layout.offsets_start();
+            for j in 0..layout.n_instruments {
+                lp += prepared.offset.log_density(x[offsets + j]);
+            }
+            if let Some(t) = layout.trend_index() {
+                lp += prepared.trend.log_density(x[t]);
+            }
+        } else {
+            lp += self.linear_log_prior;
         }
         if self.jitter {
             for j in 0..layout.n_instruments {
-                lp += prepared.jitter.log_density(x[self.n_orbit_params + j]);
+                lp += prepared.jitter.log_density(x[self.n_sampled_orbit + j]);
             }
         }
         lp
     }
 
+    /// The log marginal likelihood of [`Self::marginalised`] at sampled point `x`.
+    fn marginal_log_likelihood(&self, x: &[f64]) -> f64 {
+        let mut full = self.full.borrow_mut();
+        full[..self.n_sampled_orbit].copy_from_slice(&x[..self.n_sampled_orbit]);
+        let mut model = self.scratch.borrow_mut();
+        if !self.problem.model_velocities_unchecked(&full, &mut model) {
+            return f64::NEG_INFINITY;
+        }
+        let data = self.problem.data();
+        let mut scratch = self.linear_scratch.borrow_mut();
+        let (sums, weights) = &mut *scratch;
+        let n_inst = self.problem.layout().n_instruments;
+        let n_linear = self.n_orbit_params - self.n_sampled_orbit;
+        if self.problem.layout().trend_index().is_none() {
+            // Offsets only: N is diagonal, so one pass gives χ² and the per-instrument sums
+            // (Σ w, Σ w r) of the closed form (see [`Self::marginalised`]).
+            sums[..2 * n_inst].fill(0.0);
+            let (weight, rhs) = sums[..2 * n_inst].split_at_mut(n_inst);
+            let value = if self.jitter {
+                let jitters = &x[self.n_sampled_orbit..];
+                let (mut q, mut ln_var) = (0.0, 0.0);
+                for (((m, v), var), &inst) in model
+                    .iter()
+                    .zip(data.velocities())
+                    .zip(&self.variances)
+                    .zip(data.instruments())
+                {
+                    let s = jitters[inst];
+                    let total = var + s * s;
+                    let w = 1.0 / total;
+                    let r = v - m;
+                    let wr = w * r;
+                    q += wr * r;
+                    weight[inst] += w;
+                    rhs[inst] += wr;
+                    ln_var += libm::log(total);
+                }
+                let (mut quad, mut ln_det) = (0.0, 0.0);
+                for j in 0..n_inst {
+                    quad += rhs[j] * rhs[j] / weight[j];
+                    ln_det += libm::log(weight[j]);
+                }
+                -0.5 * (q - quad + ln_var + LN_TWO_PI * model.len() as f64) - 0.5 * ln_det
+                    + 0.5 * n_linear as f64 * LN_TWO_PI
+            } else {
+                let mut q = 0.0;
+                for (((m, v), w), &inst) in model
+                    .iter()
+                    .zip(data.velocities())
+                    .zip(&self.inverse_variances)
+                    .zip(data.instruments())
+                {
+                    let r = v - m;
+                    let wr = w * r;
+                    q += wr * r;
+                    rhs[inst] += wr;
+                }
+                let quad: f64 = rhs
+                    .iter()
+                    .zip(&self.inverse_weight_sums)
+                    .map(|(b, inv)| b * b * inv)
+                    .sum();
+                self.fixed_normalisation - 0.5 * (q - quad) + self.fixed_linear_term
+            };
+            return if value.is_finite() {
+                value
+            } else {
+                f64::NEG_INFINITY
+            };
+        }
+        // With a trend: the residuals overwrite the model velocities, then the arrow system.
+        for (m, v) in model.iter_mut().zip(data.velocities()) {
+            *m = v - *m;
+        }
+        let residuals: &[f64] = &model;
+        let value = if self.jitter {
+            let jitters = &x[self.n_sampled_orbit..];
+            let mut q = 0.0;
+            let mut ln_var = 0.0;
+            for (((r, var), &inst), w) in residuals
+                .iter()
+                .zip(&self.variances)
+                .zip(data.instruments())
+                .zip(weights.iter_mut())
+            {
+                let s = jitters[inst];
+                let total = var + s * s;
+                *w = 1.0 / total;
+                q += r * r * *w;
+                ln_var += libm::log(total);
+            }
+            let (quad, ln_det) = self.normal_solution(weights, residuals, sums);
+            -0.5 * (q - quad + ln_var + LN_TWO_PI * residuals.len() as f64) - 0.5 * ln_det
+                + 0.5 * n_linear as f64 * LN_TWO_PI
+        } else {
+            let mut q = 0.0;
+            for (r, w) in residuals.iter().zip(&self.inverse_variances) {
+                q += r * r * w;
+            }
+            let (quad, _) = self.normal_solution(&self.inverse_variances, residuals, sums);
+            self.fixed_normalisation - 0.5 * (q - quad) + self.fixed_linear_term
+        };
+        if value.is_finite() {
+            value
+        } else {
+            f64::NEG_INFINITY
+        }
+    }
+
     /// The log-likelihood (normalised Gaussian, see the type's notes); −∞ outside the model's
     /// domain.
     pub fn log_likelihood(&self, x: &[f64]) -> f64 {
+        if self.linear == LinearParameters::Marginalised {
+            return self.marginal_log_likelihood(x);
+        }
         let mut model = self.scratch.borrow_mut();
         // A non-finite model velocity makes the sum below non-finite (the data are finite),
         // which is caught at the end instead of by a separate pass.
@@ -329,7 +621,7 @@ impl<'a> RvPosterior<'a> {
 
 impl LogDensity for RvPosterior<'_> {
     fn dim(&self) -> usize {
-        self.n_orbit_params
+        self.n_sampled_orbit
             + if self.jitter {
                 self.problem.layout().n_instruments
             } else {
@@ -473,6 +765,108 @@ mod tests {
         assert!(target
             .log_density(&[17.3, 25.0, 0.4, 3.0, -4.0, 2.0, 0.5])
             .is_finite());
+    }
+
+    /// The marginal likelihood of [`RvPosterior::marginalised`] equals the sampled likelihood
+    /// integrated over the offsets and the trend numerically, with the flat prior density:
+    /// ∫∫∫ L(θ, γ_a, γ_b, β) dγ_a dγ_b dβ / (Δγ² Δβ), by the trapezoid rule on ±8 conditional
+    /// standard deviations around the maximum (the integrand is Gaussian in the linear
+    /// parameters, so 3 nested 161-point rules are exact to ~1e-9 relative). Checked with a
+    /// sampled jitter (per-point weights, the ln det term) and without one. The maximum and the
+    /// widths come from the sampled likelihood itself (Newton on the quadratic), not from the
+    /// code under test.
+    #[test]
+    #[allow(clippy::needless_range_loop)] // index loops mirror the matrix formulas
+    fn marginal_likelihood_equals_the_numerical_integral_over_offsets_and_trend() {
+        let data = data();
+        for jitter in [true, false] {
+            let settings = PosteriorSettings {
+                trend: true,
+                jitter,
+                ..PosteriorSettings::default()
+            };
+            let sampled = RvPosterior::new(&data, &settings, &[0.0]).unwrap();
+            let marginal = RvPosterior::marginalised(&data, &settings, &[0.0]).unwrap();
+            let orbit = [17.3, 25.0, 0.3, -0.2, 0.4];
+            let jit = [2.0, 0.5];
+            let point = |b: [f64; 3]| {
+                let mut x = orbit.to_vec();
+                x.extend_from_slice(&b);
+                if jitter {
+                    x.extend_from_slice(&jit);
+                }
+                x
+            };
+            let ll = |b: [f64; 3]| sampled.log_likelihood(&point(b));
+            // ln L is exactly quadratic in b: gradient and Hessian by central differences of
+            // step 1 (exact for a quadratic up to rounding), then one Newton step.
+            let b0 = [0.0; 3];
+            let mut grad = [0.0; 3];
+            let mut hess = [[0.0; 3]; 3];
+            let shifted = |i: usize, di: f64, j: usize, dj: f64| {
+                let mut b = b0;
+                b[i] += di;
+                b[j] += dj;
+                ll(b)
+            };
+            for i in 0..3 {
+                grad[i] = (shifted(i, 1.0, i, 0.0) - shifted(i, -1.0, i, 0.0)) / 2.0;
+                for j in 0..3 {
+                    hess[i][j] = (shifted(i, 1.0, j, 1.0)
+                        - shifted(i, 1.0, j, -1.0)
+                        - shifted(i, -1.0, j, 1.0)
+                        + shifted(i, -1.0, j, -1.0))
+                        / 4.0;
+                }
+            }
+            // Solve H δ = −g by Cramer's rule.
+            let det3 = |m: [[f64; 3]; 3]| {
+                m[0][0] * (m[1][1] * m[2][2] - m[1][2] * m[2][1])
+                    - m[0][1] * (m[1][0] * m[2][2] - m[1][2] * m[2][0])
+                    + m[0][2] * (m[1][0] * m[2][1] - m[1][1] * m[2][0])
+            };
+            let d = det3(hess);
+            let mut best = [0.0; 3];
+            for (k, v) in best.iter_mut().enumerate() {
+                let mut m = hess;
+                for r in 0..3 {
+                    m[r][k] = -grad[r];
+                }
+                *v = det3(m) / d;
+            }
+            let peak = ll(best);
+            let sd: Vec<f64> = (0..3).map(|i| (-1.0 / hess[i][i]).sqrt()).collect();
+            let n = 161;
+            let half = 8.0;
+            let mut integral = 0.0;
+            for i in 0..n {
+                let a = best[0] + sd[0] * half * (2.0 * i as f64 / (n - 1) as f64 - 1.0);
+                for j in 0..n {
+                    let b = best[1] + sd[1] * half * (2.0 * j as f64 / (n - 1) as f64 - 1.0);
+                    for k in 0..n {
+                        let t = best[2] + sd[2] * half * (2.0 * k as f64 / (n - 1) as f64 - 1.0);
+                        let w = |idx: usize| if idx == 0 || idx == n - 1 { 0.5 } else { 1.0 };
+                        integral += w(i) * w(j) * w(k) * (ll([a, b, t]) - peak).exp();
+                    }
+                }
+            }
+            let cell: f64 = sd.iter().map(|s| s * 2.0 * half / (n - 1) as f64).product();
+            let log_integral = peak + (integral * cell).ln();
+            let (lo, hi) = settings.priors.offset.bounds();
+            let (tlo, thi) = settings.trend_prior.bounds();
+            let log_prior = -2.0 * (hi - lo).ln() - (thi - tlo).ln();
+            let mut y = orbit.to_vec();
+            if jitter {
+                y.extend_from_slice(&jit);
+            }
+            let expected = log_integral + log_prior;
+            let got = marginal.log_likelihood(&y) + marginal.linear_log_prior;
+            assert!(
+                (got - expected).abs() < 1e-6,
+                "jitter {jitter}: {got} vs {expected}"
+            );
+            assert_eq!(marginal.dim(), 5 + if jitter { 2 } else { 0 });
+        }
     }
 
     #[test]

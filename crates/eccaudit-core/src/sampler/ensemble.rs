@@ -61,6 +61,9 @@ pub struct SamplerSettings {
     pub stretch_a: f64,
     /// Seed of the random stream.
     pub seed: u64,
+    /// Fraction of walker updates made by the differential-evolution move instead of the
+    /// stretch move (0 = stretch only; default 0.5). See [`EnsembleState`]'s step.
+    pub de_fraction: f64,
 }
 
 impl Default for SamplerSettings {
@@ -72,9 +75,16 @@ impl Default for SamplerSettings {
             thin: 1,
             stretch_a: 2.0,
             seed: 1,
+            de_fraction: DEFAULT_DE_FRACTION,
         }
     }
 }
+
+/// Default share of differential-evolution updates: half, so that each walker alternates between
+/// the stretch move (robust to scale, affine invariant) and the DE move (optimal random-walk
+/// scale for Gaussian-like targets and, through γ = 1 jumps, mode hopping). A stated choice,
+/// measured on the posterior of `bench --posterior` (DEVELOPERS.md § Performance).
+pub const DEFAULT_DE_FRACTION: f64 = 0.5;
 
 /// Errors of the ensemble sampler.
 #[derive(Debug, Clone, PartialEq, Error)]
@@ -98,6 +108,22 @@ pub enum SamplerError {
     /// A count is above its bound in [`crate::limits`].
     #[error(transparent)]
     TooLarge(#[from] crate::limits::LimitError),
+    /// DE fraction outside [0, 1].
+    #[error("de_fraction = {de_fraction} must lie in [0, 1]")]
+    DeFraction {
+        /// Value given.
+        de_fraction: f64,
+    },
+    /// Initial positions of the wrong length.
+    #[error("{got} initial coordinates given for {n_walkers} walkers of {dim} parameters")]
+    Positions {
+        /// Coordinates given.
+        got: usize,
+        /// Walkers.
+        n_walkers: usize,
+        /// Parameters.
+        dim: usize,
+    },
     /// Stretch scale not above 1.
     #[error("stretch_a = {stretch_a} must be a finite number above 1 (2 is usual)")]
     StretchScale {
@@ -243,6 +269,36 @@ impl Chains {
         &self.samples[self.samples.len() - per_step..]
     }
 
+    /// The walkers of several ensembles of equal length and dimension side by side, as one set
+    /// of chains (ensemble 0's walkers first); for summaries and figures of independent
+    /// ensembles run together.
+    pub fn concat_walkers(ensembles: &[&Chains]) -> Chains {
+        let Some(first) = ensembles.first() else {
+            return Chains::default();
+        };
+        let (dim, n) = (first.dim, first.n_stored_steps);
+        let n_walkers: usize = ensembles.iter().map(|c| c.n_walkers).sum();
+        let mut samples = Vec::with_capacity(n * n_walkers * dim);
+        let mut log_densities = Vec::with_capacity(n * n_walkers);
+        for step in 0..n {
+            for c in ensembles {
+                let w = c.n_walkers;
+                samples.extend_from_slice(&c.samples[step * w * dim..(step + 1) * w * dim]);
+                log_densities.extend_from_slice(&c.log_densities[step * w..(step + 1) * w]);
+            }
+        }
+        Chains {
+            n_walkers,
+            dim,
+            thin: first.thin,
+            n_stored_steps: n,
+            samples,
+            log_densities,
+            accepted: ensembles.iter().flat_map(|c| c.accepted.clone()).collect(),
+            proposals_per_walker: first.proposals_per_walker,
+        }
+    }
+
     /// Acceptance fraction of each walker after burn-in.
     pub fn acceptance_fractions(&self) -> Vec<f64> {
         self.accepted
@@ -285,34 +341,7 @@ impl EnsembleState {
         settings: &SamplerSettings,
     ) -> Result<Self, SamplerError> {
         let dim = target.dim();
-        if dim == 0 {
-            return Err(SamplerError::NoParameters);
-        }
-        let minimum = 2 * dim;
-        if settings.n_walkers < minimum || !settings.n_walkers.is_multiple_of(2) {
-            return Err(SamplerError::WalkerCount {
-                n_walkers: settings.n_walkers,
-                dim,
-                minimum,
-            });
-        }
-        if !(settings.stretch_a.is_finite() && settings.stretch_a > 1.0) {
-            return Err(SamplerError::StretchScale {
-                stretch_a: settings.stretch_a,
-            });
-        }
-        if settings.thin == 0 || settings.n_steps < settings.thin {
-            return Err(SamplerError::NothingStored {
-                n_steps: settings.n_steps,
-                thin: settings.thin,
-            });
-        }
-        crate::limits::check_sampler_counts(
-            settings.n_walkers,
-            settings.n_burn,
-            settings.n_steps,
-            settings.thin,
-        )?;
+        check_settings(dim, settings)?;
         for (what, values) in [("start", start), ("scales", scales)] {
             if values.len() != dim {
                 return Err(SamplerError::Length {
@@ -359,6 +388,60 @@ impl EnsembleState {
                 }
             }
         }
+        Ok(Self::assemble(settings, dim, rng, positions, log_densities))
+    }
+
+    /// Starts from given walker positions (walker-major, `dim` each), e.g. a dispersed set
+    /// prepared by the caller, on random stream `stream` of `settings.seed` (so that several
+    /// independent ensembles of one seed draw independent numbers). Every position must have a
+    /// finite log-density.
+    pub fn from_positions(
+        target: &impl LogDensity,
+        positions: Vec<f64>,
+        settings: &SamplerSettings,
+        stream: u64,
+    ) -> Result<Self, SamplerError> {
+        let dim = target.dim();
+        check_settings(dim, settings)?;
+        if positions.len() != settings.n_walkers * dim {
+            return Err(SamplerError::Positions {
+                got: positions.len(),
+                n_walkers: settings.n_walkers,
+                dim,
+            });
+        }
+        let mut log_densities = Vec::with_capacity(settings.n_walkers);
+        for (walker, x) in positions.chunks_exact(dim).enumerate() {
+            if let Some((index, &value)) = x.iter().enumerate().find(|(_, v)| !v.is_finite()) {
+                let _ = walker;
+                return Err(SamplerError::NonFiniteStart { index, value });
+            }
+            let lp = finite_or_minus_infinity(target.log_density(x));
+            if !lp.is_finite() {
+                return Err(SamplerError::NoValidStart {
+                    walker,
+                    attempts: 1,
+                });
+            }
+            log_densities.push(lp);
+        }
+        Ok(Self::assemble(
+            settings,
+            dim,
+            stream_rng(settings.seed, stream),
+            positions,
+            log_densities,
+        ))
+    }
+
+    fn assemble(
+        settings: &SamplerSettings,
+        dim: usize,
+        rng: SimRng,
+        positions: Vec<f64>,
+        log_densities: Vec<f64>,
+    ) -> Self {
+        let n_walkers = settings.n_walkers;
         let n_stored = settings.n_steps / settings.thin;
         let chains = Chains {
             n_walkers,
@@ -370,7 +453,7 @@ impl EnsembleState {
             accepted: vec![0; n_walkers],
             proposals_per_walker: 0,
         };
-        Ok(EnsembleState {
+        EnsembleState {
             settings: *settings,
             dim,
             rng,
@@ -380,7 +463,85 @@ impl EnsembleState {
             accepted_all: 0,
             proposal: vec![0.0; dim],
             chains,
-        })
+        }
+    }
+
+    /// The settings (with `n_steps` as extended so far).
+    pub fn settings(&self) -> &SamplerSettings {
+        &self.settings
+    }
+
+    /// Steps done so far, burn-in included.
+    pub fn steps_done(&self) -> usize {
+        self.steps_done
+    }
+
+    /// Plans `extra` more steps after the planned end (run-until-converged extends a run this
+    /// way; the chains continue exactly as if the longer run had been planned from the start).
+    pub fn extend(&mut self, extra: usize) {
+        self.settings.n_steps += extra;
+        self.chains
+            .samples
+            .reserve(extra / self.settings.thin * self.settings.n_walkers * self.dim);
+    }
+
+    /// Keeps every second stored step and doubles the thinning, so that a long run holds at most
+    /// a bounded number of stored steps: stored step s is step n_burn + (s + 1)·thin, so the
+    /// odd-numbered ones are exactly those of the doubled thinning, and later steps are stored
+    /// by it.
+    pub fn halve_storage(&mut self) {
+        let (w, dim) = (self.settings.n_walkers, self.dim);
+        let chains = &mut self.chains;
+        let kept = chains.n_stored_steps / 2;
+        for s in 0..kept {
+            let from = 2 * s + 1;
+            chains
+                .samples
+                .copy_within(from * w * dim..(from + 1) * w * dim, s * w * dim);
+            chains
+                .log_densities
+                .copy_within(from * w..(from + 1) * w, s * w);
+        }
+        chains.samples.truncate(kept * w * dim);
+        chains.log_densities.truncate(kept * w);
+        chains.n_stored_steps = kept;
+        self.settings.thin *= 2;
+        chains.thin = self.settings.thin;
+    }
+
+    /// Moves every walker whose log-density lies more than `gap` below the median of the
+    /// ensemble's onto the position of a randomly chosen walker that does not (drawn from the
+    /// state's own stream), and returns the walkers moved. Meant for the end of burn-in only,
+    /// whose draws are discarded: it removes walkers stranded in a far lower-probability mode,
+    /// which the stretch move hardly ever brings back (Goodman & Weare 2010, §5; a walker in a
+    /// mode e^gap times less probable contributes nothing to the posterior). Common practice.
+    pub fn relocate_stranded_walkers(&mut self, gap: f64) -> Vec<usize> {
+        let n = self.settings.n_walkers;
+        let mut sorted = self.log_densities.clone();
+        sorted.sort_by(f64::total_cmp);
+        let median = sorted[n / 2];
+        let stranded: Vec<usize> = (0..n)
+            // NaN-safe: a walker whose log-density is not above the cut is stranded.
+            .filter(|&k| {
+                self.log_densities[k].partial_cmp(&(median - gap))
+                    != Some(std::cmp::Ordering::Greater)
+                    && self.log_densities[k] != median - gap
+            })
+            .collect();
+        let good: Vec<usize> = (0..n).filter(|k| !stranded.contains(k)).collect();
+        if good.is_empty() {
+            return Vec::new();
+        }
+        let dim = self.dim;
+        for &k in &stranded {
+            let j = good[self.rng.random_range(0..good.len() as u32) as usize];
+            let (from, to) = (j * dim, k * dim);
+            for i in 0..dim {
+                self.positions[to + i] = self.positions[from + i];
+            }
+            self.log_densities[k] = self.log_densities[j];
+        }
+        stranded
     }
 
     /// Steps planned in total (`n_burn + n_steps`).
@@ -444,32 +605,67 @@ impl EnsembleState {
         Ok(todo)
     }
 
-    /// One step of the parallel stretch move (Foreman-Mackey et al. 2013,
-    /// PASP 125, 306, Algorithm 3; Goodman & Weare 2010, CAMCOS 5, 65, eq. 7
-    /// and 9): the first half of the walkers moves using the second half as
-    /// the complementary ensemble, then the second half using the updated
-    /// first half. Proposal `Y = X_j + z (X_k − X_j)` with `z` drawn from
-    /// `g(z) ∝ 1/√z` on `[1/a, a]`; accepted with probability
-    /// `min(1, z^(d−1) p(Y)/p(X_k))`.
+    /// One step of the parallel ensemble update (Foreman-Mackey et al. 2013, PASP 125, 306,
+    /// Algorithm 3): the first half of the walkers moves using the second half as the
+    /// complementary ensemble, then the second half using the updated first half. Each walker
+    /// update is, with probability `de_fraction`, a differential-evolution move and otherwise a
+    /// stretch move; a random choice of valid Metropolis–Hastings kernels independent of the
+    /// state is itself valid (a mixture kernel; Tierney 1994, Ann. Stat. 22, 1701, §2.4).
+    ///
+    /// * Stretch move (Goodman & Weare 2010, CAMCOS 5, 65, eqs. 7 and 9): proposal
+    ///   `Y = X_j + z (X_k − X_j)` with `z` drawn from `g(z) ∝ 1/√z` on `[1/a, a]`; accepted
+    ///   with probability `min(1, z^(d−1) p(Y)/p(X_k))`.
+    /// * Differential-evolution move (ter Braak 2006, Stat. Comput. 16, 239, eq. 2; used for RV
+    ///   fits by Nelson, Ford & Payne 2014, ApJS 210, 11): `Y = X_k + γ (X_r1 − X_r2)` with
+    ///   r1 ≠ r2 two walkers of the complementary half, γ = 2.38/√(2d) · (1 + 0.1 ξ), ξ ~ N(0, 1)
+    ///   (ter Braak's optimal scale for Gaussian targets, jittered), and γ = 1 in one move of
+    ///   ten (ter Braak's jump between modes); the proposal is symmetric (the pair (r2, r1) is as
+    ///   likely as (r1, r2)), so it is accepted with probability `min(1, p(Y)/p(X_k))`.
     fn step(&mut self, target: &impl LogDensity) {
         let n_walkers = self.settings.n_walkers;
         let half = n_walkers / 2;
         let a = self.settings.stretch_a;
+        let de_fraction = self.settings.de_fraction;
         let dim = self.dim;
+        let gamma_0 = 2.38 / libm::sqrt(2.0 * dim as f64);
         let post_burn = self.steps_done >= self.settings.n_burn;
         for (active_start, other_start) in [(0, half), (half, 0)] {
             for k in active_start..active_start + half {
                 // u32 range sampling is the same on 32- and 64-bit targets.
-                let j = other_start + self.rng.random_range(0..half as u32) as usize;
-                let u: f64 = self.rng.random();
-                let z = ((a - 1.0) * u + 1.0) * ((a - 1.0) * u + 1.0) / a;
-                for i in 0..dim {
-                    let x_j = self.positions[j * dim + i];
-                    let x_k = self.positions[k * dim + i];
-                    self.proposal[i] = x_j + z * (x_k - x_j);
-                }
+                let use_de = de_fraction > 0.0 && half >= 2 && {
+                    let u: f64 = self.rng.random();
+                    u < de_fraction
+                };
+                let log_jacobian = if use_de {
+                    let r1 = other_start + self.rng.random_range(0..half as u32) as usize;
+                    let mut r2 = other_start + self.rng.random_range(0..half as u32 - 1) as usize;
+                    if r2 >= r1 {
+                        r2 += 1;
+                    }
+                    let jump: f64 = self.rng.random();
+                    let gamma = if jump < 0.1 {
+                        1.0
+                    } else {
+                        gamma_0 * (1.0 + 0.1 * standard_normal(&mut self.rng))
+                    };
+                    for i in 0..dim {
+                        let d = self.positions[r1 * dim + i] - self.positions[r2 * dim + i];
+                        self.proposal[i] = self.positions[k * dim + i] + gamma * d;
+                    }
+                    0.0
+                } else {
+                    let j = other_start + self.rng.random_range(0..half as u32) as usize;
+                    let u: f64 = self.rng.random();
+                    let z = ((a - 1.0) * u + 1.0) * ((a - 1.0) * u + 1.0) / a;
+                    for i in 0..dim {
+                        let x_j = self.positions[j * dim + i];
+                        let x_k = self.positions[k * dim + i];
+                        self.proposal[i] = x_j + z * (x_k - x_j);
+                    }
+                    (dim as f64 - 1.0) * libm::log(z)
+                };
                 let lp_new = finite_or_minus_infinity(target.log_density(&self.proposal));
-                let log_ratio = (dim as f64 - 1.0) * libm::log(z) + lp_new - self.log_densities[k];
+                let log_ratio = log_jacobian + lp_new - self.log_densities[k];
                 let u_accept: f64 = self.rng.random();
                 // ln u < 0 for u in [0, 1), so a non-negative log ratio accepts without the
                 // logarithm (the same decision, and the same draws, as always taking it).
@@ -497,6 +693,44 @@ impl EnsembleState {
             }
         }
     }
+}
+
+/// The checks shared by both constructors.
+fn check_settings(dim: usize, settings: &SamplerSettings) -> Result<(), SamplerError> {
+    if dim == 0 {
+        return Err(SamplerError::NoParameters);
+    }
+    let minimum = 2 * dim;
+    if settings.n_walkers < minimum || !settings.n_walkers.is_multiple_of(2) {
+        return Err(SamplerError::WalkerCount {
+            n_walkers: settings.n_walkers,
+            dim,
+            minimum,
+        });
+    }
+    if !(settings.stretch_a.is_finite() && settings.stretch_a > 1.0) {
+        return Err(SamplerError::StretchScale {
+            stretch_a: settings.stretch_a,
+        });
+    }
+    if !(settings.de_fraction >= 0.0 && settings.de_fraction <= 1.0) {
+        return Err(SamplerError::DeFraction {
+            de_fraction: settings.de_fraction,
+        });
+    }
+    if settings.thin == 0 || settings.n_steps < settings.thin {
+        return Err(SamplerError::NothingStored {
+            n_steps: settings.n_steps,
+            thin: settings.thin,
+        });
+    }
+    crate::limits::check_sampler_counts(
+        settings.n_walkers,
+        settings.n_burn,
+        settings.n_steps,
+        settings.thin,
+    )?;
+    Ok(())
 }
 
 fn finite_or_minus_infinity(lp: f64) -> f64 {
@@ -551,6 +785,7 @@ mod tests {
             thin: 3,
             stretch_a: 2.0,
             seed: 42,
+            de_fraction: 0.5,
         }
     }
 
