@@ -542,8 +542,9 @@ impl InjectionDesign {
     }
 }
 
-/// A random ω in [0, 2π) (used when the design gives no ω axis).
-pub(crate) fn random_angle<R: rand::Rng + ?Sized>(rng: &mut R) -> f64 {
+/// A random angle uniform in [0, 2π) (the injected ω when the design gives no ω axis, and the
+/// injected mean anomaly).
+pub fn random_angle<R: rand::Rng + ?Sized>(rng: &mut R) -> f64 {
     TWO_PI * rng.random::<f64>()
 }
 
