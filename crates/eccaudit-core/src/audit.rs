@@ -476,20 +476,13 @@ fn background_velocities(
 
 /// The rest of the model in each simulation of companion `audited` (0-based) of `fit`: the
 /// background velocity (other companions, trend, offsets of the eccentric solution), the
-/// fitted instrument jitters (when the jitter mode fitted them), and the refit's model with the
-/// audited companion's period first.
+/// fitted instrument jitters (when the jitter mode fitted them), and the refit's model in the
+/// real fit's order of companions.
 pub fn trial_model(data: &FitData, fit: &ModelFit, audited: usize) -> TrialModel {
     let solution = &fit.report.eccentric;
     let trend = solution.trend.is_some();
-    let mut periods = vec![solution.companions[audited].period.value];
-    periods.extend(
-        solution
-            .companions
-            .iter()
-            .enumerate()
-            .filter(|(i, _)| *i != audited)
-            .map(|(_, c)| c.period.value),
-    );
+    // The real fit's order: the audited companion keeps its place.
+    let periods: Vec<f64> = solution.companions.iter().map(|c| c.period.value).collect();
     TrialModel {
         background: background_velocities(data, solution, trend, audited),
         instrument_jitters: if fit.jitter.fitted {
@@ -502,6 +495,7 @@ pub fn trial_model(data: &FitData, fit: &ModelFit, audited: usize) -> TrialModel
             Vec::new()
         },
         periods,
+        audited,
         trend,
         fit_jitter: fit.jitter.fitted,
     }
@@ -846,7 +840,8 @@ mod tests {
             let comp = &solution.companions[audited];
             periods_seen.push(design.period);
             assert_eq!(design.model.periods.len(), 2);
-            assert_eq!(design.model.periods[0], comp.period.value);
+            assert_eq!(design.model.periods[audited], comp.period.value);
+            assert_eq!(design.model.audited, audited);
             assert!(design.model.trend && design.model.fit_jitter);
             assert_eq!(design.model.instrument_jitters.len(), 2);
             let omega = comp.omega_deg.value.to_radians();

@@ -114,6 +114,14 @@ impl Estimator for PosteriorEstimator {
             EstimatorError::Other(format!("posterior ({}): {e}", self.tag))
         };
         let prior = self.prior.validate().map_err(|e| other(&e))?;
+        if design.model.audited != 0 {
+            // The posterior summary describes companion 1 of the model; another companion's
+            // e is not summarised yet, so no number is given rather than a wrong one.
+            return Err(other(&format!(
+                "only companion 1's eccentricity is summarised; companion {} is audited",
+                design.model.audited + 1
+            )));
+        }
         let report = fit_orbit(
             data,
             &LeastSquaresEstimator::default().fit_options_for(design),
