@@ -173,6 +173,7 @@ impl InjectRequest {
             jitter: self.jitter,
             trials_per_cell: self.trials,
             seed: self.seed,
+            model: Default::default(),
         };
         design.validate().map_err(|e| e.to_string())?;
         design.semi_amplitudes = if !self.k.is_empty() {
