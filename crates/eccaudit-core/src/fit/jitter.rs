@@ -186,10 +186,8 @@ mod bias_tests {
             var_ml < truth * truth - 4.0 * se_ml,
             "ML: mean s^2 = {var_ml} ± {se_ml}, mean s = {mean_ml}"
         );
+        // Measured on this seed: Baluev mean s = 2.919, mean s² = 8.91 ± 0.24; ML mean s = 2.443,
+        // mean s² = 6.33 ± 0.19.
         assert!(mean_ml < mean_b, "ML {mean_ml} vs Baluev {mean_b}");
-        eprintln!(
-            "jitter 3 m/s: Baluev mean s = {mean_b:.3}, s^2 = {var_b:.3} ± {se_b:.3}; \
-             ML mean s = {mean_ml:.3}, s^2 = {var_ml:.3} ± {se_ml:.3}"
-        );
     }
 }
