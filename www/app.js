@@ -1,5 +1,5 @@
 // eccaudit page: DOM and events only. Every number comes from the wasm core.
-import init, { Dataset, demoTables, version } from "./pkg/eccaudit_web.js";
+import init, { Dataset, defaultModelSpec, demoTables, version } from "./pkg/eccaudit_web.js";
 import { wireAudit } from "./audit-view.js";
 import { wireSurvey } from "./survey-view.js";
 import { initPriorsView } from "./priors-view.js";
@@ -217,16 +217,51 @@ function readFitSettings(form) {
     if (!Number.isFinite(value)) throw new Error(`${label}: '${raw}' is not a number`);
     return value;
   };
+  const periods = String(data.get("periods") ?? "").split(/[,\s]+/).filter((s) => s !== "").map((s) => {
+    const v = Number(s);
+    if (!Number.isFinite(v)) throw new Error(`periods: '${s}' is not a number`);
+    return v;
+  });
+  const maxFap = period("maxFap", "FAP limit");
   const settings = {
     companions: Number(data.get("companions")),
-    jitter: data.get("jitter") === "on",
+    periods,
+    jitter: String(data.get("jitter")),
     trend: data.get("trend") === "on",
   };
   const minPeriod = period("minPeriod", "min period");
   const maxPeriod = period("maxPeriod", "max period");
   if (minPeriod !== undefined) settings.minPeriod = minPeriod;
   if (maxPeriod !== undefined) settings.maxPeriod = maxPeriod;
+  if (maxFap !== undefined) settings.maxFap = maxFap;
   return settings;
+}
+
+/**
+ * The model of the fit form as the core's ModelSpec (snake_case, as in the replay file), used
+ * by the fit, the prior set and the audit alike. Throws on a value that is not a number.
+ */
+function currentModelSpec() {
+  const s = readFitSettings($("fit-settings"));
+  const spec = JSON.parse(defaultModelSpec());
+  spec.companions = s.companions;
+  spec.periods = s.periods;
+  spec.jitter = s.jitter;
+  spec.trend = s.trend;
+  if (s.minPeriod !== undefined) spec.min_period = s.minPeriod;
+  if (s.maxPeriod !== undefined) spec.max_period = s.maxPeriod;
+  if (s.maxFap !== undefined) spec.max_fap = s.maxFap;
+  return spec;
+}
+
+// The form's defaults come from the core (defaultModelSpec), not from the HTML.
+function fillModelDefaults(form) {
+  const spec = JSON.parse(defaultModelSpec());
+  form.elements.companions.value = String(spec.companions);
+  form.elements.jitter.value = spec.jitter;
+  form.elements.trend.checked = spec.trend;
+  form.elements.maxFap.value = String(spec.max_fap);
+  form.elements.minPeriod.placeholder = String(spec.min_period);
 }
 
 function clearFit() {
@@ -265,8 +300,15 @@ function renderFitStatus(report) {
   status.textContent =
     `${solution.converged ? "Converged" : "Not converged: the best point found is shown"}. ` +
     `${report.n_reached_best} of ${report.n_starts_last_stage} starts reached the best χ² ` +
-    `(${report.n_starts} starts in all). Adopted: ${report.adopted} solution.`;
-  $("fit-warnings").replaceChildren(...report.warnings.map((w) => el("li", {}, w)));
+    `(${report.n_starts} starts in all). Adopted: ${report.adopted} solution. ` +
+    `χ² = ${fmt(report.goodness.chi_squared, 2)} for ${report.goodness.dof} degrees of freedom ` +
+    `(p = ${report.goodness.p_value === null ? "–" : report.goodness.p_value.toPrecision(3)}). ` +
+    `Jitter: ${report.jitter.reason}.`;
+  // The notes (excess scatter, marginal detections) come first.
+  $("fit-warnings").replaceChildren(
+    ...report.notes.map((w) => el("li", { class: "note" }, w)),
+    ...report.warnings.map((w) => el("li", {}, w)),
+  );
 }
 
 function renderElements(report) {
@@ -363,6 +405,7 @@ async function runFit(form) {
 
 function wireFit() {
   const form = $("fit-settings");
+  fillModelDefaults(form);
   form.addEventListener("submit", (ev) => {
     ev.preventDefault();
     runFit(form);
@@ -413,9 +456,9 @@ async function main() {
   wireModelForm();
   wireFit();
   wireExports();
-  state.audit = wireAudit({ currentTable: () => state.table, el });
+  state.audit = wireAudit({ currentTable: () => state.table, el, currentModel: currentModelSpec });
   wireSurvey({ settingsFor: state.audit.settingsFor, el });
-  initPriorsView({ currentTable: () => state.source });
+  initPriorsView({ currentTable: () => state.source, currentModel: currentModelSpec });
   if (demos.length > 0) {
     select.value = "0";
     await loadTable(demos[0].text, demos[0].file_name);

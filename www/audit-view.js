@@ -66,15 +66,18 @@ async function copyText(text) {
 /**
  * Wire the "Injection–recovery" and "Statement" sections.
  * `currentTable()` returns the loaded table as {text, name, velocityUnit, timeConvention} or null;
- * `el` builds DOM nodes from text. Returns {tableChanged()} for the loader to call.
+ * `el` builds DOM nodes from text; `currentModel()` returns the model of the fit form (the
+ * core's ModelSpec), which the audit fits and simulates. Returns {tableChanged()} for the
+ * loader to call.
  */
-export function wireAudit({ currentTable, el }) {
+export function wireAudit({ currentTable, el, currentModel }) {
   const form = $("audit-settings");
   const defaults = JSON.parse(defaultAuditSettings());
   form.elements.eccentricities.value = defaults.injection.eccentricities.join(", ");
   form.elements.trials.value = String(defaults.injection.trials_per_cell);
   form.elements.seed.value = String(defaults.seed);
   form.elements.jitter.value = String(defaults.injection.jitter);
+  form.elements.audit_companion.value = String(defaults.model.audit_companion ?? 1);
   form.elements.period_search.checked = defaults.injection.period_search;
   form.elements.posterior_walkers.value = String(defaults.injection.posterior.n_walkers);
   form.elements.posterior_steps.value = String(defaults.injection.posterior.n_steps);
@@ -107,7 +110,10 @@ export function wireAudit({ currentTable, el }) {
     const settings = JSON.parse(defaultAuditSettings());
     settings.injection.eccentricities = grid;
     settings.injection.trials_per_cell = number("trials", "trials per e", positiveWhole);
-    settings.injection.jitter = number("jitter", "jitter", nonNegative);
+    settings.model = currentModel();
+    // The page audits one companion per run (the CLI replay of these settings audits the same one).
+    settings.model.audit_companion = number("audit_companion", "audited companion", positiveWhole);
+    settings.injection.jitter = number("jitter", "added noise", nonNegative);
     settings.injection.period_search = data.get("period_search") === "on";
     settings.seed = number("seed", "seed", whole);
     const even = Object.assign((v) => Number.isSafeInteger(v) && v >= 2 && v % 2 === 0, { need: "must be an even whole number ≥ 2" });

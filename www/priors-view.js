@@ -23,6 +23,7 @@ const messageOf = (err) => (err instanceof Error ? err.message : String(err));
 
 const view = {
   currentTable: () => null, // { text, sourceName, velocityUnit, timeConvention } of the loaded table
+  currentModel: () => ({}), // the model of the fit form (the core's ModelSpec)
   running: null,            // { workers, cancelled } while a set runs
   shown: null,              // the PriorSet whose results are on the page
 };
@@ -70,6 +71,7 @@ function readRequest(form, lines) {
     steps: readInteger(form, "steps", "steps"),
     burn: readInteger(form, "burn", "burn-in"),
     seed: readInteger(form, "seed", "seed"),
+    model: view.currentModel(),
   };
 }
 
@@ -292,9 +294,13 @@ function showResults(set) {
   drawChosen();
 }
 
-/** Wire the section; `currentTable()` returns the loaded table's text and read options. */
-export function initPriorsView({ currentTable }) {
+/**
+ * Wire the section; `currentTable()` returns the loaded table's text and read options,
+ * `currentModel()` the model of the fit form (companions, trend, jitter mode, …).
+ */
+export function initPriorsView({ currentTable, currentModel }) {
   view.currentTable = currentTable;
+  view.currentModel = currentModel;
   $("priors-specs").value = defaultPriorSpecs().join("\n");
   const form = $("priors-settings");
   form.addEventListener("submit", (ev) => {

@@ -159,9 +159,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let plans =
         AuditPlan::all(&table, &settings).with_context(|| format!("audit of `{source_name}`"))?;
     let several = plans.len() > 1;
-    if let Some(first) = plans.first() {
-        for note in &first.model_fit().notes {
-            eprintln!("eccaudit: {note}");
+    if args.json {
+        if let Some(first) = plans.first() {
+            for note in &first.model_fit().notes {
+                eprintln!("eccaudit: {note}");
+            }
         }
     }
     if !args.json {

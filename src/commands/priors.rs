@@ -13,8 +13,8 @@ use eccaudit_core::posterior::{
     prior_sensitivity, PosteriorProgress, SensitivityReport, SensitivityRequest,
     SensitivitySettings,
 };
-use eccaudit_core::spec::fit_model;
 use eccaudit_core::sampler::Steer;
+use eccaudit_core::spec::fit_model;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
     corner_figure, corner_figure_size, draw_corner, draw_eccentricity_posteriors, draw_traces,

@@ -4,7 +4,7 @@
 import { test, before, after } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
-import { existsSync, mkdtempSync, readFileSync, rmSync } from "node:fs";
+import { existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import path from "node:path";
 import { fileURLToPath } from "node:url";
@@ -162,6 +162,67 @@ test("Cancel stops the workers, keeps nothing of the cancelled run, and the page
   await setGrid({ e: "0, 0.3", trials: 2, seed: 5 });
   await runToEnd();
   assert.match(await page.textContent("#audit-status"), /^Done: 4 trials/);
+  assert.deepEqual(app.consoleErrors, []);
+});
+
+// Two circular companions (9.7 d, 25 m/s; 61 d, 12 m/s), a trend of 0.05 m/s/d and two
+// instruments with extra scatter, from a fixed-seed generator (mulberry32, common practice).
+function twoCompanionTrendTable() {
+  let a = 20261203;
+  const uniform = () => {
+    a = (a + 0x6d2b79f5) | 0;
+    let t = Math.imul(a ^ (a >>> 15), 1 | a);
+    t = (t + Math.imul(t ^ (t >>> 7), 61 | t)) ^ t;
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  const gauss = () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+  let text = "bjd,rv [m/s],err [m/s],instrument\n";
+  for (let i = 0; i < 60; i++) {
+    const t = 2460000 + 5 * i + 3.5 * uniform();
+    const [name, offset, sigma] = i % 3 === 0 ? ["Wren", 35, 2.5] : ["Heron", -20, 1.5];
+    const v = 25 * Math.cos((2 * Math.PI * (t - 2460002)) / 9.7) + 12 * Math.cos((2 * Math.PI * (t - 2460030)) / 61)
+      + 0.05 * (t - 2460150) + offset + Math.hypot(sigma, 3) * gauss();
+    text += `${t.toFixed(5)},${v.toFixed(3)},${sigma},${name}\n`;
+  }
+  return text;
+}
+
+test("two companions + trend + fitted jitter: the page's audit of companion 2 is the command line's", async () => {
+  const { page } = app;
+  const file = path.join(TMP, "two-companions-trend.csv");
+  writeFileSync(file, twoCompanionTrendTable());
+  const attempts = await page.evaluate(() => Number(document.body.dataset.loadAttempts ?? 0));
+  await page.setInputFiles("#file-input", file);
+  await page.waitForFunction((n) => Number(document.body.dataset.loadAttempts) > n, attempts);
+  await page.selectOption("select[name=companions]", "2");
+  await page.check("#fit-settings [name='trend']");
+  await page.selectOption("#fit-settings [name='jitter']", "fit");
+  await page.fill("#audit-settings [name='audit_companion']", "2");
+  await setGrid({ e: "0, 0.3", trials: 3, seed: 4 });
+  // 2 companions, 2 offsets, a trend and 2 jitters: 15 parameters, so at least 30 walkers.
+  await page.fill("#audit-settings [name='posterior_walkers']", "32");
+  await page.fill("#audit-settings [name='posterior_steps']", "100");
+  await page.fill("#audit-settings [name='posterior_burn']", "50");
+  await runToEnd();
+  const settings = await saveDownload("#download-settings", "two-settings.json");
+  const replay = JSON.parse(readFileSync(settings.file, "utf8"));
+  assert.equal(replay.model.companions, 2);
+  assert.equal(replay.model.trend, true);
+  assert.equal(replay.model.jitter, "fit");
+  assert.equal(replay.model.audit_companion, 2);
+  const out = path.join(TMP, "cli-two");
+  const native = JSON.parse(execFileSync(CLI, [
+    "audit", file, "--settings", settings.file, "--json", "--quiet", "--out", out,
+  ], { cwd: ROOT, encoding: "utf8" }));
+  const shown = JSON.parse(await page.textContent("#audit-report-json"));
+  assert.deepEqual(shown, native);
+  assert.equal(native.context.companion, 2);
+  assert.equal(native.context.n_companions, 2);
+  assert.equal(native.context.jitter_fitted, true);
+  assert.equal(native.context.instruments.length, 2);
+  assert.ok(native.context.trend !== null);
+  const trials = await saveDownload("#download-trials", "two-trials.csv");
+  assert.equal(readFileSync(trials.file, "utf8"), readFileSync(path.join(out, "trials.csv"), "utf8"));
   assert.deepEqual(app.consoleErrors, []);
 });
 

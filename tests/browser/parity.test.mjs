@@ -43,8 +43,8 @@ const FIT_CASES = [
   { file: "corvin4-eccentric.tsv", settings: {}, args: [] },
   {
     file: "velka17-nearly-circular.csv",
-    settings: { jitter: true, trend: true, minPeriod: 2, maxPeriod: 300, seed: 7 },
-    args: ["--jitter", "--trend", "--min-period", "2", "--max-period", "300", "--seed", "7"],
+    settings: { jitter: "fit", trend: true, minPeriod: 2, maxPeriod: 300, seed: 7 },
+    args: ["--jitter", "fit", "--trend", "--min-period", "2", "--max-period", "300", "--seed", "7"],
   },
 ];
 for (const { file, settings, args } of FIT_CASES) {

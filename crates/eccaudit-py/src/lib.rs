@@ -10,7 +10,6 @@
 mod request;
 mod run;
 
-use std::ops::ControlFlow;
 use std::sync::atomic::Ordering;
 
 use pyo3::exceptions::{PyRuntimeError, PyValueError};
@@ -475,9 +474,9 @@ fn priors<'py>(
                         Ordering::Relaxed,
                     );
                     if control.cancelled() {
-                        ControlFlow::Break(())
+                        eccaudit_core::sampler::Steer::Cancel
                     } else {
-                        ControlFlow::Continue(())
+                        eccaudit_core::sampler::Steer::Continue
                     }
                 };
                 match sensitivity_run(&data, &settings, &start, i, &mut observer) {

@@ -241,6 +241,7 @@ impl InjectRequest {
             n_walkers: self.posterior_walkers,
             n_steps: self.posterior_steps,
             n_burn: self.posterior_burn,
+            ..PosteriorInjectionSettings::default()
         };
         let posteriors = posterior
             .estimators_for(self.seed, design)

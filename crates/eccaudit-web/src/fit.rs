@@ -2,8 +2,9 @@
 //! it, `drawPeriodogram` and `drawPhaseFold` draw it with eccaudit-plot.
 
 use eccaudit_core::fit::figures::{phase_fold, search_periodogram};
-use eccaudit_core::fit::{fit_orbit, FitData, FitOptions, FitReport};
-use eccaudit_core::periodogram::{FrequencyLimits, Periodogram};
+use eccaudit_core::fit::{FitData, FitOptions, FitReport};
+use eccaudit_core::periodogram::Periodogram;
+use eccaudit_core::spec::{fit_model, JitterMode, ModelSpec};
 use eccaudit_plot::fit::{periodogram_figure, phase_figure};
 use eccaudit_plot::PhaseFoldFigure;
 use serde::{Deserialize, Serialize};
@@ -14,13 +15,12 @@ use crate::dataset::Dataset;
 use crate::render;
 use crate::{js_error, to_js};
 
-/// Shortest period searched when only the longest is given [d] (as `eccaudit fit`).
-const DEFAULT_MIN_PERIOD: f64 = 1.0;
 /// Samples of the model curve over one phase.
 const CURVE_POINTS: usize = 600;
 
-/// Settings of a fit from the page; absent fields take their defaults and an unknown field is an
-/// error (so a misspelt setting is not silently ignored).
+/// Settings of a fit from the page: the model ([`ModelSpec`], same meaning and defaults as the
+/// command line's options) and the seed of the random starts; absent fields take their
+/// defaults and an unknown field is an error (so a misspelt setting is not silently ignored).
 ///
 /// serde-wasm-bindgen (0.6) reads only the fields a struct names, so `deny_unknown_fields` never
 /// fires for a JavaScript object; [`FitSettings::from_js`] checks the keys against
@@ -28,42 +28,50 @@ const CURVE_POINTS: usize = 600;
 #[derive(Debug, Clone, Deserialize, Serialize)]
 #[serde(default, deny_unknown_fields, rename_all = "camelCase")]
 pub struct FitSettings {
-    /// Keplerian companions (≥ 1).
+    /// Keplerian companions (1 to 3).
     pub companions: usize,
-    /// Shortest period searched [d]; with `max_period` absent, the longest is the time span.
+    /// Given periods [d] of the first companions, in order.
+    pub periods: Vec<f64>,
+    /// Shortest period searched [d]; absent: the core's default (1 d).
     pub min_period: Option<f64>,
-    /// Longest period searched [d]; with `min_period` absent, the shortest is 1 d.
+    /// Longest period searched [d]; absent: the time span.
     pub max_period: Option<f64>,
-    /// Fit one jitter per instrument.
-    pub jitter: bool,
+    /// Jitter mode: "auto", "fit" or "off".
+    pub jitter: JitterMode,
     /// Fit a linear trend.
     pub trend: bool,
+    /// False-alarm limit of a detection (above it the detection is marginal, fitted all the same).
+    pub max_fap: f64,
     /// Seed of the random starts.
     pub seed: u64,
 }
 
 impl Default for FitSettings {
     fn default() -> Self {
-        let core = FitOptions::default();
+        let model = ModelSpec::DEFAULT;
         Self {
-            companions: core.n_companions,
+            companions: model.companions,
+            periods: model.periods,
             min_period: None,
-            max_period: None,
-            jitter: core.jitter,
-            trend: core.trend,
-            seed: core.seed,
+            max_period: model.max_period,
+            jitter: model.jitter,
+            trend: model.trend,
+            max_fap: model.max_fap,
+            seed: FitOptions::default().seed,
         }
     }
 }
 
 impl FitSettings {
     /// The JavaScript names of the settings.
-    pub const FIELDS: [&'static str; 6] = [
+    pub const FIELDS: [&'static str; 8] = [
         "companions",
+        "periods",
         "minPeriod",
         "maxPeriod",
         "jitter",
         "trend",
+        "maxFap",
         "seed",
     ];
 
@@ -87,37 +95,33 @@ impl FitSettings {
         serde_wasm_bindgen::from_value(value).map_err(|err| err.to_string())
     }
 
-    /// The core options, with the period range filled in the way `eccaudit fit` fills it.
-    fn options(&self, data: &FitData) -> Result<FitOptions, String> {
-        if self.companions == 0 {
-            return Err("companions must be at least 1".into());
-        }
-        let mut options = FitOptions {
-            n_companions: self.companions,
-            jitter: self.jitter,
+    /// The model specification these settings describe (not yet validated).
+    pub fn spec(&self) -> ModelSpec {
+        ModelSpec {
+            companions: self.companions,
+            periods: self.periods.clone(),
             trend: self.trend,
+            jitter: self.jitter,
+            min_period: self.min_period.unwrap_or(ModelSpec::DEFAULT.min_period),
+            max_period: self.max_period,
+            max_fap: self.max_fap,
+            audit_companion: None,
+        }
+    }
+
+    /// The starting options the model does not decide.
+    fn base(&self) -> FitOptions {
+        FitOptions {
             seed: self.seed,
             ..FitOptions::default()
-        };
-        if self.min_period.is_some() || self.max_period.is_some() {
-            let times = data.times();
-            let span = times.iter().copied().fold(f64::NEG_INFINITY, f64::max)
-                - times.iter().copied().fold(f64::INFINITY, f64::min);
-            let min_period = self.min_period.unwrap_or(DEFAULT_MIN_PERIOD);
-            let max_period = self.max_period.unwrap_or(span);
-            if !(min_period > 0.0 && max_period > min_period) {
-                return Err(format!(
-                    "period range [{min_period}, {max_period}] d: the shortest period must be \
-                     positive and below the longest"
-                ));
-            }
-            options.limits = FrequencyLimits::PeriodRange {
-                min_period,
-                max_period,
-            };
         }
-        Ok(options)
     }
+}
+
+/// The default model of every form (the core's [`ModelSpec::DEFAULT`]) as JSON.
+#[wasm_bindgen(js_name = defaultModelSpec)]
+pub fn default_model_spec() -> String {
+    serde_json::to_string(&ModelSpec::DEFAULT).expect("the model spec serialises")
 }
 
 /// A fit kept with what its figures need.
@@ -129,20 +133,24 @@ pub(crate) struct StoredFit {
 
 #[wasm_bindgen]
 impl Dataset {
-    /// Fit Keplerian orbits by least squares with `settings` (a [`FitSettings`] object, or
-    /// `undefined` for the defaults); returns the core's `FitReport` as a plain object and keeps
-    /// it for the figures. On error the previous fit is kept.
+    /// Fit the model of `settings` (a [`FitSettings`] object, or `undefined` for the defaults)
+    /// by least squares, with the jitter mode and false-alarm checks of the core's `fit_model`;
+    /// returns the core's `ModelFit` as a plain object (the fit report's fields, plus
+    /// `goodness`, `jitter`, `detections` and `notes`, the lines to show first) and keeps it for
+    /// the figures. On error the previous fit is kept.
     pub fn fit(&mut self, settings: JsValue) -> Result<JsValue, JsValue> {
         let settings = FitSettings::from_js(settings)
             .map_err(|err| js_error(format!("fit settings: {err}")))?;
+        let model = settings.spec().validate().map_err(js_error)?;
         let data = FitData::from_table(self.table());
-        let options = settings.options(&data).map_err(js_error)?;
-        let report = fit_orbit(&data, &options).map_err(js_error)?;
+        let base = settings.base();
+        let fit = fit_model(&data, &model, &base).map_err(js_error)?;
+        let options = model.fit_options(fit.jitter.fitted, &base);
         let periodogram = search_periodogram(&data, &options).map_err(js_error)?;
-        let out = to_js(&report)?;
+        let out = to_js(&fit)?;
         self.set_fit(Some(StoredFit {
             data,
-            report,
+            report: fit.report,
             periodogram,
         }));
         Ok(out)
@@ -237,40 +245,25 @@ mod tests {
     }
 
     #[test]
-    fn options_follow_the_command_line_rules() {
-        let data = FitData::new(
-            &[0.0, 10.0, 250.0],
-            &[1.0, 2.0, 3.0],
-            &[1.0, 1.0, 1.0],
-            &[0, 0, 0],
-            &["a".into()],
+    fn settings_follow_the_core_model() {
+        let defaults = FitSettings::default();
+        assert_eq!(defaults.spec(), ModelSpec::DEFAULT);
+        let none = FitSettings {
+            companions: 0,
+            ..FitSettings::default()
+        };
+        assert_eq!(
+            none.spec().validate().unwrap_err().to_string(),
+            "companions = 0: 1 to 3"
         );
         let only_max = FitSettings {
             max_period: Some(100.0),
             ..FitSettings::default()
         };
-        assert_eq!(
-            only_max.options(&data).unwrap().limits,
-            FrequencyLimits::PeriodRange {
-                min_period: 1.0,
-                max_period: 100.0
-            }
-        );
-        let only_min = FitSettings {
-            min_period: Some(5.0),
-            ..FitSettings::default()
-        };
-        assert_eq!(
-            only_min.options(&data).unwrap().limits,
-            FrequencyLimits::PeriodRange {
-                min_period: 5.0,
-                max_period: 250.0
-            }
-        );
-        let none = FitSettings {
-            companions: 0,
-            ..FitSettings::default()
-        };
-        assert!(none.options(&data).unwrap_err().contains("at least 1"));
+        assert_eq!(only_max.spec().min_period, 1.0);
+        let json: FitSettings =
+            serde_json::from_str(r#"{"jitter": "fit", "maxFap": 0.05}"#).unwrap();
+        assert_eq!(json.jitter, JitterMode::Fit);
+        assert_eq!(json.max_fap, 0.05);
     }
 }

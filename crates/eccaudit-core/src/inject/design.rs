@@ -275,9 +275,14 @@ pub struct TrialModel {
     /// Jitter of each instrument [m/s] added in quadrature to the noise of its epochs; unknown
     /// to the estimators, which fit it when `fit_jitter`. Empty = none.
     pub instrument_jitters: Vec<f64>,
-    /// Starting periods [d] of the refit, the injected companion first (its entry is replaced
-    /// by the design's period); the length is the number of companions refitted.
+    /// Starting periods [d] of the refit, in the order of the fit to the real data (the
+    /// audited companion's entry is replaced by the design's period); the length is the number
+    /// of companions refitted. The order matters: the multi-start fit finds companions one after
+    /// another, so the real fit's order (strongest signal first) avoids the local minima a
+    /// weak companion fitted first can fall into.
     pub periods: Vec<f64>,
+    /// Index of the audited (injected) companion in `periods`.
+    pub audited: usize,
     /// Refit a linear trend.
     pub trend: bool,
     /// Refit one jitter per instrument (Baluev 2009 modified likelihood).
@@ -490,14 +495,14 @@ impl InjectionDesign {
         0.5 * (lo + hi)
     }
 
-    /// Starting periods of the refit of a simulation: the model's, with the design's period
-    /// first.
+    /// Starting periods of the refit of a simulation: the model's, in the real fit's order,
+    /// with the design's period at the audited companion's place.
     pub fn refit_periods(&self) -> Vec<f64> {
         let mut periods = self.model.periods.clone();
         if periods.is_empty() {
             periods.push(self.period);
         } else {
-            periods[0] = self.period;
+            periods[self.model.audited] = self.period;
         }
         periods
     }
@@ -542,8 +547,9 @@ impl InjectionDesign {
     }
 }
 
-/// A random ω in [0, 2π) (used when the design gives no ω axis).
-pub(crate) fn random_angle<R: rand::Rng + ?Sized>(rng: &mut R) -> f64 {
+/// A random angle uniform in [0, 2π) (the injected ω when the design gives no ω axis, and the
+/// injected mean anomaly).
+pub fn random_angle<R: rand::Rng + ?Sized>(rng: &mut R) -> f64 {
     TWO_PI * rng.random::<f64>()
 }
 

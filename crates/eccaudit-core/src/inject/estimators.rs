@@ -150,7 +150,8 @@ impl LeastSquaresSettings {
 /// offset per instrument, the trend and the jitters (Baluev 2009 modified likelihood) of the
 /// fit to the real data; by default one companion, no trend, no fitted jitter. The weights are
 /// the stated uncertainties with the design's known extra noise in quadrature. The audited
-/// companion is the refitted one whose period is nearest (in ln P) the design's period.
+/// companion is the one at the audited index when starting at the known periods (the real
+/// fit's order is kept), else the refitted one whose period is nearest (in ln P) the design's.
 ///
 /// Output `lsq`: ê of the eccentric solution, with the formal intervals ê ± σ_e (68%) and
 /// ê ± 1.96 σ_e (95%) clipped to [0, 1), σ_e from the covariance by the delta method; it calls
@@ -271,7 +272,15 @@ impl Estimator for LeastSquaresEstimator {
     ) -> Result<Vec<EccentricityEstimate>, EstimatorError> {
         let report = fit_orbit(data, &self.fit_options_for(design))?;
         let solution = &report.eccentric;
-        let companion = nearest_companion(&solution.companions, design.period);
+        // Starting at the known periods keeps the real fit's order: the audited companion is
+        // the one at its index; a periodogram search may reorder them: nearest period then.
+        let companion = match self.settings.period {
+            TrialPeriod::StartAtKnown => solution
+                .companions
+                .get(design.model.audited)
+                .unwrap_or(&solution.companions[0]),
+            TrialPeriod::Search => nearest_companion(&solution.companions, design.period),
+        };
         let e_hat = companion.eccentricity.value;
         let sigma_e = companion.eccentricity.error.unwrap_or(f64::NAN);
         let (lower68, upper68, lower95, upper95) = if sigma_e.is_finite() {

@@ -142,6 +142,14 @@ impl Estimator for PosteriorEstimator {
         let resolved = self.prior.for_period(design.period);
         let prior = resolved.validate().map_err(|e| other(&e))?;
         let posterior_settings = self.posterior.with_eccentricity(resolved);
+        if design.model.audited != 0 {
+            // The posterior summary describes companion 1 of the model; another companion's
+            // e is not summarised yet, so no number is given rather than a wrong one.
+            return Err(other(&format!(
+                "only companion 1's eccentricity is summarised; companion {} is audited",
+                design.model.audited + 1
+            )));
+        }
         let report = fit_orbit(
             data,
             &LeastSquaresEstimator::default().fit_options_for(design),

@@ -383,6 +383,15 @@ pub fn sensitivity_start(
     if settings.priors.is_empty() {
         return Err(PosteriorError::EmptyPriorSet);
     }
+    // Bound the counts before the starts of every ensemble are allocated.
+    let sampler = &settings.sampler;
+    crate::limits::check_sampler_counts(
+        sampler.n_walkers,
+        sampler.n_burn,
+        sampler.n_steps,
+        sampler.thin,
+    )
+    .map_err(|e| PosteriorError::Sampler(crate::sampler::SamplerError::TooLarge(e)))?;
     if settings
         .priors
         .iter()
