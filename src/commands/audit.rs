@@ -13,9 +13,10 @@ use anyhow::Context;
 use eccaudit_core::audit::{
     data_fingerprint, AuditPlan, AuditSettings, DataIdentity, InjectionSettings, ReadSettings,
 };
+use eccaudit_core::inject::TrialRecord;
 use eccaudit_core::table::{parse_table, ReadOptions};
 
-use super::inject::{posterior_settings, run_design, write_outputs, RunArgs};
+use super::inject::{posterior_settings, run_design, write_outputs, Driver, RunArgs};
 use super::input::TableArgs;
 use super::model_args::ModelArgs;
 
@@ -63,7 +64,9 @@ fn settings_from_flags(args: &Args, identity: DataIdentity) -> AuditSettings {
             } else {
                 run.eccentricities.clone()
             },
-            trials_per_cell: run.trials,
+            trials_per_cell: run
+                .trials
+                .unwrap_or(InjectionSettings::default().trials_per_cell),
             jitter: run.added_noise,
             omegas_deg: run.omegas_deg.clone(),
             period_search: run.period_search,
@@ -139,13 +142,26 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             run.out = args.run.out.join(format!("c{}", plan.companion()));
         }
         let estimators = plan.estimators();
-        let (records, complete) = run_design(plan.design(), &estimators, &run)?;
+        let run_one = |t: u64| -> anyhow::Result<TrialRecord> {
+            plan.run_trials(t..t + 1, &mut |_| {})?
+                .pop()
+                .with_context(|| format!("trial {t} is not in the design"))
+        };
+        let next = |records: &[TrialRecord]| plan.next_batch(records);
+        let valid = |t: u64| plan.has_trial(t);
+        let driver = Driver {
+            run_one: &run_one,
+            next: &next,
+            valid: &valid,
+        };
+        let (records, complete) = run_design(plan.design(), &estimators, &run, &driver)?;
         let report = plan.finish(&records)?;
         let lsq_observed = report
             .statement
-            .calibrations
-            .first()
-            .map(|c| c.observed.point);
+            .rows
+            .iter()
+            .find(|r| r.name == "lsq")
+            .and_then(|r| r.value);
         write_outputs(&report.injection, &run.out, lsq_observed)?;
         let text = report.statement.text();
         let out = &run.out;
@@ -178,8 +194,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         if !complete {
             eprintln!(
-                "eccaudit: note: companion {}: {} of {} trials done; the statement uses those only; run again with --resume to finish",
-                report.context.companion, report.trials_done, report.trials_total
+                "eccaudit: note: companion {}: {} trials done ({} base of {}, {} adaptive) and \
+                 more are needed; the statement uses those only; run again with --resume to finish",
+                report.context.companion,
+                report.trials_done,
+                report.trials_done - report.extra_trials,
+                report.trials_total,
+                report.extra_trials
             );
         }
         reports.push(report);
