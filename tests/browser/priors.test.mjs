@@ -61,8 +61,12 @@ test("a short prior set runs in workers: table with medians, painted figures, no
   const rows = await app.page.textContent("[data-testid='priors-table']");
   assert.match(rows, /uniform on \[0, 0\.8\]/);
   assert.match(rows, /Rayleigh/i);
-  // 16 walkers × 300 steps is far too short for the convergence checks: each run says so.
-  assert.match(await app.page.textContent("[data-testid='priors-notes']"), /Prior 1 not converged: parameter 0/);
+  // Runs extend themselves until the ensemble convergence rule holds (issue 13): on this
+  // well-constrained table both runs converge from 16 walkers × 300 steps, say so in their row,
+  // and leave no "not converged" note.
+  const converged = await app.page.$$eval("[data-testid='priors-row'] td:last-child", (cells) => cells.map((c) => c.textContent));
+  assert.deepEqual(converged, ["yes", "yes"]);
+  assert.doesNotMatch(await app.page.textContent("[data-testid='priors-notes']"), /not converged/);
   // Not blank: the posterior figure, the corner plot and the traces are drawn.
   assert.ok(await app.paintedPixels("#priors-canvas") > 5000);
   assert.ok(await app.paintedPixels("#priors-corner") > 5000);
@@ -82,6 +86,10 @@ test("the page's report equals `eccaudit priors --json` with the same settings",
   ], { cwd: ROOT, encoding: "utf8" }));
   return app.page.evaluate(() => window.eccauditPriorsReport).then((wasm) => {
     // Exact equality, every number: both sides are the core's report printed by serde_json.
+    // The command line adds its model check (χ² test, jitter decision, FAP) beside the report;
+    // the page shows the same check in its fit view, so it is compared there, not here.
+    assert.ok(native.model_check, "priors --json carries the model check");
+    delete native.model_check;
     assert.deepEqual(wasm, native);
   });
 });
