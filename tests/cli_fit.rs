@@ -149,6 +149,6 @@ fn bad_options_are_refused() {
         .assert()
         .failure()
         .stderr(predicate::str::contains(
-            "max_period = 10: above min_period = 50",
+            "max_period = 10: must be above min_period = 50",
         ));
 }

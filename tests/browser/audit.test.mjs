@@ -60,8 +60,8 @@ test("a small audit of Corvin 4 in the page gives exactly the command line's rep
   await setGrid({ e: "0, 0.3", trials: 4, seed: 5 });
   // The form shows the default posterior sampler; a shorter one set here must reach the replay
   // file and the command line.
-  assert.equal(await page.inputValue("#audit-settings [name='posterior_walkers']"), "24");
-  await page.fill("#audit-settings [name='posterior_walkers']", "16");
+  assert.equal(await page.inputValue("#audit-settings [name='posterior_walkers']"), "16");
+  await page.fill("#audit-settings [name='posterior_walkers']", "12");
   await page.fill("#audit-settings [name='posterior_steps']", "400");
   await page.fill("#audit-settings [name='posterior_burn']", "200");
   await runToEnd();
@@ -85,7 +85,7 @@ test("a small audit of Corvin 4 in the page gives exactly the command line's rep
   assert.deepEqual(replay.injection.eccentricities, [0, 0.3]);
   assert.equal(replay.injection.trials_per_cell, 4);
   assert.equal(replay.seed, 5);
-  assert.deepEqual(replay.injection.posterior, { priors: ["uniform"], n_walkers: 16, n_steps: 400, n_burn: 200 });
+  assert.deepEqual(replay.injection.posterior, { priors: ["uniform"], n_walkers: 12, n_steps: 400, n_burn: 200, max_evaluations: 400000 });
   assert.equal(replay.data.file_name, "corvin4-eccentric.tsv");
   assert.ok(existsSync(CLI), `${CLI} is missing: run cargo build --release first`);
   const out = path.join(TMP, "cli-out");

@@ -139,7 +139,7 @@ impl ModelSpec {
                 return bad(
                     "max_period",
                     max.to_string(),
-                    format!("above min_period = {}", self.min_period),
+                    format!("must be above min_period = {}", self.min_period),
                 );
             }
         }
@@ -523,7 +523,7 @@ mod tests {
                 max_period: Some(0.5),
                 ..ModelSpec::DEFAULT
             }),
-            "max_period = 0.5: above min_period = 1"
+            "max_period = 0.5: must be above min_period = 1"
         );
         assert_eq!(
             message(ModelSpec {
