@@ -101,7 +101,7 @@ fn fit_returns_the_report_and_its_figures_paint() {
     let err = dataset.draw_periodogram(canvas()).err().unwrap();
     assert!(error_message(err).contains("no fit yet"));
 
-    let settings = js_sys::JSON::parse(r#"{"companions": 1, "jitter": false}"#).unwrap();
+    let settings = js_sys::JSON::parse(r#"{"companions": 1, "jitter": "off"}"#).unwrap();
     let report = dataset.fit(settings).unwrap();
     assert!(dataset.has_fit());
     // The demo header's truth is P = 112.6 d, e = 0.47; the fit lands near it (cli_fit.rs).
