@@ -233,12 +233,14 @@ pub fn settings_fingerprint(design: &InjectionDesign, estimators: &[&dyn Estimat
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use crate::inject::design::{Sampling, Schedule, Spacing};
     use crate::inject::estimators::LeastSquaresEstimator;
 
-    fn design() -> InjectionDesign {
+    /// A small schedule design (24 random epochs, two cells, three trials each) shared by the
+    /// engine's and the trial file's tests.
+    pub(crate) fn design() -> InjectionDesign {
         InjectionDesign {
             sampling: Sampling::from_schedule(
                 &Schedule {

@@ -527,33 +527,9 @@ pub fn record_from_csv_row(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::inject::design::{InjectionDesign, Sampling, Schedule, Spacing};
     use crate::inject::engine::run_trial;
+    use crate::inject::engine::tests::design;
     use crate::inject::estimators::LeastSquaresEstimator;
-
-    fn design() -> InjectionDesign {
-        InjectionDesign {
-            sampling: Sampling::from_schedule(
-                &Schedule {
-                    n_epochs: 24,
-                    baseline: 200.0,
-                    start_time: 1000.0,
-                    spacing: Spacing::Random,
-                    uncertainty: 3.0,
-                },
-                11,
-            )
-            .unwrap(),
-            period: 13.7,
-            eccentricities: vec![0.0, 0.4],
-            semi_amplitudes: vec![30.0],
-            omegas: vec![],
-            jitter: 1.0,
-            trials_per_cell: 3,
-            seed: 99,
-            model: crate::inject::TrialModel::default(),
-        }
-    }
 
     #[test]
     fn csv_rows_round_trip_exactly() {
