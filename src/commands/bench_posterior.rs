@@ -94,6 +94,7 @@ pub fn measure(data: &FitData, repeats: usize, seed: u64) -> anyhow::Result<Post
                     &fast_sampler_settings(seed),
                     &fast_run_length(),
                     &start,
+                    0,
                 ));
                 started.elapsed().as_secs_f64() * 1e3
             })

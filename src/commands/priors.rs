@@ -66,6 +66,10 @@ pub struct Args {
     pub plots: Option<PathBuf>,
     #[command(flatten)]
     pub model: ModelArgs,
+    /// Summarise e of this companion (1-based, in the order of the least-squares fit; default
+    /// 1). Every companion is sampled under the same eccentricity prior.
+    #[arg(long, value_name = "N")]
+    pub companion: Option<usize>,
     /// Period prior, log-uniform on [MIN, MAX] days.
     #[arg(long, num_args = 2, value_names = ["MIN", "MAX"], default_values_t = [1.0, 1.0e4])]
     pub period_range: Vec<f64>,
@@ -93,7 +97,7 @@ fn settings(args: &Args) -> anyhow::Result<SensitivitySettings> {
         until_converged: !args.fixed_length,
         max_evaluations: args.max_evaluations,
         seed: args.seed,
-        model: args.model.spec(None),
+        model: args.model.spec(args.companion),
         period_range: [args.period_range[0], args.period_range[1]],
         k_max: args.k_max,
         jitter_max: args.jitter_max,

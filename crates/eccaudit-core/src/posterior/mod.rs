@@ -91,6 +91,14 @@ pub enum PosteriorError {
         /// Companions sampled.
         sampled: usize,
     },
+    /// The companion to summarise is not in the model.
+    #[error("companion {companion} asked for, but the model has {n_companions} companion(s)")]
+    CompanionIndex {
+        /// The companion asked for (1-based).
+        companion: usize,
+        /// Companions in the model.
+        n_companions: usize,
+    },
     /// No companion to sample.
     #[error("at least one companion is needed")]
     NoCompanion,

@@ -36,7 +36,8 @@ pub struct SensitivityRequest {
     pub max_evaluations: u64,
     /// Seed of the sampler, the same for every prior (default 1).
     pub seed: u64,
-    /// The model: companions (each optionally with a given period), trend, jitter mode
+    /// The model: companions (each optionally with a given period), the companion whose e is
+    /// summarised (`audit_companion`, 1-based; default the first), trend, jitter mode
     /// (`auto` and `fit` sample one jitter per instrument, `off` samples none), period range of
     /// the least-squares start's search, false-alarm limit (marginal peaks are sampled all the
     /// same; see [`crate::spec::fit_model`]).
@@ -130,6 +131,7 @@ impl SensitivityRequest {
                 ..RunLength::default()
             },
             fit: model.fit_options(posterior.jitter, &FitOptions::default()),
+            companion: self.model.audit_companion.map_or(0, |c| c - 1),
         })
     }
 }

@@ -71,7 +71,10 @@ pub struct PosteriorProgress {
 /// One run's result: the summary of e, the chains and the parameter names.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PosteriorRun {
-    /// What the run says about e (companion 1).
+    /// The companion whose e is summarised (0-based, in the fit's order).
+    #[serde(default)]
+    pub companion: usize,
+    /// What the run says about e of `companion`.
     pub summary: EccentricitySummary,
     /// Names of the sampled parameters, in the chains' order (offsets and trend are
     /// integrated out analytically, see [`RvPosterior::marginalised`]).
@@ -83,16 +86,19 @@ pub struct PosteriorRun {
     pub chains: Chains,
 }
 
-/// Samples the posterior of `data` under `settings` from `start` and summarises e of the first
-/// companion: independent ensembles run by [`run_until_converged`] with `length`, judged on
-/// every sampled parameter and on e. `observer` sees progress every 50 steps and may finish
-/// early or cancel.
+/// Samples the posterior of `data` under `settings` from `start` and summarises e of
+/// `companion` (0-based, in the order of the fit the start came from; every companion is
+/// sampled, only its e is summarised): independent ensembles run by [`run_until_converged`]
+/// with `length`, judged on every sampled parameter and on that e. `observer` sees progress
+/// every 50 steps and may finish early or cancel.
+#[allow(clippy::too_many_arguments)]
 pub fn run_posterior(
     data: &FitData,
     settings: &PosteriorSettings,
     sampler: &SamplerSettings,
     length: &RunLength,
     start: &PosteriorStart,
+    companion: usize,
     observer: &mut impl FnMut(PosteriorProgress) -> Steer,
     prior_index: (usize, usize),
 ) -> Result<PosteriorRun, PosteriorError> {
@@ -102,6 +108,7 @@ pub fn run_posterior(
         sampler,
         length,
         start,
+        companion,
         observer,
         prior_index,
         Judged::EveryParameter,
@@ -132,12 +139,19 @@ fn run_posterior_judged(
     sampler: &SamplerSettings,
     length: &RunLength,
     start: &PosteriorStart,
+    companion: usize,
     observer: &mut impl FnMut(PosteriorProgress) -> Steer,
     prior_index: (usize, usize),
     judged: Judged,
 ) -> Result<PosteriorRun, PosteriorError> {
     if settings.priors.eccentricity.shape == EccentricityShape::Circular {
         return Err(PosteriorError::CircularInSet);
+    }
+    if companion >= settings.n_companions {
+        return Err(PosteriorError::CompanionIndex {
+            companion: companion + 1,
+            n_companions: settings.n_companions,
+        });
     }
     let centres = start.lambda_centres(settings, data.n_instruments());
     let target = RvPosterior::marginalised(data, settings, &centres)?;
@@ -147,7 +161,7 @@ fn run_posterior_judged(
     };
     let n_ensembles = length.n_ensembles.max(1);
     let starts = ensemble_starts(start, &target, n_ensembles, sampler.n_walkers, sampler.seed)?;
-    let h_index = target.layout().companion_start(0) + 2;
+    let h_index = target.layout().companion_start(companion) + 2;
     let e_traces_of = |ensembles: &[&Chains]| -> Vec<Vec<f64>> {
         ensembles
             .iter()
@@ -230,6 +244,7 @@ fn run_posterior_judged(
     );
     let names = settings.parameter_names(data.instrument_names());
     Ok(PosteriorRun {
+        companion,
         summary,
         parameter_names: target.sampled_names(&names),
         start: start.clone(),
@@ -237,8 +252,9 @@ fn run_posterior_judged(
     })
 }
 
-/// The function for repeated use (e.g. the injection–recovery engine): the e summary of one run
-/// from a given start, without progress reporting. Pair with [`fast_sampler_settings`] and
+/// The function for repeated use (e.g. the injection–recovery engine): the summary of e of
+/// `companion` (0-based, in the order of the fit the start came from) from one run from a given
+/// start, without progress reporting. Pair with [`fast_sampler_settings`] and
 /// [`fast_run_length`].
 ///
 /// Only e is used, so convergence is judged on e alone by the same rule
@@ -251,6 +267,7 @@ pub fn posterior_eccentricity(
     sampler: &SamplerSettings,
     length: &RunLength,
     start: &PosteriorStart,
+    companion: usize,
 ) -> Result<EccentricitySummary, PosteriorError> {
     run_posterior_judged(
         data,
@@ -258,6 +275,7 @@ pub fn posterior_eccentricity(
         sampler,
         length,
         start,
+        companion,
         &mut |_| Steer::Continue,
         (0, 1),
         Judged::EccentricityAlone,
@@ -304,6 +322,9 @@ pub struct SensitivitySettings {
     /// Settings of the least-squares fit that gives the start (its `jitter` and `trend` are
     /// taken from `posterior`).
     pub fit: FitOptions,
+    /// The companion whose e is summarised (0-based, in the order of the least-squares fit;
+    /// every companion is sampled, each under the same eccentricity prior).
+    pub companion: usize,
 }
 
 impl Default for SensitivitySettings {
@@ -314,13 +335,17 @@ impl Default for SensitivitySettings {
             sampler: SamplerSettings::default(),
             length: RunLength::default(),
             fit: FitOptions::default(),
+            companion: 0,
         }
     }
 }
 
-/// The least-squares figures shown beside the posteriors.
+/// The least-squares figures shown beside the posteriors (of the summarised companion).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct LeastSquaresEccentricity {
+    /// The companion (0-based, in the fit's order).
+    #[serde(default)]
+    pub companion: usize,
     /// Period [d].
     pub period: f64,
     /// Minimum-χ² eccentricity.
@@ -416,9 +441,23 @@ pub fn sensitivity_start(
         trend: settings.posterior.trend,
         ..settings.fit.clone()
     };
+    if settings.companion >= settings.posterior.n_companions {
+        return Err(PosteriorError::CompanionIndex {
+            companion: settings.companion + 1,
+            n_companions: settings.posterior.n_companions,
+        });
+    }
     let fit: FitReport = fit_orbit(data, &fit_options)?;
-    let first = &fit.eccentric.companions[0];
+    let first =
+        fit.eccentric
+            .companions
+            .get(settings.companion)
+            .ok_or(PosteriorError::CompanionCount {
+                fitted: fit.eccentric.companions.len(),
+                sampled: settings.posterior.n_companions,
+            })?;
     let least_squares = LeastSquaresEccentricity {
+        companion: settings.companion,
         period: first.period.value,
         e: first.eccentricity.value,
         e_error: first.eccentricity.error,
@@ -461,6 +500,7 @@ pub fn sensitivity_run(
         &settings.sampler,
         &settings.length,
         &walker_start,
+        settings.companion,
         observer,
         (prior_index, n_priors),
     )
@@ -521,7 +561,16 @@ impl fmt::Display for SensitivityReport {
         let ls = &self.least_squares;
         writeln!(
             f,
-            "Prior sensitivity of e: {} epochs; least squares P = {:.6} d, e = {:.4}{}",
+            "Prior sensitivity of e{}: {} epochs; least squares P = {:.6} d, e = {:.4}{}",
+            if self.settings.n_companions > 1 {
+                format!(
+                    " of companion {} (of {})",
+                    ls.companion + 1,
+                    self.settings.n_companions
+                )
+            } else {
+                String::new()
+            },
             self.n_points,
             ls.period,
             ls.e,
