@@ -9,7 +9,8 @@ use super::estimators::{
 };
 use crate::fit::{fit_orbit, FitData};
 use crate::posterior::{
-    fast_run_length, posterior_eccentricity, start_from_fit, BayesFactorStatus, PosteriorSettings,
+    add_other_optima, fast_run_length, posterior_eccentricity, start_from_fit, BayesFactorStatus,
+    PosteriorSettings,
 };
 use crate::priors::EccentricityPriorSettings;
 use crate::random::SimRng;
@@ -142,11 +143,9 @@ impl Estimator for PosteriorEstimator {
         let resolved = self.prior.for_period(design.period);
         let prior = resolved.validate().map_err(|e| other(&e))?;
         let posterior_settings = self.posterior.with_eccentricity(resolved);
-        let report = fit_orbit(
-            data,
-            &LeastSquaresEstimator::default().fit_options_for(design),
-        )?;
-        let start = start_from_fit(
+        let fit_options = LeastSquaresEstimator::default().fit_options_for(design);
+        let report = fit_orbit(data, &fit_options)?;
+        let mut start = start_from_fit(
             &report,
             &posterior_settings,
             &prior,
@@ -154,6 +153,7 @@ impl Estimator for PosteriorEstimator {
             data.n_instruments(),
         )
         .map_err(|e| other(&e))?;
+        add_other_optima(&mut start, data, &report, &fit_options, &posterior_settings);
         let sampler = SamplerSettings {
             seed: rng.random::<u64>(),
             ..self.sampler

@@ -41,7 +41,10 @@ pub use run::{
     SensitivityReport, SensitivitySettings, SensitivityStart, FAST_MAX_EVALUATIONS,
 };
 pub use spec::{parse_prior_spec, DEFAULT_PRIOR_SPECS, SPEC_SHAPES};
-pub use start::{ensemble_starts, start_from_fit, PosteriorStart};
+pub use start::{
+    add_other_optima, ensemble_starts, start_centres, start_from_fit, PosteriorStart, StartOptimum,
+    KEEP_GAP, MAX_OTHER_OPTIMA,
+};
 pub use summary::{
     kl_divergence_binned, kl_divergence_histogram, prior_label, summarise_eccentricity,
     DensityCurves, EccentricitySummary, KlEstimate, SamplerCost,

@@ -1,9 +1,11 @@
 //! Where the walkers start: the least-squares optimum, a ball from its formal errors, and the
-//! eccentricity moved inside the prior's truncation when the optimum lies outside it.
+//! eccentricity moved inside the prior's truncation when the optimum lies outside it; other
+//! least-squares local optima worth keeping (other periodogram peaks, other eccentricities)
+//! as the centres of further ensembles ([`add_other_optima`]).
 
 use serde::{Deserialize, Serialize};
 
-use crate::fit::{FitReport, Solution};
+use crate::fit::{fit_from_start, FitData, FitOptions, FitReport, Solution, StartPoint};
 use crate::priors::EccentricityPrior;
 use crate::random::{standard_normal, stream_rng};
 use crate::sampler::LogDensity;
@@ -28,6 +30,27 @@ pub struct PosteriorStart {
     /// edge does not pin every walker there.
     #[serde(default)]
     pub disperse_eccentricity: bool,
+    /// Other least-squares local optima (best first), each the centre of some ensembles'
+    /// walkers (see [`ensemble_starts`]); empty when the fit found one optimum only.
+    #[serde(default)]
+    pub optima: Vec<StartOptimum>,
+}
+
+/// A least-squares local optimum other than the best, found by refitting from a start of the
+/// multi-start fit that ended elsewhere (another periodogram peak, another eccentricity).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StartOptimum {
+    /// The point in the full layout of [`super::RvPosterior`] (companions, offsets, trend,
+    /// jitters; the jitters those of the best optimum).
+    pub point: Vec<f64>,
+    /// The companion whose start differed (0-based).
+    pub companion: usize,
+    /// That companion's period at this optimum [d].
+    pub period: f64,
+    /// That companion's eccentricity at this optimum.
+    pub eccentricity: f64,
+    /// χ² at this optimum (stated uncertainties only).
+    pub chi_squared: f64,
 }
 
 impl PosteriorStart {
@@ -183,7 +206,138 @@ pub fn start_from_fit(
         scales,
         eccentricity_moved: moved,
         disperse_eccentricity: disperse && !layout.circular.iter().all(|c| *c),
+        optima: Vec::new(),
     })
+}
+
+/// Most refits from distinct start outcomes tried by [`add_other_optima`].
+const MAX_REFITS: usize = 6;
+
+/// Most other optima kept (with the best, one centre per ensemble of the default four).
+pub const MAX_OTHER_OPTIMA: usize = 3;
+
+/// Two optima are the same when every companion's period agrees within 10⁻³ (relative) and its
+/// e within 0.05 (stated choice: finer than any posterior width worth a separate start).
+fn same_optimum(a: &[(f64, f64)], b: &[(f64, f64)]) -> bool {
+    a.iter()
+        .zip(b)
+        .all(|(x, y)| (x.0 - y.0).abs() <= 1e-3 * x.0.abs() && (x.1 - y.1).abs() <= 0.05)
+}
+
+/// Adds to `start` the other least-squares local optima of `report` (the multi-start fit of
+/// `data` with `options`): the start outcomes whose optimum differs from the best (another
+/// period, or an eccentricity more than 0.05 away, e.g. the e-edge optimum of a low
+/// signal-to-noise table), best χ² first, each refitted by Levenberg–Marquardt
+/// ([`fit_from_start`]) with the other companions started at their best-fit elements. At most
+/// [`MAX_REFITS`] refits; at most [`MAX_OTHER_OPTIMA`] distinct optima are kept, and
+/// [`ensemble_starts`] drops those far less probable than the best. Optima outside the period
+/// prior are skipped. Deterministic (no random numbers).
+pub fn add_other_optima(
+    start: &mut PosteriorStart,
+    data: &FitData,
+    report: &FitReport,
+    options: &FitOptions,
+    settings: &PosteriorSettings,
+) {
+    let layout = settings.layout(data.n_instruments());
+    let best = &report.eccentric;
+    if layout.circular.iter().any(|c| *c) || best.companions.len() != layout.n_companions() {
+        return;
+    }
+    let summary_of = |params: &[f64]| -> Vec<(f64, f64)> {
+        (0..layout.n_companions())
+            .map(|c| {
+                let i = layout.companion_start(c);
+                (
+                    params[i],
+                    params[i + 2] * params[i + 2] + params[i + 3] * params[i + 3],
+                )
+            })
+            .collect()
+    };
+    let best_summary: Vec<(f64, f64)> = best
+        .companions
+        .iter()
+        .map(|c| (c.period.value, c.eccentricity.value))
+        .collect();
+    let mut candidates: Vec<&crate::fit::StartOutcome> = report
+        .starts
+        .iter()
+        .filter(|s| s.chi_squared.is_finite() && s.companion >= 1)
+        .filter(|s| s.companion <= layout.n_companions())
+        .filter(|s| {
+            let b = best_summary[s.companion - 1];
+            !same_optimum(&[b], &[(s.period, s.eccentricity)])
+        })
+        .collect();
+    candidates.sort_by(|a, b| a.chi_squared.total_cmp(&b.chi_squared));
+    let mut tried: Vec<(usize, f64, f64)> = Vec::new();
+    let mut found: Vec<Vec<(f64, f64)>> = vec![best_summary.clone()];
+    let jitter_values: Vec<f64> = start.point[layout.n_params()..].to_vec();
+    let (p_min, p_max) = settings.priors.period.bounds();
+    for s in candidates {
+        if tried.len() >= MAX_REFITS || start.optima.len() >= MAX_OTHER_OPTIMA {
+            break;
+        }
+        if tried.iter().any(|&(c, p, e)| {
+            c == s.companion && same_optimum(&[(p, e)], &[(s.period, s.eccentricity)])
+        }) {
+            continue;
+        }
+        tried.push((s.companion, s.period, s.eccentricity));
+        let starts: Vec<StartPoint> = best
+            .companions
+            .iter()
+            .enumerate()
+            .map(|(c, fitted)| {
+                if c + 1 == s.companion {
+                    StartPoint {
+                        period: s.start_period,
+                        eccentricity: s.start_eccentricity,
+                        omega: s.start_omega_deg.to_radians(),
+                    }
+                } else {
+                    StartPoint {
+                        period: fitted.period.value,
+                        eccentricity: fitted.eccentricity.value.min(0.9),
+                        omega: fitted.omega_deg.value.to_radians(),
+                    }
+                }
+            })
+            .collect();
+        let Ok(refit) = fit_from_start(data, options, &starts) else {
+            continue;
+        };
+        if !refit.chi_squared.is_finite() || refit.params.len() != layout.n_params() {
+            continue;
+        }
+        let mut params = refit.params.clone();
+        for c in 0..layout.n_companions() {
+            // A negative K is the same orbit as |K| with ω and λ turned by π.
+            let i = layout.companion_start(c);
+            if params[i + 1] < 0.0 {
+                params[i + 1] = -params[i + 1];
+                params[i + 2] = -params[i + 2];
+                params[i + 3] = -params[i + 3];
+                params[layout.lambda_index(c)] += core::f64::consts::PI;
+            }
+        }
+        let summary = summary_of(&params);
+        if found.iter().any(|f| same_optimum(f, &summary))
+            || summary.iter().any(|&(p, _)| !(p >= p_min && p <= p_max))
+        {
+            continue;
+        }
+        let c = s.companion - 1;
+        start.optima.push(StartOptimum {
+            point: params.iter().chain(&jitter_values).copied().collect(),
+            companion: c,
+            period: summary[c].0,
+            eccentricity: summary[c].1,
+            chi_squared: refit.chi_squared,
+        });
+        found.push(summary);
+    }
 }
 
 /// Most draws per walker of [`ensemble_starts`] before giving up.
@@ -191,9 +345,14 @@ const MAX_START_DRAWS: usize = 1000;
 
 /// Walker positions (sampled coordinates of `target`) for `n_ensembles` independent ensembles
 /// of `n_walkers` each, ensemble m on random stream 1000 + m of `seed`: a Gaussian ball around
-/// `start.point` whose scales grow with m (1, 2, 3, 4 … times `start.scales`, i.e. ½ to 2
+/// its centre whose scales grow with m (1, 2, 3, 4 … times `start.scales`, i.e. ½ to 2
 /// formal errors), so that the ensembles start apart as the between-chain check requires
-/// (Gelman & Rubin 1992, Stat. Sci. 7, 457: over-dispersed starts). With
+/// (Gelman & Rubin 1992, Stat. Sci. 7, 457: over-dispersed starts, one chain per mode). The
+/// centres are `start.point` and the optima of `start.optima` whose log-posterior lies within
+/// [`KEEP_GAP`] + 3√(d/2) nats of the best centre's (the stranded-walker gap of the
+/// convergence rule: a walker started farther down would be flagged and moved anyway);
+/// ensemble m starts around centre m mod (number of centres), so that ensembles in modes that
+/// do not mix disagree and the run is not called converged. With
 /// `start.disperse_eccentricity`, each walker's (√e cos ω, √e sin ω) of every companion is
 /// drawn from the eccentricity prior with ω uniform instead. Draws with a non-finite density
 /// are redrawn, up to 1000 times per walker.
@@ -206,16 +365,18 @@ pub fn ensemble_starts(
 ) -> Result<Vec<Vec<f64>>, PosteriorError> {
     let layout = target.layout().clone();
     let prior = *target.eccentricity_prior();
+    let centres = start_centres(start, target);
     let mut out = Vec::with_capacity(n_ensembles);
     let mut full = vec![0.0; start.point.len()];
     for m in 0..n_ensembles {
         let mut rng = stream_rng(seed, 1000 + m as u64);
         let widen = (m + 1) as f64;
+        let centre = &centres[m % centres.len()];
         let mut positions = Vec::with_capacity(n_walkers * target.dim());
         for walker in 0..n_walkers {
             let mut found = false;
             for _ in 0..MAX_START_DRAWS {
-                for ((f, &c), &s) in full.iter_mut().zip(&start.point).zip(&start.scales) {
+                for ((f, &c), &s) in full.iter_mut().zip(centre).zip(&start.scales) {
                     *f = c + widen * s * standard_normal(&mut rng);
                 }
                 if start.disperse_eccentricity {
@@ -256,6 +417,40 @@ pub fn ensemble_starts(
         out.push(positions);
     }
     Ok(out)
+}
+
+/// Base of the gap (nats) below the best centre within which another optimum is a centre of
+/// its own: the stranded-walker gap of [`crate::sampler::ConvergenceThresholds`] (10 nats).
+pub const KEEP_GAP: f64 = 10.0;
+
+/// The centres of [`ensemble_starts`] (full layout): `start.point` first, then the optima of
+/// `start.optima` worth keeping, each with its mean longitudes moved by whole turns into the
+/// target's λ windows.
+pub fn start_centres(start: &PosteriorStart, target: &RvPosterior<'_>) -> Vec<Vec<f64>> {
+    let mut centres = vec![start.point.clone()];
+    if start.optima.is_empty() {
+        return centres;
+    }
+    let layout = target.layout();
+    let best = target.log_density(&target.sampled_point(&start.point));
+    let gap = KEEP_GAP + 3.0 * libm::sqrt(target.dim() as f64 / 2.0);
+    for optimum in &start.optima {
+        if optimum.point.len() != start.point.len() {
+            continue;
+        }
+        let mut point = optimum.point.clone();
+        for c in 0..layout.n_companions() {
+            let i = layout.lambda_index(c);
+            let centre = start.point[i];
+            let turn = crate::kepler::TWO_PI;
+            point[i] = centre + (point[i] - centre + 0.5 * turn).rem_euclid(turn) - 0.5 * turn;
+        }
+        let value = target.log_density(&target.sampled_point(&point));
+        if value.is_finite() && !(best.is_finite() && value < best - gap) {
+            centres.push(point);
+        }
+    }
+    centres
 }
 
 /// Fails with a readable error when the start lies outside a scalar prior's bounds.
