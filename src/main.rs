@@ -39,6 +39,8 @@ enum Command {
     Merge(commands::merge::Args),
     /// Posterior of e under several eccentricity priors: the prior-sensitivity set and BF01.
     Priors(commands::priors::Args),
+    /// Eccentricity distribution of a population from saved posterior draws (Hogg, Myers & Bovy 2010).
+    Population(commands::population::Args),
     /// Time the hot loops (Kepler solve) natively.
     Bench(commands::bench::Args),
 }
@@ -58,6 +60,7 @@ fn main() -> ExitCode {
         Command::Survey(args) => commands::survey::run(args),
         Command::Merge(args) => commands::merge::run(args),
         Command::Priors(args) => commands::priors::run(args),
+        Command::Population(args) => commands::population::run(args),
         Command::Bench(args) => commands::bench::run(args),
     };
     match result {

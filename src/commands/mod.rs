@@ -10,6 +10,7 @@ pub mod inject;
 pub mod input;
 pub mod merge;
 pub mod model_args;
+pub mod population;
 pub mod priors;
 pub mod survey;
 pub mod table;

@@ -64,6 +64,10 @@ pub struct Args {
     /// Write posterior-e.svg, and corner-N.svg and traces-N.svg per prior, into this directory.
     #[arg(long, value_name = "DIR")]
     pub plots: Option<PathBuf>,
+    /// Write each prior's posterior draws of e (every companion, thinned to about the run's
+    /// effective sample size) as DIR/posterior-e-N.ecsv, for `eccaudit population`.
+    #[arg(long, value_name = "DIR")]
+    pub save_samples: Option<PathBuf>,
     #[command(flatten)]
     pub model: ModelArgs,
     /// Summarise e of this companion (1-based, in the order of the least-squares fit; default
@@ -159,6 +163,20 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             .map(|l| format!("{l}\n"))
             .collect();
         print!("{lines}");
+    }
+    if let Some(dir) = &args.save_samples {
+        for (i, run) in report.runs.iter().enumerate() {
+            let stem = format!("{}-{}", super::population::SAMPLES_PREFIX, i + 1);
+            let ls = [Some(report.least_squares.e)];
+            super::population::write_run_samples(
+                dir,
+                &stem,
+                &source_name,
+                run,
+                settings.posterior.n_companions,
+                &ls,
+            )?;
+        }
     }
     if let Some(dir) = &args.plots {
         write_plots(dir, &report).with_context(|| format!("plots in `{}`", dir.display()))?;

@@ -48,6 +48,11 @@ pub struct Args {
     /// Stop after this many tables have been audited in this run (resume later).
     #[arg(long, value_name = "N")]
     pub stop_after_tables: Option<usize>,
+    /// Also sample each table's posterior under this eccentricity prior (default
+    /// uniform:0..0.99) and save the draws of e of every companion in its folder, for
+    /// `eccaudit population` (format: DEVELOPERS.md, "Saved posterior draws").
+    #[arg(long, value_name = "SPEC", num_args = 0..=1, default_missing_value = "uniform:0..0.99")]
+    pub save_samples: Option<String>,
 }
 
 /// The survey files in an output folder.
@@ -97,6 +102,7 @@ fn audit_entry(
     table_args: &TableArgs,
     run: &RunArgs,
     bar: &ProgressBar,
+    save_samples: Option<&str>,
 ) -> anyhow::Result<TableOutcome> {
     let folder = out.join(folder_name);
     let error = |message: String| {
@@ -193,6 +199,17 @@ fn audit_entry(
             &report,
             entry.stellar_mass,
         ));
+    }
+    if let (Some(spec), Some(plan)) = (save_samples, plans.first()) {
+        super::population::save_table_samples(
+            &folder,
+            &entry.table,
+            &table,
+            &settings,
+            plan.fit(),
+            spec,
+            bar,
+        )?;
     }
     Ok(TableOutcome::Done(rows))
 }
@@ -368,6 +385,7 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             &args.table,
             &run,
             &bar,
+            args.save_samples.as_deref(),
         )?;
         let ran = bar.position() - before;
         if let Some(b) = budget.as_mut() {

@@ -16,6 +16,7 @@ pub mod lsq;
 pub mod model;
 pub mod orbit;
 pub mod periodogram;
+pub mod population;
 pub mod posterior;
 pub mod priors;
 pub mod random;

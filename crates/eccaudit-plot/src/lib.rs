@@ -15,6 +15,7 @@ mod legend;
 mod palette;
 mod periodogram;
 mod phase;
+mod population;
 mod posterior;
 #[cfg(feature = "core")]
 mod sensitivity;
@@ -34,6 +35,12 @@ pub use periodogram::{draw_periodogram, MarkedPeak, PeriodogramFigure, PowerLeve
 pub use phase::{draw_phase_fold, PhaseFoldFigure, PhaseSeries};
 /// plotters itself, so adapters can build drawing areas on their own backend.
 pub use plotters;
+#[cfg(feature = "core")]
+pub use population::{beta_parameter_figure, population_density_figure};
+pub use population::{
+    draw_beta_parameters, draw_population_density, BetaParameterFigure, PopulationDensityFigure,
+    POPULATION_FIGURE_SIZE,
+};
 pub use posterior::{draw_eccentricity_posteriors, EccentricityFigure, EccentricityPanel};
 #[cfg(feature = "core")]
 pub use sensitivity::{
