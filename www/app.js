@@ -2,6 +2,7 @@
 import init, { Dataset, defaultModelSpec, demoTables, version } from "./pkg/eccaudit_web.js";
 import { wireAudit } from "./audit-view.js";
 import { wireSurvey } from "./survey-view.js";
+import { wirePopulation } from "./population-view.js";
 import { initPriorsView } from "./priors-view.js";
 import { addFigureExports, addTableExports, stem } from "./exports.js";
 
@@ -458,6 +459,7 @@ async function main() {
   wireExports();
   state.audit = wireAudit({ currentTable: () => state.table, el, currentModel: currentModelSpec });
   wireSurvey({ settingsFor: state.audit.settingsFor, el });
+  wirePopulation();
   initPriorsView({ currentTable: () => state.source, currentModel: currentModelSpec });
   if (demos.length > 0) {
     select.value = "0";

@@ -14,6 +14,8 @@ const APP_SHELL = [
   "./exports.js",
   "./audit-worker.js",
   "./survey-view.js",
+  "./population-view.js",
+  "./population-worker.js",
   "./style.css",
   "./pkg/eccaudit_web.js",
   "./pkg/eccaudit_web_bg.wasm",

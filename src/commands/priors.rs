@@ -167,7 +167,11 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     if let Some(dir) = &args.save_samples {
         for (i, run) in report.runs.iter().enumerate() {
             let stem = format!("{}-{}", super::population::SAMPLES_PREFIX, i + 1);
-            let ls = [Some(report.least_squares.e)];
+            // The least-squares e is known here for the summarised companion only.
+            let mut ls = vec![None; settings.posterior.n_companions];
+            if let Some(slot) = ls.get_mut(report.least_squares.companion) {
+                *slot = Some(report.least_squares.e);
+            }
             super::population::write_run_samples(
                 dir,
                 &stem,

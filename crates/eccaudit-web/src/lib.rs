@@ -12,6 +12,7 @@ mod canvas;
 mod dataset;
 mod demo;
 mod fit;
+mod population;
 mod priors;
 mod render;
 mod survey;

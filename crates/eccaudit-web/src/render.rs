@@ -7,8 +7,9 @@
 use eccaudit_plot::plotters::coord::Shift;
 use eccaudit_plot::plotters::prelude::{DrawingArea, DrawingBackend, IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{
-    BiasFigure, CornerFigure, DistributionFigure, DrawResult, EccentricityFigure,
-    PeriodogramFigure, PhaseFoldFigure, TraceFigure, VelocityFigure,
+    BetaParameterFigure, BiasFigure, CornerFigure, DistributionFigure, DrawResult,
+    EccentricityFigure, PeriodogramFigure, PhaseFoldFigure, PopulationDensityFigure, TraceFigure,
+    VelocityFigure,
 };
 use plotters_backend::{
     BackendColor, BackendCoord, BackendStyle, BackendTextStyle, DrawingErrorKind,
@@ -46,6 +47,11 @@ figure!(
 );
 figure!(CornerFigure, eccaudit_plot::draw_corner);
 figure!(TraceFigure, eccaudit_plot::draw_traces);
+figure!(
+    PopulationDensityFigure,
+    eccaudit_plot::draw_population_density
+);
+figure!(BetaParameterFigure, eccaudit_plot::draw_beta_parameters);
 
 /// Draw `figure` on `canvas` at the canvas's size.
 pub(crate) fn on_canvas(figure: &impl Figure, canvas: HtmlCanvasElement) -> Result<(), JsValue> {

@@ -1,0 +1,69 @@
+// The population view: saved posterior draws (written by `eccaudit priors --save-samples` for the
+// two demo tables) chosen in the page are inferred in a worker; the summary, both figures and
+// the CSV/JSON downloads appear, and the downloads are byte for byte what `eccaudit population
+// --out` writes for the same files in the same order and seed (same bits natively and in wasm).
+import { test, before, after } from "node:test";
+import assert from "node:assert/strict";
+import { execFileSync } from "node:child_process";
+import { mkdtempSync, readFileSync, readdirSync, rmSync } from "node:fs";
+import { tmpdir } from "node:os";
+import path from "node:path";
+import { fileURLToPath } from "node:url";
+import { openApp, DEMO_DIR } from "./harness.mjs";
+
+const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
+const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
+const CLI = path.join(TARGET, "release", "eccaudit");
+const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-population-test-"));
+
+let app;
+before(async () => {
+  app = await openApp();
+  await app.load();
+});
+after(async () => {
+  await app?.close();
+  rmSync(TMP, { recursive: true, force: true });
+});
+
+test("saved draws give the command line's population in the page", async () => {
+  const { page } = app;
+  const draws = path.join(TMP, "draws");
+  // Two tables × two priors: four files with distinct names.
+  for (const [table, tag] of [["velka17-nearly-circular.csv", "a"], ["corvin4-eccentric.tsv", "b"]]) {
+    const dir = path.join(TMP, tag);
+    execFileSync(CLI, ["priors", path.join(DEMO_DIR, table), "--quiet", "--priors", "uniform:0..0.99", "kipping2013",
+      "--save-samples", dir]);
+    for (const f of readdirSync(dir)) execFileSync("cp", [path.join(dir, f), path.join(TMP, `${tag}-${f}`)]);
+  }
+  const files = readdirSync(TMP).filter((f) => f.endsWith(".ecsv")).sort();
+  assert.equal(files.length, 4);
+
+  await page.fill("#population-seed", "3");
+  await page.setInputFiles("#population-files", files.map((f) => path.join(TMP, f)));
+  await page.waitForFunction(() => document.getElementById("population-chosen").textContent.startsWith("4 files"));
+  await page.click("#population-run");
+  await page.waitForSelector("body[data-population-state='done']", { timeout: 300_000 });
+  const summary = await page.textContent("#population-summary");
+  assert.match(summary, /Population of e from 4 companions \(4 read\)/);
+  assert.match(summary, /population mean e = /);
+  assert.ok(await app.paintedPixels("#population-density") > 1000);
+  assert.ok(await app.paintedPixels("#population-beta") > 1000);
+
+  const save = async (button, name) => {
+    const [download] = await Promise.all([page.waitForEvent("download"), page.click(button)]);
+    const file = path.join(TMP, name);
+    await download.saveAs(file);
+    return readFileSync(file, "utf8");
+  };
+  const csv = await save("#population-download-csv", "page-population.csv");
+  const json = await save("#population-download-json", "page-population.json");
+  const svg = await save("[data-testid='export-svg-population-beta']", "page-beta.svg");
+  assert.match(svg, /Kipping 2013, all/);
+
+  execFileSync(CLI, ["population", ...files.map((f) => path.join(TMP, f)), "--seed", "3", "--out", draws]);
+  assert.equal(csv, readFileSync(path.join(draws, "population.csv"), "utf8"));
+  assert.equal(json, readFileSync(path.join(draws, "population.json"), "utf8"));
+  await app.screenshot("population");
+  assert.deepEqual(app.consoleErrors, []);
+});
