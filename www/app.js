@@ -458,8 +458,8 @@ async function main() {
   wireFit();
   wireExports();
   state.audit = wireAudit({ currentTable: () => state.table, el, currentModel: currentModelSpec });
-  wireSurvey({ settingsFor: state.audit.settingsFor, el });
-  wirePopulation();
+  const population = wirePopulation();
+  wireSurvey({ settingsFor: state.audit.settingsFor, el, population });
   initPriorsView({ currentTable: () => state.source, currentModel: currentModelSpec });
   if (demos.length > 0) {
     select.value = "0";

@@ -14,7 +14,28 @@ const $ = (id) => document.getElementById(id);
 const MAX_FILES = 5000;
 const SAMPLES_FILE = /\.ecsv$/i;
 
-/** Wire the "Population" section. */
+/**
+ * Draws of one table saved by the page's survey (`[{name, text}]`, the bytes and names
+ * `eccaudit survey --save-samples` writes), computed in a population worker.
+ */
+export function surveyDraws({ text, name, folder, settings, spec }) {
+  return new Promise((resolve, reject) => {
+    const w = new Worker(new URL("./population-worker.js", import.meta.url), { type: "module", name: "survey-draws" });
+    w.onmessage = (event) => {
+      w.terminate();
+      if (event.data.type === "draws") resolve(event.data.files);
+      else reject(new Error(event.data.message));
+    };
+    w.onerror = (event) => {
+      event.preventDefault();
+      w.terminate();
+      reject(new Error(`the worker stopped: ${event.message || "it could not start"}`));
+    };
+    w.postMessage({ type: "draws", text, name, folder, settings, spec });
+  });
+}
+
+/** Wire the "Population" section; returns `useFiles(files, origin)` for the survey view. */
 export function wirePopulation() {
   let files = [];
   let worker = null;
@@ -30,20 +51,24 @@ export function wirePopulation() {
     $("population-cancel").disabled = !running;
   };
 
-  async function choose(fileList) {
+  function useFiles(list, origin) {
     showError("");
-    const chosen = [...fileList].filter((f) => SAMPLES_FILE.test(f.name));
-    if (chosen.length > MAX_FILES) {
-      showError(`${chosen.length} files: the page takes at most ${MAX_FILES} (use eccaudit population)`);
+    if (list.length > MAX_FILES) {
+      showError(`${list.length} files: the page takes at most ${MAX_FILES} (use eccaudit population)`);
       return;
     }
-    const read = await Promise.all(chosen.map(async (f) => ({ name: f.webkitRelativePath || f.name, text: await f.text() })));
-    read.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
-    files = read;
+    files = [...list].sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
     $("population-chosen").textContent = files.length === 0
       ? "No saved draws among the files (.ecsv written by --save-samples)."
-      : `${files.length} file${files.length === 1 ? "" : "s"}: ${files.map((f) => f.name).join(", ")}`;
+      : `${files.length} file${files.length === 1 ? "" : "s"}${origin ? ` (${origin})` : ""}: ${files.map((f) => f.name).join(", ")}`;
     setRunning(false);
+  }
+
+  async function choose(fileList) {
+    const chosen = [...fileList].filter((f) => SAMPLES_FILE.test(f.name));
+    const read = await Promise.all(chosen.slice(0, MAX_FILES + 1)
+      .map(async (f) => ({ name: f.webkitRelativePath || f.name, text: await f.text() })));
+    useFiles(read, "");
   }
 
   function show(r) {
@@ -95,7 +120,7 @@ export function wirePopulation() {
       showError(`the worker stopped: ${event.message || "it could not start"}`);
       finish("error", "");
     };
-    w.postMessage({ files, seed: Number.isFinite(seed) && seed >= 0 ? seed : 1 });
+    w.postMessage({ type: "infer", files, seed: Number.isFinite(seed) && seed >= 0 ? seed : 1 });
   }
 
   function cancel() {
@@ -128,4 +153,5 @@ export function wirePopulation() {
     fileStem: () => "beta-ab",
     svg: (width, height) => drawPopulationBetaSvg(current(), width, height),
   });
+  return { useFiles };
 }

@@ -1,16 +1,23 @@
-// eccaudit population worker: infers the population of e from saved posterior draws off the main thread.
-// Message in: { files: [{ name, text }], seed }. Message out: { type: "result", json, text, csv }
-// or { type: "error", message }. The page cancels by terminating the worker.
-import init, { populationFromSamples } from "./pkg/eccaudit_web.js";
+// eccaudit population worker: off the main thread, (a) the posterior draws the survey saves for one
+// table, (b) the population of e inferred from saved draws.
+// Messages in: { type: "draws", text, name, folder, settings, spec } → { type: "draws", files: [{ name, text }] };
+//              { type: "infer", files: [{ name, text }], seed } → { type: "result", json, text, csv }.
+// On failure: { type: "error", message }. The page cancels by terminating the worker.
+import init, { populationFromSamples, surveySamples } from "./pkg/eccaudit_web.js";
 
 const ready = init();
 
 self.addEventListener("message", async (event) => {
-  const { files, seed } = event.data;
+  const msg = event.data;
   try {
     await ready;
-    const result = populationFromSamples(JSON.stringify(files), seed);
-    self.postMessage({ type: "result", json: result.json, text: result.text, csv: result.csv });
+    if (msg.type === "draws") {
+      const files = JSON.parse(surveySamples(msg.text, msg.name, msg.folder, msg.settings, msg.spec));
+      self.postMessage({ type: "draws", files });
+    } else {
+      const result = populationFromSamples(JSON.stringify(msg.files), msg.seed);
+      self.postMessage({ type: "result", json: result.json, text: result.text, csv: result.csv });
+    }
   } catch (err) {
     self.postMessage({ type: "error", message: err instanceof Error ? err.message : String(err) });
   }

@@ -8,6 +8,7 @@
 // and JSON are the bytes the command line writes for a manifest listing the same files in order.
 import { AuditRun, catalogueCsv, catalogueJson, surveyErrorRows, surveyFolder } from "./pkg/eccaudit_web.js";
 import { downloadText } from "./exports.js";
+import { surveyDraws } from "./population-view.js";
 
 const $ = (id) => document.getElementById(id);
 const messageOf = (err) => (err instanceof Error ? err.message : String(err));
@@ -23,7 +24,7 @@ const TABLE_FILE = /\.(csv|tsv|txt|dat|rdb)$/i;
  * page's injection–recovery form completed for `table` ({text, name, velocityUnit,
  * timeConvention}); `el` builds DOM nodes from text.
  */
-export function wireSurvey({ settingsFor, el }) {
+export function wireSurvey({ settingsFor, el, population = null }) {
   let tables = [];   // [{name, text}], sorted by name
   let job = null;    // the survey in progress
   let rows = null;   // catalogue rows of the last finished survey
@@ -143,6 +144,8 @@ export function wireSurvey({ settingsFor, el }) {
       j.workers.push(worker);
     }
     const collected = [];
+    const saveDraws = $("survey-save-draws")?.checked === true;
+    const draws = [];
     for (let i = 0; i < n; i++) {
       if (job !== j) return;
       j.tableIndex = i;
@@ -161,6 +164,17 @@ export function wireSurvey({ settingsFor, el }) {
         if (job !== j) { run.free(); return; }
         run.finish(trialRows);
         collected.push(...JSON.parse(run.catalogueRows(table.name, folder)));
+        if (saveDraws) {
+          // As `eccaudit survey --save-samples`: the posterior under uniform:0..0.99 after the
+          // audit; a failure leaves this table without draws and the audit stands.
+          $("survey-status").textContent = `Sampling the posterior of ${table.name} for the population…`;
+          try {
+            draws.push(...await surveyDraws({ text: table.text, name: table.name, folder, settings: settingsJson, spec: "uniform:0..0.99" }));
+          } catch (err) {
+            console.warn(`no posterior draws saved for ${table.name}: ${messageOf(err)}`);
+          }
+          if (job !== j) { run.free(); return; }
+        }
       } catch (err) {
         if (job !== j) { run?.free(); return; }
         collected.push(...JSON.parse(surveyErrorRows(table.name, folder, messageOf(err))));
@@ -175,6 +189,7 @@ export function wireSurvey({ settingsFor, el }) {
     const failed = collected.filter((r) => r.status === "error").length;
     $("survey-status").textContent =
       `Done: ${n - failed} of ${n} tables audited in ${seconds.toFixed(1)} s` + (failed ? `; ${failed} could not be audited (see the table)` : "") + ".";
+    if (saveDraws && population) population.useFiles(draws, "from the survey");
     setState("done");
     setRunning(false);
   }

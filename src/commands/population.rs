@@ -5,8 +5,8 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Context};
 use eccaudit_core::population::{
-    infer_population, parse_samples_ecsv, population_csv, samples_from_run, write_samples_ecsv,
-    EccentricitySamples, PopulationSettings,
+    infer_population, parse_samples_ecsv, population_csv, samples_file_name, samples_from_run,
+    survey_table_samples, write_samples_ecsv, EccentricitySamples, PopulationSettings,
 };
 use eccaudit_core::posterior::PosteriorRun;
 use eccaudit_core::sampler::Steer;
@@ -211,51 +211,31 @@ pub fn write_run_samples(
     Ok(written)
 }
 
-/// `survey --save-samples SPEC`: samples the posterior of `table` under the prior `spec` with
-/// the survey's model and seed (the `priors` defaults otherwise) and writes the draws of every
-/// companion into `folder` (`posterior-e.ecsv`, or `posterior-e-cN.ecsv` with several). A run
-/// that fails is reported on standard error and leaves no file; the audit stands.
-#[allow(clippy::too_many_arguments)]
+/// `survey --save-samples SPEC`: the draws of every companion of `table`
+/// ([`eccaudit_core::population::survey_table_samples`], the same as the page's survey) written
+/// into `folder` (`posterior-e.ecsv`, or `posterior-e-cN.ecsv` with several). A posterior that
+/// fails is reported on standard error and leaves no file; the audit stands.
 pub fn save_table_samples(
     folder: &Path,
     table_name: &str,
     table: &eccaudit_core::table::VelocityTable,
     settings: &eccaudit_core::audit::AuditSettings,
-    fit: &eccaudit_core::fit::FitReport,
     spec: &str,
     bar: &indicatif::ProgressBar,
 ) -> anyhow::Result<()> {
-    use eccaudit_core::posterior::{prior_sensitivity, SensitivityRequest};
-    let request = SensitivityRequest {
-        priors: vec![spec.to_string()],
-        seed: settings.seed,
-        model: settings.model.clone(),
-        ..SensitivityRequest::default()
-    };
-    let sensitivity = request
-        .to_settings()
-        .with_context(|| format!("--save-samples {spec}"))?;
     let data = eccaudit_core::fit::FitData::from_table(table);
-    let report = match prior_sensitivity(&data, &sensitivity, &mut |_| Steer::Continue) {
-        Ok(report) => report,
+    let samples = match survey_table_samples(&data, table_name, settings, spec) {
+        Ok(samples) => samples,
         Err(e) => {
             bar.suspend(|| eprintln!("eccaudit: no posterior draws saved for `{table_name}`: {e}"));
             return Ok(());
         }
     };
-    let least_squares: Vec<Option<f64>> = fit
-        .eccentric
-        .companions
-        .iter()
-        .map(|c| Some(c.eccentricity.value))
-        .collect();
-    write_run_samples(
-        folder,
-        SAMPLES_PREFIX,
-        table_name,
-        &report.runs[0],
-        sensitivity.posterior.n_companions,
-        &least_squares,
-    )?;
+    fs::create_dir_all(folder).with_context(|| format!("cannot create `{}`", folder.display()))?;
+    let n = settings.model.companions;
+    for s in &samples {
+        let path = folder.join(samples_file_name(s.companion, n));
+        super::survey::write_atomic(&path, &write_samples_ecsv(s))?;
+    }
     Ok(())
 }

@@ -200,16 +200,8 @@ fn audit_entry(
             entry.stellar_mass,
         ));
     }
-    if let (Some(spec), Some(plan)) = (save_samples, plans.first()) {
-        super::population::save_table_samples(
-            &folder,
-            &entry.table,
-            &table,
-            &settings,
-            plan.fit(),
-            spec,
-            bar,
-        )?;
+    if let Some(spec) = save_samples {
+        super::population::save_table_samples(&folder, &entry.table, &table, &settings, spec, bar)?;
     }
     Ok(TableOutcome::Done(rows))
 }

@@ -2,10 +2,12 @@
 // two demo tables) chosen in the page are inferred in a worker; the summary, both figures and
 // the CSV/JSON downloads appear, and the downloads are byte for byte what `eccaudit population
 // --out` writes for the same files in the same order and seed (same bits natively and in wasm).
+// And the survey view feeds it: a page survey with "Save posterior draws" gives the population
+// `eccaudit survey --save-samples` + `eccaudit population` give.
 import { test, before, after } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
-import { mkdtempSync, readFileSync, readdirSync, rmSync } from "node:fs";
+import { mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import path from "node:path";
 import { fileURLToPath } from "node:url";
@@ -14,6 +16,7 @@ import { openApp, DEMO_DIR } from "./harness.mjs";
 const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
 const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
 const CLI = path.join(TARGET, "release", "eccaudit");
+const MAKE_TABLES = path.join(TARGET, "release", "examples", "make_survey_tables");
 const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-population-test-"));
 
 let app;
@@ -65,5 +68,42 @@ test("saved draws give the command line's population in the page", async () => {
   assert.equal(csv, readFileSync(path.join(draws, "population.csv"), "utf8"));
   assert.equal(json, readFileSync(path.join(draws, "population.json"), "utf8"));
   await app.screenshot("population");
+  assert.deepEqual(app.consoleErrors, []);
+});
+
+test("the survey view feeds the population view with the command line's draws", async () => {
+  const { page } = app;
+  const root = path.join(TMP, "survey");
+  execFileSync(MAKE_TABLES, [root, "3", "30", "11"]);
+  const dir = path.join(root, "tables");
+  const names = ["star-001.csv", "star-002.csv", "star-003.csv"];
+  await page.fill("#audit-settings [name='eccentricities']", "0, 0.3");
+  await page.fill("#audit-settings [name='trials']", "2");
+  await page.fill("#audit-settings [name='seed']", "5");
+  await page.fill("#audit-settings [name='posterior_walkers']", "16");
+  await page.fill("#audit-settings [name='posterior_steps']", "40");
+  await page.fill("#audit-settings [name='posterior_burn']", "20");
+  await page.check("#survey-save-draws");
+  await page.setInputFiles("#survey-files", names.map((n) => path.join(dir, n)));
+  await page.waitForFunction(() => document.getElementById("survey-chosen").textContent.startsWith("3 tables"));
+  await page.click("#survey-run");
+  await page.waitForSelector("body[data-survey-state='done']", { timeout: 300_000 });
+  const chosen = await page.textContent("#population-chosen");
+  assert.match(chosen, /^3 files \(from the survey\)/);
+  await page.fill("#population-seed", "2");
+  await page.click("#population-run");
+  await page.waitForSelector("body[data-population-state='done']", { timeout: 300_000 });
+  const [download] = await Promise.all([page.waitForEvent("download"), page.click("#population-download-csv")]);
+  const file = path.join(TMP, "page-survey-population.csv");
+  await download.saveAs(file);
+
+  writeFileSync(path.join(dir, "page-manifest.csv"), `table\n${names.join("\n")}\n`);
+  const out = path.join(TMP, "cli-survey");
+  execFileSync(CLI, ["survey", path.join(dir, "page-manifest.csv"), "--out", out,
+    "--e", "0,0.3", "--trials", "2", "--seed", "5",
+    "--posterior-walkers", "16", "--posterior-steps", "40", "--posterior-burn", "20", "--quiet", "--save-samples"],
+  { env: { ...process.env, SLURM_ARRAY_TASK_ID: "" } });
+  execFileSync(CLI, ["population", out, "--seed", "2", "--out", path.join(TMP, "cli-survey-population")]);
+  assert.equal(readFileSync(file, "utf8"), readFileSync(path.join(TMP, "cli-survey-population", "population.csv"), "utf8"));
   assert.deepEqual(app.consoleErrors, []);
 });

@@ -1,9 +1,13 @@
 //! The population of e in the page: the inference from saved posterior draws (run in a worker by `www/population-worker.js`), its text, JSON and CSV, and its two figures on canvas or as SVG, all from `eccaudit_core::population` and `eccaudit_plot`.
 
+use eccaudit_core::audit::AuditSettings;
+use eccaudit_core::fit::FitData;
 use eccaudit_core::population::{
-    infer_population, kipping_2013_marks, parse_samples_ecsv, population_csv, PopulationSettings,
+    infer_population, kipping_2013_marks, parse_samples_ecsv, population_csv, samples_file_name,
+    survey_table_samples, write_samples_ecsv, PopulationSettings,
 };
 use eccaudit_core::sampler::Steer;
+use eccaudit_core::table::{parse_table, ReadOptions};
 use eccaudit_plot::{BetaParameterFigure, PopulationDensityFigure, POPULATION_FIGURE_SIZE};
 use serde::Deserialize;
 use serde_json::Value;
@@ -62,6 +66,41 @@ pub fn population_from_samples(files_json: &str, seed: u32) -> Result<JsValue, J
     set("text", report.to_string())?;
     set("csv", population_csv(&report))?;
     Ok(out.into())
+}
+
+/// The posterior draws the survey saves for one table (the bytes `eccaudit survey
+/// --save-samples SPEC` writes), as JSON `[{name, text}, …]`, one file per companion named
+/// `FOLDER/posterior-e.ecsv` (or `-cN` with several): the table read with the audit settings'
+/// units and time convention, the posterior under `spec` with their model and seed. Meant for a
+/// worker.
+#[wasm_bindgen(js_name = surveySamples)]
+pub fn survey_samples(
+    table_text: &str,
+    source_name: &str,
+    folder: &str,
+    settings_json: &str,
+    spec: &str,
+) -> Result<String, JsValue> {
+    let settings = AuditSettings::from_json(settings_json).map_err(js_error)?;
+    let options = ReadOptions {
+        source_name: source_name.to_string(),
+        velocity_unit: settings.read.velocity_unit,
+        time: settings.read.time,
+        delimiter: None,
+    };
+    let table = parse_table(table_text, &options).map_err(js_error)?;
+    let data = FitData::from_table(&table);
+    let samples = survey_table_samples(&data, source_name, &settings, spec).map_err(js_error)?;
+    let files: Vec<serde_json::Value> = samples
+        .iter()
+        .map(|s| {
+            serde_json::json!({
+                "name": format!("{folder}/{}", samples_file_name(s.companion, settings.model.companions)),
+                "text": write_samples_ecsv(s),
+            })
+        })
+        .collect();
+    serde_json::to_string(&files).map_err(js_error)
 }
 
 fn numbers(v: &Value) -> Vec<f64> {

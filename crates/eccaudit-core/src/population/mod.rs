@@ -20,8 +20,9 @@ pub use infer::{
 pub use likelihood::{log_sum_exp, Bins, PreparedStar, E_FLOOR};
 pub use report::{error_text, population_csv};
 pub use samples::{
-    eccentricity_draws, parse_samples_ecsv, prior_spec_text, samples_from_run, thin_to_ess,
-    write_samples_ecsv, EccentricitySamples, MAX_SAVED_DRAWS, SAMPLES_FORMAT, SAMPLES_VERSION,
+    eccentricity_draws, parse_samples_ecsv, prior_spec_text, samples_file_name, samples_from_run,
+    survey_table_samples, thin_to_ess, write_samples_ecsv, EccentricitySamples, MAX_SAVED_DRAWS,
+    SAMPLES_FORMAT, SAMPLES_VERSION,
 };
 
 /// Errors of the population module.

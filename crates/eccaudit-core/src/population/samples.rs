@@ -155,6 +155,48 @@ pub fn samples_from_run(
     })
 }
 
+/// The draws a survey saves for one table (`eccaudit survey --save-samples SPEC` and the page's
+/// survey, so both save the same bits): the posterior of `data` under the prior `spec`, with the
+/// audit settings' model and seed and the `priors` defaults otherwise (4 ensembles of 16
+/// walkers, run until converged within 4·10⁶ evaluations), one entry per companion, each with
+/// its least-squares e from the fit the posterior starts from.
+pub fn survey_table_samples(
+    data: &crate::fit::FitData,
+    table: &str,
+    settings: &crate::audit::AuditSettings,
+    spec: &str,
+) -> Result<Vec<EccentricitySamples>, crate::posterior::PosteriorError> {
+    use crate::posterior::{sensitivity_run, sensitivity_start, SensitivityRequest};
+    let request = SensitivityRequest {
+        priors: vec![spec.to_string()],
+        seed: settings.seed,
+        model: settings.model.clone(),
+        ..SensitivityRequest::default()
+    };
+    let sensitivity = request.to_settings()?;
+    let start = sensitivity_start(data, &sensitivity)?;
+    let run = sensitivity_run(data, &sensitivity, &start, 0, &mut |_| {
+        crate::sampler::Steer::Continue
+    })?;
+    let companions = &start.fit.eccentric.companions;
+    Ok((1..=sensitivity.posterior.n_companions)
+        .filter_map(|c| {
+            let ls = companions.get(c - 1).map(|f| f.eccentricity.value);
+            samples_from_run(table, c, &run, ls)
+        })
+        .collect())
+}
+
+/// The file name a survey gives the draws of `companion` (1-based) of a table with
+/// `n_companions`: `posterior-e.ecsv`, or `posterior-e-cN.ecsv` with several.
+pub fn samples_file_name(companion: usize, n_companions: usize) -> String {
+    if n_companions > 1 {
+        format!("posterior-e-c{companion}.ecsv")
+    } else {
+        "posterior-e.ecsv".to_string()
+    }
+}
+
 /// Writes the samples as ECSV (astropy reads it: `Table.read(path, format="ascii.ecsv")`,
 /// metadata in `table.meta`).
 pub fn write_samples_ecsv(samples: &EccentricitySamples) -> String {
