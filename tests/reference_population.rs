@@ -130,7 +130,8 @@ fn sixty_stars_from_a_beta_population_cover_the_truth_and_show_the_naive_bias() 
     let report = report(&samples);
     let used: Vec<&EccentricitySamples> = samples.iter().filter(|s| s.converged).collect();
     // Runs that miss the convergence rule within the `priors` budget are excluded (and listed
-    // by the report); on this survey 51 of 60 converge (measured, seed 2166). At least three
+    // by the report); on this survey 50 of 60 converge (measured, seed 2166,
+    // with the posterior starts of main 1c19422; 51 before). At least three
     // quarters must enter the population for the test to mean anything.
     assert!(used.len() >= 45, "only {} of 60 runs converged", used.len());
     // The truth inside the 95 % highest-posterior-density region of (a, b): fewer than 95 % of
