@@ -28,7 +28,8 @@ pub struct Args {
     /// Velocity table: CSV, TSV or whitespace-separated; columns time, velocity, uncertainty[, instrument].
     pub file: PathBuf,
     /// Eccentricity prior, repeatable: SHAPE[(ARGS)][:E_MIN..E_MAX] with SHAPE one of uniform,
-    /// beta(a,b), kipping2013, rayleigh(sigma), halfnormal(sigma), loguniform, ecosw, sqrtecosw.
+    /// beta(a,b), kipping2013, kipping2013short|long|auto, rayleigh(sigma), halfnormal(sigma),
+    /// loguniform, ecosw, sqrtecosw, jeffreys (from the table's Fisher information).
     /// Default: uniform:0..0.99, uniform:0..0.8, uniform:0..0.5, kipping2013, rayleigh(0.3), ecosw.
     #[arg(long = "priors", value_name = "SPEC", num_args = 1..)]
     pub priors: Vec<String>,

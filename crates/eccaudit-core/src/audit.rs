@@ -229,6 +229,25 @@ impl PosteriorInjectionSettings {
         }
         Ok(posteriors)
     }
+
+    /// The estimators for simulations of `design` under the jitter mode of the model spec,
+    /// treated exactly as `eccaudit priors` treats it
+    /// ([`crate::posterior::SensitivityRequest::to_settings`]): one jitter per instrument is
+    /// sampled under `auto` and `fit`, none under `off` — whether or not the least-squares fit
+    /// of the real data needed one — so that the posterior in a trial is the posterior the
+    /// user gets from `priors` for a table like the simulated one.
+    pub fn estimators_for_mode(
+        &self,
+        seed: u64,
+        design: &InjectionDesign,
+        jitter: crate::spec::JitterMode,
+    ) -> Result<Vec<PosteriorEstimator>, AuditError> {
+        let mut posteriors = self.estimators_for(seed, design)?;
+        for p in &mut posteriors {
+            p.posterior.jitter = jitter != crate::spec::JitterMode::Off;
+        }
+        Ok(posteriors)
+    }
 }
 
 impl Default for InjectionSettings {
@@ -559,10 +578,11 @@ impl AuditPlan {
         design.validate()?;
         let least_squares = settings.least_squares();
         // The posterior inside each trial samples the same model as the refits.
-        let posteriors = settings
-            .injection
-            .posterior
-            .estimators_for(settings.seed, &design)?;
+        let posteriors = settings.injection.posterior.estimators_for_mode(
+            settings.seed,
+            &design,
+            settings.model.jitter,
+        )?;
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
         let mut observed: Vec<Option<EccentricityEstimate>> = Vec::new();

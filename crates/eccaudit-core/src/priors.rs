@@ -160,6 +160,16 @@ pub enum EccentricityShape {
     /// [`KIPPING_2013_PERIOD_SPLIT`] days) through [`EccentricityPriorSettings::for_period`];
     /// must be resolved before use.
     Kipping2013ByPeriod,
+    /// Jeffreys' (1946) prior from the table itself: density ∝ √det F(θ) over the orbital
+    /// parameters of every companion jointly, F = JᵀΣ⁻¹J the Fisher information of the model
+    /// at the table's own epochs and stated uncertainties (see
+    /// [`crate::posterior::RvPosterior::jeffreys_log_density`] for exactly what it covers).
+    /// Not a prior on e alone: as an eccentricity shape it is the base measure only (uniform
+    /// in the (√e cos ω, √e sin ω) disk, i.e. uniform in e, on `[e_min, e_max]`, which sets
+    /// the bounds and the starts), and the posterior target multiplies it by √det F and drops
+    /// the densities of P and K (keeping their bounds). Its marginal on e depends on the data,
+    /// so the prior-dependent summaries (prior curve, KL, Savage–Dickey BF₀₁) are not given.
+    Jeffreys,
 }
 
 /// The period [d] that separates Kipping's (2013, MNRAS 434, L51) short- and long-period
@@ -197,6 +207,7 @@ impl EccentricityShape {
             EccentricityShape::Kipping2013ByPeriod => {
                 "Kipping (2013) Beta by period (not yet resolved)".into()
             }
+            EccentricityShape::Jeffreys => "Jeffreys (table's Fisher information)".into(),
         }
     }
 }
@@ -383,9 +394,9 @@ impl EccentricityPrior {
         let target = self.cdf_at_min + u * self.mass;
         let e = match shape {
             EccentricityShape::Circular => 0.0,
-            EccentricityShape::Uniform | EccentricityShape::UniformInSqrtECosOmega => {
-                lo + u * (hi - lo)
-            }
+            EccentricityShape::Uniform
+            | EccentricityShape::UniformInSqrtECosOmega
+            | EccentricityShape::Jeffreys => lo + u * (hi - lo),
             EccentricityShape::UniformInECosOmega => libm::sqrt(lo * lo + u * (hi * hi - lo * lo)),
             EccentricityShape::LogUniform => lo * libm::exp(u * libm::log(hi / lo)),
             EccentricityShape::Rayleigh { sigma } => {
@@ -434,6 +445,7 @@ fn shape_log_kernel(shape: EccentricityShape, e: f64) -> f64 {
     match shape {
         EccentricityShape::Uniform
         | EccentricityShape::UniformInSqrtECosOmega
+        | EccentricityShape::Jeffreys
         | EccentricityShape::Circular => 0.0,
         EccentricityShape::Beta { a, b } => (a - 1.0) * libm::log(e) + (b - 1.0) * libm::log1p(-e),
         EccentricityShape::Rayleigh { sigma } => libm::log(e) - e * e / (2.0 * sigma * sigma),
@@ -471,7 +483,9 @@ fn shape_log_normaliser(shape: EccentricityShape) -> f64 {
 /// CDF of a shape before truncation (for log-uniform: ln e, an antiderivative).
 fn shape_cdf(shape: EccentricityShape, e: f64) -> f64 {
     match shape {
-        EccentricityShape::Uniform | EccentricityShape::UniformInSqrtECosOmega => e,
+        EccentricityShape::Uniform
+        | EccentricityShape::UniformInSqrtECosOmega
+        | EccentricityShape::Jeffreys => e,
         EccentricityShape::Circular => 1.0,
         EccentricityShape::Beta { a, b } => regularized_incomplete_beta(a, b, e),
         EccentricityShape::Kipping2013ByPeriod => shape_cdf(EccentricityShape::KIPPING_2013_ALL, e),

@@ -212,7 +212,7 @@ impl Estimator for PosteriorEstimator {
 mod tests {
     use crate::audit::{AuditPlan, AuditSettings};
     use crate::fit::FitData;
-    use crate::inject::Outcome;
+    use crate::inject::{Estimator, Outcome};
     use crate::orbit::OrbitalElements;
     use crate::posterior::{prior_sensitivity, SensitivityRequest};
     use crate::random::{normal, stream_rng};
@@ -348,6 +348,67 @@ mod tests {
                 record.trial,
                 estimate.point
             );
+        }
+    }
+
+    #[test]
+    fn trial_posteriors_treat_the_jitter_as_priors_does() {
+        // Under every jitter mode, the posterior settings inside the audit's trials equal those
+        // `eccaudit priors` builds for the same model (jitter sampled under auto and fit even
+        // when the χ² test of the real fit needed none; the same priors on P, K, jitter,
+        // trend), up to the eccentricity prior, which each estimator sets.
+        let text = two_companion_text();
+        let table = parse_table(&text, &ReadOptions::new("two.csv")).unwrap();
+        for mode in [JitterMode::Auto, JitterMode::Fit, JitterMode::Off] {
+            let spec = ModelSpec {
+                jitter: mode,
+                ..model()
+            };
+            let mut settings = AuditSettings {
+                model: spec.clone(),
+                ..AuditSettings::default()
+            };
+            settings.injection.eccentricities = vec![TRUE_E2];
+            settings.injection.trials_per_cell = 1;
+            let plan = AuditPlan::new(&table, &settings).unwrap();
+            let priors = SensitivityRequest {
+                model: spec,
+                ..SensitivityRequest::default()
+            }
+            .to_settings()
+            .unwrap()
+            .posterior;
+            let trial = plan.design().model.clone();
+            let estimators = settings
+                .injection
+                .posterior
+                .estimators_for_mode(1, plan.design(), mode)
+                .unwrap();
+            for estimator in &estimators {
+                let mut p = estimator.posterior;
+                p.priors.eccentricity = priors.priors.eccentricity;
+                assert_eq!(
+                    p, priors,
+                    "mode {mode:?}, refit fits jitter: {}",
+                    trial.fit_jitter
+                );
+            }
+            if mode == JitterMode::Auto {
+                // The table's stated σ are right, so auto fitted no jitter to the real data,
+                // yet the trial posteriors sample one, as priors does: the case this is for.
+                assert!(!trial.fit_jitter);
+                assert!(estimators.iter().all(|e| e.posterior.jitter));
+            }
+            // The plan's own estimators are built the same way.
+            let names: Vec<String> = plan
+                .estimators()
+                .iter()
+                .map(|e| e.settings_text())
+                .collect();
+            let expected: Vec<String> = std::iter::once(plan.estimators()[0].settings_text())
+                .chain(estimators.iter().map(|e| e.settings_text()))
+                .collect();
+            assert_eq!(names, expected, "mode {mode:?}");
         }
     }
 }

@@ -88,7 +88,7 @@ pub struct SavageDickey {
 }
 
 impl SavageDickey {
-    fn undefined(note: String) -> Self {
+    pub(crate) fn undefined(note: String) -> Self {
         Self {
             status: BayesFactorStatus::Undefined,
             bf01: f64::NAN,

@@ -10,7 +10,7 @@ use super::PosteriorError;
 pub const SPEC_SHAPES: &str = "uniform, beta(a,b), kipping2013 (all planets), kipping2013short \
 (P < 382.3 d), kipping2013long, kipping2013auto (short or long by the fitted period), \
 rayleigh(sigma), halfnormal(sigma), loguniform (needs :E_MIN..E_MAX with E_MIN > 0), \
-ecosw (p ∝ e), sqrtecosw";
+ecosw (p ∝ e), sqrtecosw, jeffreys (√det of the table's Fisher information over P, K, e, ω, λ)";
 
 /// [`super::default_prior_set`] written as specs, in the same order (for the page's editable
 /// list and the command line's help).
@@ -94,6 +94,10 @@ pub fn parse_prior_spec(spec: &str) -> Result<EccentricityPriorSettings, Posteri
         "kipping2013auto" => {
             want(0)?;
             EccentricityShape::Kipping2013ByPeriod
+        }
+        "jeffreys" => {
+            want(0)?;
+            EccentricityShape::Jeffreys
         }
         "beta" => {
             want(2)?;

@@ -48,6 +48,20 @@ pub struct KlEstimate {
     pub n_occupied: usize,
 }
 
+impl KlEstimate {
+    /// Not computed (every figure NaN, no bins): the prior's marginal on e is unknown.
+    pub fn undefined() -> Self {
+        KlEstimate {
+            nats: f64::NAN,
+            plug_in: f64::NAN,
+            bias_correction: f64::NAN,
+            standard_error: f64::NAN,
+            n_bins: 0,
+            n_occupied: 0,
+        }
+    }
+}
+
 /// KL(posterior ‖ prior) of e on [`KL_BINS`] equal bins over the prior's support (see
 /// [`KlEstimate`]); `effective_sample_size` ≤ samples.
 pub fn kl_divergence_histogram(
@@ -477,7 +491,14 @@ pub fn summarise_eccentricity(
         .map(|i| i as f64 / (DENSITY_GRID_POINTS - 1) as f64)
         .collect();
     let posterior_curve = grid.iter().map(|&e| kde.density(e)).collect();
-    let mut prior_curve: Vec<f64> = grid.iter().map(|&e| prior.density(e)).collect();
+    // Under the Jeffreys prior the marginal prior of e depends on the data and is not
+    // computed: no prior curve, no KL, no Savage–Dickey ratio (which needs it near e = 0).
+    let jeffreys = prior.settings().shape == crate::priors::EccentricityShape::Jeffreys;
+    let mut prior_curve: Vec<f64> = if jeffreys {
+        Vec::new()
+    } else {
+        grid.iter().map(|&e| prior.density(e)).collect()
+    };
     for i in 0..prior_curve.len() {
         if !prior_curve[i].is_finite() {
             prior_curve[i] = prior_curve.get(i + 1).copied().unwrap_or(0.0);
@@ -506,8 +527,20 @@ pub fn summarise_eccentricity(
         mode_at_boundary,
         p_nearly_circular: p_low,
         p_nearly_circular_mc_error: libm::sqrt(p_low * (1.0 - p_low) / tail),
-        information_gain: kl_divergence_histogram(&sorted, bulk, prior),
-        bayes_factor: savage_dickey(&sorted, bulk.min(tail), prior),
+        information_gain: if jeffreys {
+            KlEstimate::undefined()
+        } else {
+            kl_divergence_histogram(&sorted, bulk, prior)
+        },
+        bayes_factor: if jeffreys {
+            super::bayes::SavageDickey::undefined(
+                "undefined: the Jeffreys prior's marginal on e depends on the data and is not \
+                 computed, so the Savage–Dickey ratio has no prior mass near e = 0 to divide by"
+                    .into(),
+            )
+        } else {
+            savage_dickey(&sorted, bulk.min(tail), prior)
+        },
         density: DensityCurves {
             e: grid,
             posterior: posterior_curve,

@@ -25,6 +25,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::fit::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
 use crate::kepler::TWO_PI;
+use crate::lsq::LeastSquaresProblem;
 use crate::priors::{
     EccentricityPrior, EccentricityPriorSettings, OrbitPriorSettings, OrbitPriors,
     PreparedScalarPrior, ScalarPrior,
@@ -187,6 +188,16 @@ pub struct RvPosterior<'a> {
     linear_scratch: RefCell<(Vec<f64>, Vec<f64>)>,
     /// 1/Σ_{i∈j} σᵢ⁻² per instrument (offsets without jitter).
     inverse_weight_sums: Vec<f64>,
+    /// Under the Jeffreys prior: scratch of [`Self::jeffreys_log_density`].
+    jeffreys: Option<RefCell<JeffreysScratch>>,
+}
+
+/// Scratch of the Jeffreys prior: the full orbital vector, the Jacobian and F.
+#[derive(Debug)]
+struct JeffreysScratch {
+    full: Vec<f64>,
+    jacobian: nalgebra::DMatrix<f64>,
+    fisher: Vec<f64>,
 }
 
 impl<'a> RvPosterior<'a> {
@@ -257,7 +268,64 @@ impl<'a> RvPosterior<'a> {
                 vec![0.0; data.n_points()],
             )),
             inverse_weight_sums,
+            jeffreys: (settings.priors.eccentricity.shape
+                == crate::priors::EccentricityShape::Jeffreys)
+                .then(|| {
+                    RefCell::new(JeffreysScratch {
+                        full: vec![0.0; n_orbit_params],
+                        jacobian: nalgebra::DMatrix::zeros(data.n_points(), n_orbit_params),
+                        fisher: vec![0.0; n_orbit_params * n_orbit_params],
+                    })
+                }),
         })
+    }
+
+    /// The Fisher information F = JᵀΣ⁻¹J of the mean model at `full` (the full orbital layout:
+    /// companions, offsets, trend; no jitters), p × p row-major, J the analytic Jacobian of
+    /// [`RvProblem`] in (P, K, √e cos ω, √e sin ω, λ) per companion and the linear parameters,
+    /// Σ = diag(σᵢ²) the table's stated uncertainties (the jitter is not part of it). `None`
+    /// outside the model's domain.
+    pub fn fisher_information(&self, full: &[f64]) -> Option<Vec<f64>> {
+        let p = self.n_orbit_params;
+        let mut jacobian = nalgebra::DMatrix::zeros(self.problem.data().n_points(), p);
+        let mut fisher = vec![0.0; p * p];
+        fisher_into(&self.problem, &full[..p], &mut jacobian, &mut fisher).then_some(fisher)
+    }
+
+    /// ln of the unnormalised Jeffreys (1946) prior, ½ ln det F(θ), at sampled point `x` (see
+    /// [`Self::fisher_information`]); −∞ where F is singular (e = 0 exactly, where the
+    /// (√e cos ω, √e sin ω) coordinates are singular) or outside the domain.
+    ///
+    /// What it covers: P, K, √e cos ω, √e sin ω and λ of every companion, jointly. The linear
+    /// parameters (offsets, trend) enter the model through a design matrix A that does not
+    /// depend on θ, so with them in F, det F(θ, b) = det(AᵀΣ⁻¹A) · det S(θ), S the Schur
+    /// complement (the information on θ with b unknown): the joint Jeffreys prior is ∝ √det S(θ)
+    /// times a constant in b, i.e. exactly a flat prior on b — the flat prior under which they
+    /// are integrated out ([`Self::marginalised`]). F is computed with the linear columns in,
+    /// which gives the same density up to that constant. The jitters are not covered (they
+    /// keep their own prior) and F uses the stated uncertainties. The prior is invariant under
+    /// reparametrisation; in these coordinates it already is the density the sampler needs.
+    /// Because the model is linear in K, F = D G D with D = diag(K) on the P, h, k, λ rows, so
+    /// √det F ∝ K⁴ per companion: it favours large K, the known behaviour of Jeffreys' joint
+    /// rule for a scale-like parameter; K's prior bound (`k_max`) keeps it proper.
+    pub fn jeffreys_log_density(&self, x: &[f64]) -> f64 {
+        let Some(scratch) = &self.jeffreys else {
+            return 0.0;
+        };
+        let mut scratch = scratch.borrow_mut();
+        let JeffreysScratch {
+            full,
+            jacobian,
+            fisher,
+        } = &mut *scratch;
+        full[..self.n_sampled_orbit].copy_from_slice(&x[..self.n_sampled_orbit]);
+        if self.linear == LinearParameters::Sampled {
+            full.copy_from_slice(&x[..self.n_orbit_params]);
+        }
+        if !fisher_into(&self.problem, full, jacobian, fisher) {
+            return f64::NEG_INFINITY;
+        }
+        0.5 * ln_det_cholesky(fisher, self.n_orbit_params)
     }
 
     /// The target with the offsets (and the trend, when modelled) integrated out analytically
@@ -420,15 +488,25 @@ impl<'a> RvPosterior<'a> {
         self.evaluations.get()
     }
 
-    /// The log-prior: sum of the independent priors (−∞ outside any support).
+    /// The log-prior: sum of the independent priors (−∞ outside any support); under the
+    /// Jeffreys prior, P and K contribute their bounds only and ½ ln det F is added
+    /// ([`Self::jeffreys_log_density`]).
     pub fn log_prior(&self, x: &[f64]) -> f64 {
         let layout = self.problem.layout();
         let prepared = &self.prepared;
         let mut lp = 0.0;
+        let jeffreys = self.jeffreys.is_some();
         for c in 0..layout.n_companions() {
             let start = layout.companion_start(c);
-            lp += prepared.period.log_density(x[start]);
-            lp += prepared.semi_amplitude.log_density(x[start + 1]);
+            let p = prepared.period.log_density(x[start]);
+            let k = prepared.semi_amplitude.log_density(x[start + 1]);
+            if jeffreys {
+                if p == f64::NEG_INFINITY || k == f64::NEG_INFINITY || p.is_nan() || k.is_nan() {
+                    return f64::NEG_INFINITY;
+                }
+            } else {
+                lp += p + k;
+            }
             if !layout.circular[c] {
                 lp += self
                     .priors
@@ -457,6 +535,9 @@ impl<'a> RvPosterior<'a> {
             for j in 0..layout.n_instruments {
                 lp += prepared.jitter.log_density(x[self.n_sampled_orbit + j]);
             }
+        }
+        if jeffreys && lp > f64::NEG_INFINITY {
+            lp += self.jeffreys_log_density(x);
         }
         lp
     }
@@ -873,5 +954,225 @@ mod tests {
     fn e_max_above_the_model_domain_is_lowered() {
         let s = PosteriorSettings::default();
         assert_eq!(s.effective_eccentricity().e_max, MAX_ECCENTRICITY);
+    }
+}
+
+/// F = JᵀJ of the weighted Jacobian of `problem` at `full` into `fisher` (p × p row-major);
+/// false outside the model's domain. Own loops in a fixed order (no BLAS, no FMA), so the
+/// bits are the same native and in wasm.
+fn fisher_into(
+    problem: &RvProblem<'_>,
+    full: &[f64],
+    jacobian: &mut nalgebra::DMatrix<f64>,
+    fisher: &mut [f64],
+) -> bool {
+    if !problem.jacobian(full, jacobian) {
+        return false;
+    }
+    let n = jacobian.nrows();
+    let p = jacobian.ncols();
+    let columns = jacobian.as_slice();
+    for a in 0..p {
+        let ca = &columns[a * n..(a + 1) * n];
+        for b in 0..=a {
+            let cb = &columns[b * n..(b + 1) * n];
+            let mut sum = 0.0;
+            for (u, v) in ca.iter().zip(cb) {
+                sum += u * v;
+            }
+            fisher[a * p + b] = sum;
+            fisher[b * p + a] = sum;
+        }
+    }
+    fisher.iter().all(|v| v.is_finite())
+}
+
+/// ln det of the symmetric positive-definite p × p matrix `m` (row-major) by Cholesky
+/// factorisation in place of a copy's lower triangle; −∞ when it is not positive definite.
+fn ln_det_cholesky(m: &mut [f64], p: usize) -> f64 {
+    let mut ln_det = 0.0;
+    for j in 0..p {
+        let mut d = m[j * p + j];
+        for k in 0..j {
+            d -= m[j * p + k] * m[j * p + k];
+        }
+        if d.is_nan() || d <= 0.0 {
+            return f64::NEG_INFINITY;
+        }
+        let l = libm::sqrt(d);
+        m[j * p + j] = l;
+        ln_det += 2.0 * libm::log(l);
+        for i in j + 1..p {
+            let mut s = m[i * p + j];
+            for k in 0..j {
+                s -= m[i * p + k] * m[j * p + k];
+            }
+            m[i * p + j] = s / l;
+        }
+    }
+    ln_det
+}
+
+#[cfg(test)]
+mod jeffreys_tests {
+    use super::*;
+    use crate::priors::EccentricityShape;
+
+    fn jeffreys_settings(jitter: bool, trend: bool) -> PosteriorSettings {
+        let mut s = PosteriorSettings {
+            jitter,
+            trend,
+            ..PosteriorSettings::default()
+        };
+        s.priors.eccentricity = crate::priors::EccentricityPriorSettings {
+            shape: EccentricityShape::Jeffreys,
+            e_min: 0.0,
+            e_max: 0.99,
+        };
+        s
+    }
+
+    /// 30 uneven epochs, two instruments, uneven σ.
+    fn data() -> FitData {
+        let times: Vec<f64> = (0..30)
+            .map(|i| 2_459_000.0 + 6.1 * i as f64 + 1.7 * libm::sin(0.9 * i as f64))
+            .collect();
+        let velocities: Vec<f64> = (0..30).map(|i| 20.0 * libm::cos(0.5 * i as f64)).collect();
+        let errors: Vec<f64> = (0..30).map(|i| 1.5 + 0.2 * (i % 4) as f64).collect();
+        let instruments: Vec<usize> = (0..30).map(|i| i % 2).collect();
+        FitData::new(
+            &times,
+            &velocities,
+            &errors,
+            &instruments,
+            &["a".into(), "b".into()],
+        )
+    }
+
+    fn hk(e: f64, w: f64) -> (f64, f64) {
+        (libm::sqrt(e) * libm::cos(w), libm::sqrt(e) * libm::sin(w))
+    }
+
+    #[test]
+    fn fisher_matrix_matches_finite_differences() {
+        // F from the analytic Jacobian against F from central differences of the model
+        // velocities (step 10⁻⁶ relative; truncation error O(h²) ≈ 10⁻¹², rounding ≈ 10⁻¹⁰/h,
+        // so 10⁻⁵ relative to the largest entry of each row is loose; common practice).
+        let data = data();
+        let settings = jeffreys_settings(false, true);
+        let target = RvPosterior::new(&data, &settings, &[0.0]).unwrap();
+        let (h, k) = hk(0.4, 2.2);
+        let full = [17.3, 25.0, h, k, 0.4, 3.0, -4.0, 0.01];
+        let fisher = target.fisher_information(&full).unwrap();
+        let p = full.len();
+        let n = data.n_points();
+        let problem = RvProblem::new(
+            &data,
+            settings.layout(2),
+            crate::fit::EccentricityCoordinates::SqrtE,
+        );
+        let mut columns = vec![vec![0.0; n]; p];
+        for (a, column) in columns.iter_mut().enumerate() {
+            let step = 1e-6 * full[a].abs().max(1e-2);
+            let (mut up, mut down) = (full.to_vec(), full.to_vec());
+            up[a] += step;
+            down[a] -= step;
+            let (mut vu, mut vd) = (vec![0.0; n], vec![0.0; n]);
+            assert!(problem.model_velocities(&up, &mut vu));
+            assert!(problem.model_velocities(&down, &mut vd));
+            for i in 0..n {
+                column[i] = (vu[i] - vd[i]) / (2.0 * step) / data.uncertainties()[i];
+            }
+        }
+        for a in 0..p {
+            let scale = (0..p).map(|b| fisher[a * p + b].abs()).fold(0.0, f64::max);
+            for b in 0..p {
+                let fd: f64 = (0..n).map(|i| columns[a][i] * columns[b][i]).sum();
+                assert!(
+                    (fisher[a * p + b] - fd).abs() <= 1e-5 * scale,
+                    "F[{a}][{b}] = {} vs {fd}",
+                    fisher[a * p + b]
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn sinusoid_limit_has_the_closed_form_determinant() {
+        // Closed form (derived here). At e = 0 with M = λ − ω + 2π(t − t_ref)/P and
+        // θ = M + ω = λ + 2π(t − t_ref)/P, Kepler's ν ≈ M + 2e sin M to first order in e, so
+        // v = K[cos(ν + ω) + e cos ω] ≈ K cos θ − Ke[cos ω − cos(2θ − ω)] + Ke cos ω
+        //   = K cos θ + K x cos 2θ + K y sin 2θ,   (x, y) = (e cos ω, e sin ω).
+        // Hence at x = y = 0 exactly: ∂v/∂K = cos θ, ∂v/∂λ = −K sin θ, ∂v/∂x = K cos 2θ,
+        // ∂v/∂y = K sin 2θ, ∂v/∂γ = 1. For N ≥ 5 epochs at equally spaced phases and one σ,
+        // these five columns are orthogonal with squared norms N, N/2, N/2·K², N/2·K², N/2·K²
+        // (over σ²), so the (K, x, y, λ, γ) block of F has determinant N⁵K⁶/(16σ¹⁰).
+        let (n, period, k, sigma) = (12usize, 10.0, 7.0, 2.0);
+        let times: Vec<f64> = (0..n)
+            .map(|i| 2_459_000.0 + period * i as f64 / n as f64)
+            .collect();
+        let v = vec![0.0; n];
+        let data = FitData::new(&times, &v, &vec![sigma; n], &vec![0; n], &["a".into()]);
+        let layout = ParameterLayout::new(1, 1, false);
+        let e_problem = RvProblem::new(&data, layout, crate::fit::EccentricityCoordinates::E);
+        let full = [period, k, 0.0, 0.0, 0.3, 0.0];
+        let mut jacobian = nalgebra::DMatrix::zeros(n, 6);
+        let mut fisher = vec![0.0; 36];
+        assert!(fisher_into(&e_problem, &full, &mut jacobian, &mut fisher));
+        // Block without P (index 0): K, x, y, λ, γ = indices 1..6.
+        let mut block: Vec<f64> = (1..6)
+            .flat_map(|a| (1..6).map(move |b| (a, b)))
+            .map(|(a, b)| fisher[a * 6 + b])
+            .collect();
+        let expected = 5.0 * libm::log(n as f64) + 6.0 * libm::log(k)
+            - libm::log(16.0)
+            - 10.0 * libm::log(sigma);
+        let got = ln_det_cholesky(&mut block, 5);
+        // Exact up to rounding (sums of 12 cosines): 1e-9.
+        assert!((got - expected).abs() < 1e-9, "{got} vs {expected}");
+    }
+
+    #[test]
+    fn jeffreys_density_obeys_its_exact_identities() {
+        let data = data();
+        let settings = jeffreys_settings(false, false);
+        let target = RvPosterior::marginalised(&data, &settings, &[0.0]).unwrap();
+        let (e, w) = (0.3, 1.1);
+        let (h, k) = hk(e, w);
+        let at = |kk: f64| target.jeffreys_log_density(&[17.3, kk, h, k, 0.4]);
+        // 1. The model is linear in K: √det F ∝ K⁴ (four K-proportional columns) — exact.
+        assert!((at(50.0) - at(25.0) - 4.0 * libm::log(2.0)).abs() < 1e-9);
+        // 2. Invariance: in (h, k) = (√e cos ω, √e sin ω) the density is |∂(x, y)/∂(h, k)| = 2e
+        //    times the density in (x, y) = (e cos ω, e sin ω) — exact chain rule.
+        let layout = ParameterLayout::new(1, 2, false);
+        let e_problem = RvProblem::new(&data, layout, crate::fit::EccentricityCoordinates::E);
+        let full_e = [
+            17.3,
+            25.0,
+            e * libm::cos(w),
+            e * libm::sin(w),
+            0.4,
+            0.0,
+            0.0,
+        ];
+        let mut jacobian = nalgebra::DMatrix::zeros(30, 7);
+        let mut fisher = vec![0.0; 49];
+        assert!(fisher_into(&e_problem, &full_e, &mut jacobian, &mut fisher));
+        let in_e = 0.5 * ln_det_cholesky(&mut fisher, 7);
+        assert!(
+            (at(25.0) - in_e - libm::log(2.0 * e)).abs() < 1e-8,
+            "{} vs {}",
+            at(25.0),
+            in_e + libm::log(2.0 * e)
+        );
+        // 3. The log-prior replaces the P and K densities by √det F and keeps their bounds.
+        let x = [17.3, 25.0, h, k, 0.4];
+        let uniform_hk = -libm::log(0.99) - 1.144_729_885_849_400_2;
+        let expected = uniform_hk - libm::log(crate::kepler::TWO_PI) + target.linear_log_prior;
+        assert!((target.log_prior(&x) - expected - at(25.0)).abs() < 1e-9);
+        assert_eq!(
+            target.log_prior(&[17.3, -1.0, h, k, 0.4]),
+            f64::NEG_INFINITY
+        );
     }
 }
