@@ -52,7 +52,8 @@ pub struct EccentricitySamples {
 
 /// A prior as a spec that [`parse_prior_spec`] reads back to the same settings (numbers in
 /// their shortest round-trip form). `None` for the circular prior and an unresolved
-/// by-period choice, which have no draws to save.
+/// by-period choice, which have no draws to save, and for the Jeffreys prior, whose marginal
+/// on e is not known.
 pub fn prior_spec_text(settings: &EccentricityPriorSettings) -> Option<String> {
     let shape = match settings.shape {
         EccentricityShape::Uniform => "uniform".to_string(),
@@ -62,7 +63,11 @@ pub fn prior_spec_text(settings: &EccentricityPriorSettings) -> Option<String> {
         EccentricityShape::LogUniform => "loguniform".to_string(),
         EccentricityShape::UniformInECosOmega => "ecosw".to_string(),
         EccentricityShape::UniformInSqrtECosOmega => "sqrtecosw".to_string(),
-        EccentricityShape::Circular | EccentricityShape::Kipping2013ByPeriod => return None,
+        // Jeffreys: its marginal on e depends on the table and is not known, so the draws
+        // cannot be reweighted to a population.
+        EccentricityShape::Circular
+        | EccentricityShape::Kipping2013ByPeriod
+        | EccentricityShape::Jeffreys => return None,
     };
     Some(format!("{shape}:{}..{}", settings.e_min, settings.e_max))
 }
