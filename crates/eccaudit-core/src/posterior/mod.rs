@@ -42,8 +42,8 @@ pub use run::{
 };
 pub use spec::{parse_prior_spec, DEFAULT_PRIOR_SPECS, SPEC_SHAPES};
 pub use start::{
-    add_other_optima, ensemble_starts, start_centres, start_from_fit, PosteriorStart, StartOptimum,
-    KEEP_GAP, MAX_OTHER_OPTIMA,
+    add_other_optima, ensemble_starts, start_centres, start_from_fit, OptimumNote, PosteriorStart,
+    StartOptimum, KEEP_GAP, MAX_OTHER_OPTIMA,
 };
 pub use summary::{
     kl_divergence_binned, kl_divergence_histogram, prior_label, summarise_eccentricity,

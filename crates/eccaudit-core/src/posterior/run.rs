@@ -13,7 +13,7 @@ use crate::sampler::{
 };
 
 use super::start::{
-    add_other_optima, ensemble_starts, start_centres, start_from_fit, PosteriorStart,
+    add_other_optima, ensemble_starts, start_centres, start_from_fit, OptimumNote, PosteriorStart,
 };
 use super::summary::{summarise_eccentricity, EccentricitySummary, SamplerCost};
 use super::target::{PosteriorSettings, RvPosterior};
@@ -87,6 +87,10 @@ pub struct PosteriorRun {
     /// `start.optima` close enough in log-posterior; see [`ensemble_starts`]).
     #[serde(default)]
     pub start_centres: usize,
+    /// Every other least-squares optimum found: used as a start or not, and how far below the
+    /// best in log-posterior.
+    #[serde(default)]
+    pub optima: Vec<OptimumNote>,
     /// The chains of all ensembles, walkers side by side (not serialised: they are large).
     #[serde(skip)]
     pub chains: Chains,
@@ -167,7 +171,8 @@ fn run_posterior_judged(
     };
     let n_ensembles = length.n_ensembles.max(1);
     let starts = ensemble_starts(start, &target, n_ensembles, sampler.n_walkers, sampler.seed)?;
-    let n_centres = start_centres(start, &target).len().min(n_ensembles);
+    let (centres, optima) = start_centres(start, &target);
+    let n_centres = centres.len().min(n_ensembles);
     let h_index = target.layout().companion_start(companion) + 2;
     let e_traces_of = |ensembles: &[&Chains]| -> Vec<Vec<f64>> {
         ensembles
@@ -256,6 +261,7 @@ fn run_posterior_judged(
         parameter_names: target.sampled_names(&names),
         start: start.clone(),
         start_centres: n_centres,
+        optima,
         chains,
     })
 }
@@ -388,7 +394,7 @@ pub struct SensitivityReport {
 /// The methods behind each figure, for reports.
 pub fn method_notes() -> Vec<String> {
     vec![
-        "Sampling: independent affine-invariant ensembles (stretch and differential-evolution moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities within the stranded-walker gap of it; one optimum per ensemble in turn), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
+        "Sampling: independent affine-invariant ensembles (stretch and differential-evolution moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose peak density is at least a fifth of the best's; one optimum per ensemble in turn), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
         "Median, mean, intervals: sample quantiles (type 7); HDI = shortest interval of the samples. Mode: maximum of a Gaussian KDE reflected at the prior's bounds, Silverman bandwidth.".into(),
         "P(e < 0.05): fraction of samples; error √(p(1−p)/ESS_tail).".into(),
         "Information gain: KL(posterior ‖ prior) of e in nats on 50 equal bins over the prior's support, Miller–Madow bias (m−1)/(2 ESS) removed; binning makes it a lower bound.".into(),
@@ -723,24 +729,39 @@ impl fmt::Display for SensitivityReport {
                     String::new()
                 }
             )?;
-            if run.start_centres > 1 {
+            let describe = |o: &OptimumNote| {
+                format!(
+                    "companion {} at P = {:.4} d, e = {:.3} ({:.1} nats below the best)",
+                    o.companion + 1,
+                    o.period,
+                    o.eccentricity,
+                    o.log_density_below_best
+                )
+            };
+            let used: Vec<String> = run.optima.iter().filter(|o| o.used).map(describe).collect();
+            if !used.is_empty() {
                 writeln!(
                     f,
-                    "Run {}: ensembles started around {} least-squares optima (the best and {})",
+                    "Run {}: ensembles started around {} least-squares optima: the best and {}",
                     i + 1,
-                    run.start_centres,
-                    run.start
-                        .optima
-                        .iter()
-                        .take(run.start_centres - 1)
-                        .map(|o| format!(
-                            "companion {} at P = {:.4} d, e = {:.3}",
-                            o.companion + 1,
-                            o.period,
-                            o.eccentricity
-                        ))
-                        .collect::<Vec<_>>()
-                        .join("; ")
+                    used.len() + 1,
+                    used.join("; ")
+                )?;
+            }
+            let unused: Vec<String> = run
+                .optima
+                .iter()
+                .filter(|o| !o.used)
+                .map(describe)
+                .collect();
+            if !unused.is_empty() {
+                writeln!(
+                    f,
+                    "Run {}: other least-squares optima not used as starts (peak posterior \
+                     density below a fifth of the best's; a minor mode there, if any, is not \
+                     sampled): {}",
+                    i + 1,
+                    unused.join("; ")
                 )?;
             }
             if run.start.disperse_eccentricity {
