@@ -470,7 +470,7 @@ pub fn start_centres(
         }
         let value = target.log_density(&target.sampled_point(&point));
         let below = best - value;
-        let used = value.is_finite() && !(below > KEEP_GAP);
+        let used = value.is_finite() && (below.is_nan() || below <= KEEP_GAP);
         notes.push(OptimumNote {
             companion: optimum.companion,
             period: optimum.period,
