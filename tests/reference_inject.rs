@@ -292,3 +292,126 @@ fn least_squares_belt_covers_at_its_level_off_the_grid() {
     );
     assert!(limits as f64 > 0.8 * belt_points[0].len() as f64);
 }
+
+/// Each companion's belt interval covers its true e on a realistic model: 100 simulated tables
+/// of two companions (P = 11.3 d, K = 14 m/s, e = 0.15; P = 47.2 d, K = 20 m/s, e = 0.3), a
+/// linear trend and two instruments with their own offsets and uncertainties (2 and 3 m/s), 60
+/// random epochs over 400 d, each audited in full (model fitted, background and offsets held
+/// at the fit, every companion's simulations refitted with the whole model), least squares
+/// only, 30 base trials at e = 0, 0.1, …, 0.6. At nominal 95% each companion's interval must
+/// cover its truth in at least 90% of the tables: with 100 tables the binomial standard error
+/// at 95% is 0.022 (common practice), so 90% is 2.3 standard errors below nominal, and the
+/// belt's own Monte-Carlo error (30 simulations per grid e) widens the spread further; the
+/// issue asks for ≥ 90%.
+#[test]
+fn every_companion_is_covered_in_a_two_companion_trend_two_instrument_model() {
+    use eccaudit_core::audit::{
+        AuditPlan, AuditSettings, InjectionSettings, PosteriorInjectionSettings,
+    };
+    use eccaudit_core::orbit::OrbitalElements;
+    use eccaudit_core::random::{standard_normal, stream_rng};
+    use eccaudit_core::spec::{JitterMode, ModelSpec};
+    use eccaudit_core::table::{parse_table, ReadOptions};
+    use rand::RngExt;
+    use rayon::prelude::*;
+
+    let truths = [(11.3, 14.0, 0.15, 0.7), (47.2, 20.0, 0.3, 3.5)];
+    let orbits: Vec<OrbitalElements> = truths
+        .iter()
+        .map(|&(p, k, e, w)| OrbitalElements::new(p, k, e, w, 2_460_003.0).unwrap())
+        .collect();
+    let mut rng = stream_rng(3873, 0);
+    let mut times: Vec<f64> = (0..60)
+        .map(|_| 2_460_000.0 + 400.0 * rng.random::<f64>())
+        .collect();
+    times.sort_by(f64::total_cmp);
+    let settings = AuditSettings {
+        model: ModelSpec {
+            companions: 2,
+            trend: true,
+            jitter: JitterMode::Off,
+            ..ModelSpec::DEFAULT
+        },
+        injection: InjectionSettings {
+            eccentricities: (0..=6).map(|i| f64::from(i) / 10.0).collect(),
+            trials_per_cell: 30,
+            posterior: PosteriorInjectionSettings {
+                priors: Vec::new(),
+                ..PosteriorInjectionSettings::default()
+            },
+            ..InjectionSettings::default()
+        },
+        seed: 1937,
+        ..AuditSettings::default()
+    };
+    let n_tables = 100;
+    // (companion index, covered) for every table and companion.
+    let outcomes: Vec<Vec<(usize, bool)>> = (0..n_tables)
+        .into_par_iter()
+        .map(|i| {
+            let mut noise = stream_rng(1998, i);
+            let mut text = String::from("bjd,rv [m/s],sigma [m/s],instrument\n");
+            for (j, &t) in times.iter().enumerate() {
+                let (name, sigma, offset) = if j % 2 == 0 {
+                    ("A", 2.0, -5.0)
+                } else {
+                    ("B", 3.0, 20.0)
+                };
+                let v: f64 = orbits.iter().map(|o| o.radial_velocity(t)).sum::<f64>()
+                    + offset
+                    + 0.02 * (t - 2_460_200.0)
+                    + sigma * standard_normal(&mut noise);
+                text.push_str(&format!("{t:.5},{v:.4},{sigma},{name}\n"));
+            }
+            let table = parse_table(&text, &ReadOptions::new("two.csv")).unwrap();
+            let plans = AuditPlan::all(&table, &settings).unwrap();
+            plans
+                .iter()
+                .map(|plan| {
+                    let records = plan.run_trials(0..plan.n_trials(), &mut |_| {}).unwrap();
+                    let report = plan.finish(&records).unwrap();
+                    let period = plan.design().period;
+                    let which = if (period / 11.3 - 1.0).abs() < 0.05 {
+                        0
+                    } else {
+                        1
+                    };
+                    let row = report
+                        .statement
+                        .rows
+                        .iter()
+                        .find(|r| r.name == "lsq")
+                        .unwrap();
+                    let interval = row.interval.unwrap();
+                    let truth = truths[which].2;
+                    (which, interval.lower <= truth && truth <= interval.upper)
+                })
+                .collect()
+        })
+        .collect();
+    for companion in 0..2 {
+        let hits: Vec<bool> = outcomes
+            .iter()
+            .flatten()
+            .filter(|(c, _)| *c == companion)
+            .map(|(_, h)| *h)
+            .collect();
+        let share = hits.iter().filter(|&&h| h).count() as f64 / hits.len() as f64;
+        eprintln!(
+            "companion {}: belt coverage {share:.3} over {} tables",
+            companion + 1,
+            hits.len()
+        );
+        assert!(
+            hits.len() >= 95,
+            "companion {} audited {} times",
+            companion + 1,
+            hits.len()
+        );
+        assert!(
+            share >= 0.90,
+            "companion {}: coverage {share}",
+            companion + 1
+        );
+    }
+}

@@ -62,6 +62,12 @@ pub struct BeltInterval {
     pub upper_limit: bool,
     /// True when the interval reaches the top of the grid: the true e may lie above it.
     pub open_above: bool,
+    /// True when an end lies next to an injected e whose simulations never reach the observed
+    /// value (R = 0 there), or whose acceptance cut is saturated (c > 0.99: neighbouring
+    /// injected e give estimates that never meet): the grid is too coarse to place that end,
+    /// so it is put, conservatively, at that neighbouring injected e. A finer grid there would
+    /// narrow it.
+    pub under_resolved: bool,
 }
 
 /// A [`BeltInterval`] with bootstrap Monte-Carlo standard errors of its ends.
@@ -247,6 +253,7 @@ impl Belt {
                 e_best: self.e[last],
                 upper_limit: false,
                 open_above: true,
+                under_resolved: false,
             };
         }
         let g = self.margins(x0);
@@ -257,7 +264,9 @@ impl Belt {
                     .then(b.cmp(&a))
             })
             .map_or(self.e[0], |j| self.e[j]);
-        let accepted: Vec<usize> = (0..=last).filter(|&j| g[j] >= 0.0).collect();
+        // R is 1 where one injected e alone has density, and c_j is then 1 too: a tolerance
+        // keeps rounding in the interpolation from rejecting e_best itself.
+        let accepted: Vec<usize> = (0..=last).filter(|&j| g[j] >= -1e-9).collect();
         let (lo_j, hi_j) = match (accepted.first(), accepted.last()) {
             (Some(&a), Some(&b)) => (a, b),
             // Only when interpolation on the x grid pushes R(x0) below c at e_best.
@@ -266,17 +275,26 @@ impl Belt {
                 (j, j)
             }
         };
-        let root = |a: usize, b: usize| {
-            // g(a) < 0 ≤ g(b): the zero of the line through them.
-            let t = -g[a] / (g[b] - g[a]);
+        let mut under_resolved = false;
+        let mut root = |a: usize, b: usize| {
+            // g(a) < 0 ≤ g(b): the zero of the line through them — unless the rejected
+            // neighbour has no density at x0 at all (its acceptance region does not reach
+            // towards x0), where the line says nothing and the end goes to the neighbour.
+            // The same when either cut is saturated (c ≈ 1: that injected e's estimates never
+            // meet its neighbours', so g jumps between grid points instead of varying along them).
+            if self.ratio_at(a, x0) <= 1e-9 || self.cut[a] > 0.99 || self.cut[b] > 0.99 {
+                under_resolved = true;
+                return self.e[a];
+            }
+            let t = -g[a] / (g[b] - g[a]).max(f64::MIN_POSITIVE);
             self.e[a] + t.clamp(0.0, 1.0) * (self.e[b] - self.e[a])
         };
-        let lower = if lo_j == 0 || g[lo_j] < 0.0 {
+        let lower = if lo_j == 0 {
             self.e[lo_j]
         } else {
             root(lo_j - 1, lo_j)
         };
-        let upper = if hi_j == last || g[hi_j] < 0.0 {
+        let upper = if hi_j == last {
             self.e[hi_j]
         } else {
             root(hi_j + 1, hi_j)
@@ -288,6 +306,7 @@ impl Belt {
             e_best,
             upper_limit: lo_j == 0 && self.e[0] == 0.0,
             open_above: hi_j == last,
+            under_resolved,
         }
     }
 }

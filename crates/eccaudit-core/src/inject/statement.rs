@@ -715,10 +715,18 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
             )
         };
     }
-    if i.upper_limit {
-        format!("e < {:.3}{hi_err}", i.upper)
+    let coarse = if i.under_resolved {
+        " (conservative: the injected grid is too coarse to place its ends more closely)"
     } else {
-        format!("{:.3}{lo_err} < e < {:.3}{hi_err}", i.lower, i.upper)
+        ""
+    };
+    if i.upper_limit {
+        format!("e < {:.3}{hi_err}{coarse}", i.upper)
+    } else {
+        format!(
+            "{:.3}{lo_err} < e < {:.3}{hi_err}{coarse}",
+            i.lower, i.upper
+        )
     }
 }
 
