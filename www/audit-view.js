@@ -81,6 +81,8 @@ export function wireAudit({ currentTable, el, currentModel }) {
   form.elements.eccentricities.value = defaults.injection.eccentricities.map(gridValue).join(", ");
   form.elements.trials.value = String(defaults.injection.trials_per_cell);
   form.elements.seed.value = String(defaults.seed);
+  form.elements.max_circular.value = String(defaults.injection.max_circular_trials ?? 10000);
+  form.elements.estimator.value = defaults.injection.estimator ?? "";
   form.elements.jitter.value = String(defaults.injection.jitter);
   form.elements.audit_companion.value = String(defaults.model.audit_companion ?? 1);
   form.elements.period_search.checked = defaults.injection.period_search;
@@ -121,6 +123,13 @@ export function wireAudit({ currentTable, el, currentModel }) {
     settings.injection.jitter = number("jitter", "added noise", nonNegative);
     settings.injection.period_search = data.get("period_search") === "on";
     settings.seed = number("seed", "seed", whole);
+    const maxCircular = number("max_circular", "circular trials", positiveWhole);
+    // The replay file carries the cap only when it is not the default (as the command line's).
+    if (maxCircular !== (defaults.injection.max_circular_trials ?? 10000)) settings.injection.max_circular_trials = maxCircular;
+    else delete settings.injection.max_circular_trials;
+    const estimator = String(data.get("estimator") ?? "").trim();
+    if (estimator !== "") settings.injection.estimator = estimator;
+    else delete settings.injection.estimator;
     const even = Object.assign((v) => Number.isSafeInteger(v) && v >= 2 && v % 2 === 0, { need: "must be an even whole number ≥ 2" });
     settings.injection.posterior.n_walkers = number("posterior_walkers", "posterior walkers", even);
     settings.injection.posterior.n_steps = number("posterior_steps", "posterior steps", positiveWhole);

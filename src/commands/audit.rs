@@ -85,6 +85,8 @@ pub fn settings_from_flags(
             n_omega_starts: run.omega_starts,
             lucy_sweeney: !run.no_lucy_sweeney,
             posterior: posterior_settings(run),
+            estimator: run.estimator.clone(),
+            max_circular_trials: run.max_circular,
         },
         seed: run.seed,
         ..AuditSettings::default()

@@ -103,6 +103,17 @@ pub struct RunArgs {
     /// Combine the slices with `eccaudit merge`.
     #[arg(long, value_name = "I/N")]
     pub shard: Option<Shard>,
+    /// `audit` and `survey`: most circular simulations the circular decision may add (default
+    /// and largest 10000); fewer is quicker, and the decision's p less precise (its Monte-Carlo
+    /// error is printed either way).
+    #[arg(long, value_name = "N", default_value_t = eccaudit_core::inject::adaptive::DECISION_CAP)]
+    pub max_circular: u64,
+    /// `audit` and `survey`: the estimator the statement quotes, by its name in the
+    /// statement's table (`lsq`, or a posterior output such as `posterior_uniform_median`);
+    /// default: the stated rule (smallest RMSE over the injected e inside its calibrated
+    /// interval). Stored in the settings file.
+    #[arg(long, value_name = "NAME")]
+    pub estimator: Option<String>,
 }
 
 impl RunArgs {

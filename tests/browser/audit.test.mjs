@@ -210,6 +210,8 @@ test("two companions + trend + fitted jitter: the page's audit of companion 2 is
   await page.fill("#audit-settings [name='posterior_walkers']", "32");
   await page.fill("#audit-settings [name='posterior_steps']", "100");
   await page.fill("#audit-settings [name='posterior_burn']", "50");
+  // At most 400 circular simulations (default 10000), carried by the replay file.
+  await page.fill("#audit-settings [name='max_circular']", "400");
   await runToEnd();
   const settings = await saveDownload("#download-settings", "two-settings.json");
   const replay = JSON.parse(readFileSync(settings.file, "utf8"));
@@ -217,6 +219,7 @@ test("two companions + trend + fitted jitter: the page's audit of companion 2 is
   assert.equal(replay.model.trend, true);
   assert.equal(replay.model.jitter, "fit");
   assert.equal(replay.model.audit_companion, 2);
+  assert.equal(replay.injection.max_circular_trials, 400);
   const out = path.join(TMP, "cli-two");
   const native = JSON.parse(execFileSync(CLI, [
     "audit", file, "--settings", settings.file, "--json", "--quiet", "--out", out,

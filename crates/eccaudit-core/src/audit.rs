@@ -25,7 +25,7 @@ use crate::inject::adaptive::{
     DECISION_CAP, DECISION_TARGET_ERROR,
 };
 use crate::inject::statement::{
-    cells_in_use, decision_statistic, estimates_by_cell, output_belt, recommend, statement_cells,
+    cells_in_use, choose, decision_statistic, estimates_by_cell, output_belt, statement_cells,
     DECISION_ALPHA,
 };
 use crate::inject::{
@@ -134,6 +134,19 @@ pub struct InjectionSettings {
     pub lucy_sweeney: bool,
     /// Posterior estimators run on every simulation.
     pub posterior: PosteriorInjectionSettings,
+    /// The estimator the statement quotes, by output name (`lsq`, `posterior_median_…`, …);
+    /// None = the stated rule ([`crate::inject::RECOMMENDATION_RULE`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub estimator: Option<String>,
+    /// Most circular simulations the decision may use ([`DECISION_CAP`] by default, and at
+    /// most that): fewer makes the audit quicker and the decision's p less precise (its
+    /// Monte-Carlo error is stated either way).
+    #[serde(skip_serializing_if = "is_decision_cap")]
+    pub max_circular_trials: u64,
+}
+
+fn is_decision_cap(n: &u64) -> bool {
+    *n == DECISION_CAP
 }
 
 /// Posterior estimators of injection–recovery: one per eccentricity prior, each giving the
@@ -253,6 +266,8 @@ impl Default for InjectionSettings {
             n_omega_starts: lsq.n_omega_starts,
             lucy_sweeney: lsq.lucy_sweeney,
             posterior: PosteriorInjectionSettings::default(),
+            estimator: None,
+            max_circular_trials: DECISION_CAP,
         }
     }
 }
@@ -466,6 +481,20 @@ pub struct AuditPlan {
     posteriors: Vec<PosteriorEstimator>,
     observed: Vec<Option<EccentricityEstimate>>,
     fitted: FittedOrbit,
+    /// The estimator the user chose for the statement (None: the stated rule).
+    estimator: Option<String>,
+    /// Most circular simulations of the decision.
+    max_circular: u64,
+}
+
+/// The estimators of a plan, in output order.
+fn estimators_of<'a>(
+    least_squares: &'a LeastSquaresEstimator,
+    posteriors: &'a [PosteriorEstimator],
+) -> Vec<&'a dyn Estimator> {
+    std::iter::once(least_squares as &dyn Estimator)
+        .chain(posteriors.iter().map(|p| p as &dyn Estimator))
+        .collect()
 }
 
 /// The fit of the real data under the settings' model.
@@ -579,10 +608,7 @@ impl AuditPlan {
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
         let mut observed: Vec<Option<EccentricityEstimate>> = Vec::new();
-        let estimators: Vec<&dyn Estimator> = std::iter::once(&least_squares as &dyn Estimator)
-            .chain(posteriors.iter().map(|p| p as &dyn Estimator))
-            .collect();
-        for estimator in estimators {
+        for estimator in estimators_of(&least_squares, &posteriors) {
             match estimator.estimate(&data, &design, &mut rng) {
                 Ok(estimates) => observed.extend(estimates.into_iter().map(Some)),
                 Err(_) => observed.extend(std::iter::repeat_n(None, estimator.outputs().len())),
@@ -596,6 +622,27 @@ impl AuditPlan {
             lucy_sweeney_p,
         };
         let context = AuditContext::new(&model_fit, audited, inj.period_search);
+        if inj.max_circular_trials == 0 || inj.max_circular_trials > DECISION_CAP {
+            return Err(AuditError::Settings(format!(
+                "injection.max_circular_trials: {} is not between 1 and {DECISION_CAP}",
+                inj.max_circular_trials
+            )));
+        }
+        if let Some(name) = &inj.estimator {
+            let outputs = all_outputs(&estimators_of(&least_squares, &posteriors));
+            if name == "lucy_sweeney" || !outputs.iter().any(|o| &o.name == name) {
+                let names: Vec<&str> = outputs
+                    .iter()
+                    .map(|o| o.name.as_str())
+                    .filter(|n| *n != "lucy_sweeney")
+                    .collect();
+                return Err(AuditError::Settings(format!(
+                    "estimator `{}`: not one of this audit's estimators ({})",
+                    crate::one_line(name),
+                    names.join(", ")
+                )));
+            }
+        }
         Ok(AuditPlan {
             model_fit,
             context,
@@ -604,6 +651,8 @@ impl AuditPlan {
             posteriors,
             observed,
             fitted,
+            estimator: inj.estimator.clone(),
+            max_circular: inj.max_circular_trials,
         })
     }
 
@@ -683,7 +732,8 @@ impl AuditPlan {
     ///
     /// The rule, in order: (1) every base trial; (2) the circular decision: least-squares
     /// trials of the e = 0 cell while the Wilson 95% interval of the Monte-Carlo p contains
-    /// 0.05 or its standard error exceeds [`DECISION_TARGET_ERROR`], up to [`DECISION_CAP`];
+    /// 0.05 or its standard error exceeds [`DECISION_TARGET_ERROR`], until the settings'
+    /// `max_circular_trials` (at most [`DECISION_CAP`]; batches double, so the last may pass it);
     /// (3) the recommended estimator (chosen from the base trials): in the cells its interval
     /// rests on ([`cells_in_use`]), at least [`BELT_MIN_LEAST_SQUARES`] (least squares) or
     /// [`BELT_MIN_ALL`] (a posterior output) simulations, and in the cell nearest its value
@@ -719,7 +769,7 @@ impl AuditPlan {
                 if let Some(p) = stat.p_value(obs, &circular) {
                     let unresolved =
                         !p.resolves(DECISION_ALPHA) || p.standard_error > DECISION_TARGET_ERROR;
-                    if unresolved && (p.n as u64) < DECISION_CAP {
+                    if unresolved && (p.n as u64) < self.max_circular {
                         if let Some(batch) = state.next(design, c0.index, ExtraKind::LeastSquares) {
                             return Some(batch);
                         }
@@ -730,7 +780,13 @@ impl AuditPlan {
         // (3) The recommended estimator's interval and bias.
         let base_records: Vec<&TrialRecord> =
             counted.iter().copied().filter(|r| r.trial < base).collect();
-        let chosen = recommend(&outputs, &self.observed, &cells, &base_records)?;
+        let chosen = choose(
+            &outputs,
+            &self.observed,
+            &cells,
+            &base_records,
+            self.estimator.as_deref(),
+        )?;
         let x0 = self.observed[chosen].as_ref()?.point;
         let per_cell = estimates_by_cell(&cells, &counted, chosen);
         let belt = output_belt(&cells, &per_cell, x0)?;
@@ -774,6 +830,8 @@ impl AuditPlan {
             &self.observed,
             self.fitted,
             &self.context,
+            self.estimator.as_deref(),
+            self.max_circular,
         )?;
         let base = self.n_trials();
         Ok(AuditReport {

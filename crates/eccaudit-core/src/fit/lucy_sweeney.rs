@@ -180,6 +180,7 @@ mod tests {
     /// 8.3% (measured while writing this test): the asymptotic law fails at low signal, which
     /// is why the audit measures the test's false-alarm rate at the data's own sampling.
     #[test]
+    #[allow(clippy::disallowed_macros)] // the test prints the rates it measured
     fn wald_form_fires_five_percent_on_circular_orbits() {
         use crate::inject::{
             run_trials, summarise, Estimator, InjectionDesign, LeastSquaresEstimator, Sampling,

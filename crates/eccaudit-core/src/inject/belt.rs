@@ -406,6 +406,7 @@ mod tests {
     /// three pooled standard errors plus 0.01 for the belt's own Monte-Carlo error (1000
     /// simulations per grid e set c_j to about ±0.007 in coverage).
     #[test]
+    #[allow(clippy::disallowed_macros)] // the test prints the coverage it measured
     fn belt_intervals_cover_at_their_level_off_the_grid() {
         let sigma = 0.06;
         let (grid, sims) = grid_belt(sigma, 1000, 37);

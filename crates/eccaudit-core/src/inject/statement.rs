@@ -264,6 +264,8 @@ pub struct EccentricityStatement {
     pub recommended: Option<String>,
     /// How it was chosen.
     pub recommendation_rule: String,
+    /// Most circular simulations the decision was allowed (the settings' cap).
+    pub max_circular_trials: u64,
     /// The calibrated circular-vs-eccentric decision.
     pub decision: Option<CircularDecision>,
     /// The Lucy–Sweeney test and its measured false-alarm rate.
@@ -424,6 +426,26 @@ pub fn recommend(
     best.map(|(i, _)| i)
 }
 
+/// The output the statement quotes: the user's `chosen` one (by name) when given and quotable
+/// on the real data, else none (the statement says why); without a choice, [`recommend`].
+pub fn choose(
+    outputs: &[OutputInfo],
+    observed: &[Option<EccentricityEstimate>],
+    cells: &[GridCell],
+    base_records: &[&TrialRecord],
+    chosen: Option<&str>,
+) -> Option<usize> {
+    match chosen {
+        Some(name) => {
+            let i = outputs.iter().position(|o| o.name == name)?;
+            quotable(&outputs[i], observed.get(i).and_then(Option::as_ref))
+                .ok()
+                .map(|_| i)
+        }
+        None => recommend(outputs, observed, cells, base_records),
+    }
+}
+
 /// The cells of the statement that the recommended output's quoted numbers rest on: those
 /// inside its calibrated interval, one on each side of it, and the one nearest its value
 /// (indices into `cells`), with the index of the nearest.
@@ -461,6 +483,8 @@ pub fn eccentricity_statement(
     observed: &[Option<EccentricityEstimate>],
     fitted: FittedOrbit,
     context: &AuditContext,
+    chosen: Option<&str>,
+    max_circular_trials: u64,
 ) -> Result<EccentricityStatement, InjectError> {
     if observed.len() != summary.outputs.len() {
         return Err(InjectError::Statement(format!(
@@ -495,7 +519,7 @@ pub fn eccentricity_statement(
         t.dedup();
         t.len()
     };
-    let recommended = recommend(&summary.outputs, observed, &cells, &base);
+    let recommended = choose(&summary.outputs, observed, &cells, &base, chosen);
     let circular_cell = cells.iter().find(|c| c.eccentricity == 0.0);
     let circular_records: Vec<&TrialRecord> = match circular_cell {
         Some(c) => all.iter().copied().filter(|r| r.cell == c.index).collect(),
@@ -606,7 +630,11 @@ pub fn eccentricity_statement(
         companion: context.companion,
         n_companions: context.n_companions,
         recommended: recommended.map(|i| summary.outputs[i].name.clone()),
-        recommendation_rule: RECOMMENDATION_RULE.into(),
+        max_circular_trials,
+        recommendation_rule: match chosen {
+            Some(name) => format!("chosen by the user ({name})"),
+            None => RECOMMENDATION_RULE.into(),
+        },
         decision,
         lucy_sweeney,
         rows,
@@ -730,6 +758,13 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
     }
 }
 
+/// The estimator the user chose, read back from the statement's rule.
+fn chosen_name(s: &EccentricityStatement) -> Option<&str> {
+    s.recommendation_rule
+        .strip_prefix("chosen by the user (")
+        .and_then(|r| r.strip_suffix(')'))
+}
+
 fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
     // The model side's opening lines (excess scatter, marginal detections) come first.
     let mut out: Vec<String> = context
@@ -778,9 +813,14 @@ fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
                 r.n_at_true_e
             ));
         }
-        None => out.push(
-            "No estimator gave a value that can be quoted for these data (see the table).".into(),
-        ),
+        None => out.push(match chosen_name(s) {
+            Some(name) => format!(
+                "The chosen estimator ({name}) gave no value that can be quoted for these data \
+                 (see the table)."
+            ),
+            None => "No estimator gave a value that can be quoted for these data (see the table)."
+                .into(),
+        }),
     }
     if let Some(d) = &s.decision {
         out.push(format!(
@@ -864,7 +904,7 @@ fn methods(
              p contained 0.05 or its standard error exceeded {}, up to {}. ",
             d.statistic,
             grid_value(crate::inject::adaptive::DECISION_TARGET_ERROR),
-            crate::inject::adaptive::DECISION_CAP
+            s.max_circular_trials
         ));
     }
     if let Some(ls) = &s.lucy_sweeney {
@@ -896,7 +936,7 @@ fn methods(
             failures.join("; ")
         ));
     }
-    text.push_str(&format!("Recommended: {}.", RECOMMENDATION_RULE));
+    text.push_str(&format!("Recommended: {}.", s.recommendation_rule));
     for b in &s.bayes {
         text.push(' ');
         text.push_str(&b.text);
