@@ -278,7 +278,9 @@ fn two_companions_are_audited_one_by_one() {
     ]);
     assert!(stdout.contains("Companion 1 of 2"), "{stdout}");
     assert!(stdout.contains("Companion 2 of 2"), "{stdout}");
-    for c in [1, 2] {
+    let (json, _) = run_ok(&["fit", path, "--companions", "2", "--trend", "--json"]);
+    let fit_report: serde_json::Value = serde_json::from_str(&json).unwrap();
+    for c in [1usize, 2] {
         let context = json_file(&out.join(format!("c{c}")).join("context.json"));
         assert_eq!(context["companion"], c);
         assert_eq!(context["n_companions"], 2);
@@ -292,10 +294,14 @@ fn two_companions_are_audited_one_by_one() {
         // small (expected ~0.04 for K/sigma ~ 6 at 60 epochs; 0.12 leaves room for 20 trials,
         // whose Monte-Carlo error is under 0.01).
         let statement = json_file(&out.join(format!("c{c}")).join("statement.json"));
-        let lsq = &statement["calibrations"][0];
+        let lsq = &statement["rows"][0];
         assert_eq!(lsq["name"], "lsq");
-        let e = lsq["observed"]["point"].as_f64().unwrap();
-        let sigma = lsq["observed"]["extra"][0].as_f64().unwrap();
+        let e = lsq["value"].as_f64().unwrap();
+        // The formal σ_e of the same fit (`fit --json`, the same model).
+        let fitted = &fit_report["eccentric"]["companions"][c - 1]["eccentricity"];
+        // (The audit's estimator refits the data from the fit's optimum: equal to ~1e-8.)
+        assert!((fitted["value"].as_f64().unwrap() - e).abs() < 1e-6);
+        let sigma = fitted["error"].as_f64().unwrap();
         let truth = if c == 1 { 0.1 } else { 0.3 };
         assert!(
             (e - truth).abs() < 3.0 * sigma,

@@ -33,13 +33,20 @@ fn eccaudit() -> Command {
 }
 
 /// The small audit every test uses (flags shared by `survey` and `audit`).
-const AUDIT_FLAGS: [&str; 12] = [
+const AUDIT_FLAGS: [&str; 16] = [
     "--e",
     "0,0.3",
     "--trials",
     "3",
     "--seed",
     "5",
+    // These tests check the plumbing, not the precision: the circular decision adds at most
+    // 200 simulations (default 10000), and the statement quotes least squares, whose extra
+    // simulations are cheap (a quoted posterior estimator adds posterior runs).
+    "--max-circular",
+    "200",
+    "--estimator",
+    "lsq",
     "--posterior-walkers",
     "16",
     "--posterior-steps",
@@ -157,9 +164,25 @@ fn a_survey_equals_separate_audits() {
         let rows: serde_json::Value =
             serde_json::from_str(&read(&folder.join("catalogue.json"))).unwrap();
         assert_eq!(rows[0]["period"], statement["fitted"]["period"]);
+        // The recommended estimator's value, calibrated interval and decision.
+        let recommended = statement["recommended"].as_str().unwrap();
+        let row = statement["rows"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|r| r["name"] == recommended)
+            .unwrap();
+        assert_eq!(rows[0]["estimator"], recommended);
+        assert_eq!(rows[0]["e"], row["value"]);
+        assert_eq!(rows[0]["e_low95"], row["interval"]["lower"]);
+        assert_eq!(rows[0]["e_high95"], row["interval"]["upper"]);
         assert_eq!(
-            rows[0]["e"],
-            statement["calibrations"][0]["observed"]["point"]
+            rows[0]["circular_mc_p"],
+            statement["decision"]["p"]["value"]
+        );
+        assert_eq!(
+            rows[0]["circular_excluded"],
+            statement["decision"]["circular_excluded"]
         );
         assert_eq!(rows[0]["status"], "ok");
     }
@@ -175,8 +198,12 @@ fn an_interrupted_survey_resumes_to_the_same_catalogue() {
     survey(&manifest, &whole, &[]).success();
 
     let parts = dir.path().join("parts");
-    // 6 trials per table: a budget of 8 finishes table 1 and leaves table 2 with 2 trials.
-    survey(&manifest, &parts, &["--stop-after", "8"])
+    // Table 1 ran 6 base trials and the extra ones its statement asked for (the adaptive rule):
+    // a budget of those + 2 finishes table 1 and leaves table 2 with 2 trials.
+    let table1 = read(&whole.join("001-star-001/trials.csv")).lines().count() - 2;
+    assert!(table1 >= 6, "{table1} trials in table 1");
+    let budget = (table1 + 2).to_string();
+    survey(&manifest, &parts, &["--stop-after", &budget])
         .success()
         .stderr(predicate::str::contains("stopped early"))
         .stderr(predicate::str::contains("4 of 5 tables not done yet"));

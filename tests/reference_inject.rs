@@ -191,3 +191,312 @@ fn bias_is_positive_and_shrinks_with_signal_and_epochs() {
     let (low, high) = (bias[0][0], bias[2][2]);
     assert!(low.0 - high.0 > 5.0 * diff_se(low, high));
 }
+
+/// The belt interval of the least-squares ê (Neyman 1937 with the Feldman & Cousins 1998, PRD
+/// 57, 3873, ordering; see `eccaudit_core::inject::belt`) covers the true e at its nominal 95%
+/// on simulations independent of the belt: the belt from 300 trials at each e = 0, 0.05, …,
+/// 0.6 (30 random epochs over 200 d, σ = 3 m/s, K = 15 m/s, K/σ = 5), then 200 fresh trials
+/// (another seed) at each of three true e between grid points, 0.025, 0.125 and 0.275.
+/// Binomial standard error per e √(0.95·0.05/200) = 0.0154, pooled (600) 0.0089 (common
+/// practice); the belt's own Monte-Carlo error (300 simulations per grid e) moves coverage by
+/// about ±0.015 (the binomial error of its 5% cut, √(0.05·0.95/300) = 0.0126, rounded up).
+/// Tolerances: three standard errors plus 0.015, per e and pooled. Also: at true e = 0 most
+/// intervals are upper limits, and no interval is empty.
+#[test]
+fn least_squares_belt_covers_at_its_level_off_the_grid() {
+    use eccaudit_core::inject::{Belt, BeltCellInput, Schedule, Spacing};
+    let sampling = Sampling::from_schedule(
+        &Schedule {
+            n_epochs: 30,
+            baseline: 200.0,
+            start_time: 0.0,
+            spacing: Spacing::Random,
+            uncertainty: 3.0,
+        },
+        1937,
+    )
+    .unwrap();
+    let grid: Vec<f64> = (0..=12).map(|i| f64::from(i) / 20.0).collect();
+    let design = |eccentricities: Vec<f64>, trials_per_cell: usize, seed: u64| InjectionDesign {
+        sampling: sampling.clone(),
+        period: 11.3,
+        eccentricities,
+        semi_amplitudes: vec![15.0],
+        omegas: vec![],
+        jitter: 0.0,
+        trials_per_cell,
+        seed,
+        model: Default::default(),
+    };
+    let lsq = LeastSquaresEstimator::default();
+    let estimators: [&dyn Estimator; 1] = [&lsq];
+    let points_by_cell = |d: &InjectionDesign| -> Vec<Vec<f64>> {
+        let records = run_trials(d, &estimators, 0..d.n_trials(), &mut |_| {}).unwrap();
+        (0..d.n_cells())
+            .map(|c| {
+                records
+                    .iter()
+                    .filter(|r| r.cell == c)
+                    .filter_map(|r| r.outcomes[0].estimate().map(|e| e.point))
+                    .collect()
+            })
+            .collect()
+    };
+    let belt_design = design(grid.clone(), 300, 1998);
+    let belt_points = points_by_cell(&belt_design);
+    let inputs: Vec<BeltCellInput> = grid
+        .iter()
+        .zip(&belt_points)
+        .map(|(&e, v)| BeltCellInput { e, estimates: v })
+        .collect();
+    let belt = Belt::new(&inputs, 0.95, 0.0).unwrap();
+
+    let truths = [0.025, 0.125, 0.275];
+    let fresh = points_by_cell(&design(truths.to_vec(), 200, 3873));
+    let (mut hits_all, mut n_all) = (0, 0);
+    for (&truth, points) in truths.iter().zip(&fresh) {
+        let hits = points
+            .iter()
+            .filter(|&&x| {
+                let i = belt.interval(x);
+                assert!(i.lower <= i.upper, "empty interval at x = {x}: {i:?}");
+                i.lower <= truth && truth <= i.upper
+            })
+            .count();
+        let share = hits as f64 / points.len() as f64;
+        eprintln!(
+            "belt coverage at true e = {truth}: {share:.4} ({} trials)",
+            points.len()
+        );
+        assert!(points.len() >= 195, "{} fits", points.len());
+        assert!(
+            (share - 0.95).abs() < 3.0 * 0.0154 + 0.015,
+            "e = {truth}: {share}"
+        );
+        hits_all += hits;
+        n_all += points.len();
+    }
+    let pooled = hits_all as f64 / n_all as f64;
+    assert!(
+        (pooled - 0.95).abs() < 3.0 * 0.0089 + 0.015,
+        "pooled {pooled}"
+    );
+    // Circular truth: the interval is an upper limit for most simulated data sets.
+    let limits = belt_points[0]
+        .iter()
+        .filter(|&&x| belt.interval(x).upper_limit)
+        .count();
+    eprintln!(
+        "upper limits at e = 0: {limits} of {}",
+        belt_points[0].len()
+    );
+    assert!(limits as f64 > 0.8 * belt_points[0].len() as f64);
+}
+
+/// Each companion's belt interval covers its true e on a realistic model: 100 simulated tables
+/// of two companions (P = 11.3 d, K = 14 m/s, e = 0.15; P = 47.2 d, K = 20 m/s, e = 0.3), a
+/// linear trend and two instruments with their own offsets and uncertainties (2 and 3 m/s), 60
+/// random epochs over 400 d, each audited in full (model fitted, background and offsets held
+/// at the fit, every companion's simulations refitted with the whole model), least squares
+/// only, 30 base trials at e = 0, 0.1, …, 0.6. At nominal 95% each companion's interval must
+/// cover its truth in at least 90% of the tables: with 100 tables the binomial standard error
+/// at 95% is 0.022 (common practice), so 90% is 2.3 standard errors below nominal, and the
+/// belt's own Monte-Carlo error (30 simulations per grid e) widens the spread further; the
+/// issue asks for ≥ 90%.
+#[test]
+#[ignore = "FAILS today: companion 1 (P = 11.3 d) covered in 65 of 100 tables (companion 2 not \
+            reached); open issue 11 finding, see the h-calib report. Run with --ignored."]
+fn every_companion_is_covered_in_a_two_companion_trend_two_instrument_model() {
+    use eccaudit_core::audit::{
+        AuditPlan, AuditSettings, InjectionSettings, PosteriorInjectionSettings,
+    };
+    use eccaudit_core::orbit::OrbitalElements;
+    use eccaudit_core::random::{standard_normal, stream_rng};
+    use eccaudit_core::spec::{JitterMode, ModelSpec};
+    use eccaudit_core::table::{parse_table, ReadOptions};
+    use rand::RngExt;
+    use rayon::prelude::*;
+
+    let truths = [(11.3, 14.0, 0.15, 0.7), (47.2, 20.0, 0.3, 3.5)];
+    let orbits: Vec<OrbitalElements> = truths
+        .iter()
+        .map(|&(p, k, e, w)| OrbitalElements::new(p, k, e, w, 2_460_003.0).unwrap())
+        .collect();
+    let mut rng = stream_rng(3873, 0);
+    let mut times: Vec<f64> = (0..60)
+        .map(|_| 2_460_000.0 + 400.0 * rng.random::<f64>())
+        .collect();
+    times.sort_by(f64::total_cmp);
+    let settings = AuditSettings {
+        model: ModelSpec {
+            companions: 2,
+            trend: true,
+            jitter: JitterMode::Off,
+            ..ModelSpec::DEFAULT
+        },
+        injection: InjectionSettings {
+            eccentricities: (0..=6).map(|i| f64::from(i) / 10.0).collect(),
+            trials_per_cell: 30,
+            posterior: PosteriorInjectionSettings {
+                priors: Vec::new(),
+                ..PosteriorInjectionSettings::default()
+            },
+            ..InjectionSettings::default()
+        },
+        seed: 1937,
+        ..AuditSettings::default()
+    };
+    let n_tables = 100;
+    // (companion index, covered) for every table and companion.
+    let outcomes: Vec<Vec<(usize, bool)>> = (0..n_tables)
+        .into_par_iter()
+        .map(|i| {
+            let mut noise = stream_rng(1998, i);
+            let mut text = String::from("bjd,rv [m/s],sigma [m/s],instrument\n");
+            for (j, &t) in times.iter().enumerate() {
+                let (name, sigma, offset) = if j % 2 == 0 {
+                    ("A", 2.0, -5.0)
+                } else {
+                    ("B", 3.0, 20.0)
+                };
+                let v: f64 = orbits.iter().map(|o| o.radial_velocity(t)).sum::<f64>()
+                    + offset
+                    + 0.02 * (t - 2_460_200.0)
+                    + sigma * standard_normal(&mut noise);
+                text.push_str(&format!("{t:.5},{v:.4},{sigma},{name}\n"));
+            }
+            let table = parse_table(&text, &ReadOptions::new("two.csv")).unwrap();
+            let plans = AuditPlan::all(&table, &settings).unwrap();
+            plans
+                .iter()
+                .map(|plan| {
+                    let records = plan.run_trials(0..plan.n_trials(), &mut |_| {}).unwrap();
+                    let report = plan.finish(&records).unwrap();
+                    let period = plan.design().period;
+                    let which = if (period / 11.3 - 1.0).abs() < 0.05 {
+                        0
+                    } else {
+                        1
+                    };
+                    let row = report
+                        .statement
+                        .rows
+                        .iter()
+                        .find(|r| r.name == "lsq")
+                        .unwrap();
+                    let interval = row.interval.unwrap();
+                    let truth = truths[which].2;
+                    (which, interval.lower <= truth && truth <= interval.upper)
+                })
+                .collect()
+        })
+        .collect();
+    for companion in 0..2 {
+        let hits: Vec<bool> = outcomes
+            .iter()
+            .flatten()
+            .filter(|(c, _)| *c == companion)
+            .map(|(_, h)| *h)
+            .collect();
+        let share = hits.iter().filter(|&&h| h).count() as f64 / hits.len() as f64;
+        eprintln!(
+            "companion {}: belt coverage {share:.3} over {} tables",
+            companion + 1,
+            hits.len()
+        );
+        assert!(
+            hits.len() >= 95,
+            "companion {} audited {} times",
+            companion + 1,
+            hits.len()
+        );
+        assert!(
+            share >= 0.90,
+            "companion {}: coverage {share}",
+            companion + 1
+        );
+    }
+}
+
+/// The audit's calibrated 5% decision holds its level when the stated uncertainties are half
+/// the real noise: 300 freshly simulated circular tables (P = 11.3 d, K = 12 m/s, e = 0; 40
+/// random epochs over 200 d; stated σ = 2 m/s, real noise 4 m/s, so the jitter-free reduced
+/// χ² is about 4), each audited with the default model (jitter auto: the χ² test fails, a
+/// jitter is fitted by Baluev's 2009 modified likelihood and simulated). The decision is the
+/// one the real audit quotes, computed exactly as it computes it (`AuditPlan::next_batch`
+/// loop, then `finish`: the Monte-Carlo p of the Wald statistic against the circular
+/// simulations of the fitted model, p = (k+1)/(n+1)); the configuration is reduced only where
+/// the decision does not depend on it: least squares only (no posterior estimators), one
+/// injected e (0), 20 base trials and at most 200 circular simulations (the first adaptive
+/// batch of 250 then ends the loop). A Monte-Carlo p from any number of simulations is a valid
+/// p-value, so the smaller cap keeps the level and only makes p coarser.
+/// Tolerance: the issue asks for 5% ± 3%; the binomial standard error over 300 tables is
+/// √(0.05·0.95/300) = 0.0126 (common practice), so ±0.03 is 2.4 standard errors.
+#[test]
+fn calibrated_decision_holds_five_percent_with_noise_twice_the_stated_uncertainties() {
+    use eccaudit_core::audit::{
+        AuditPlan, AuditSettings, InjectionSettings, PosteriorInjectionSettings,
+    };
+    use eccaudit_core::orbit::OrbitalElements;
+    use eccaudit_core::random::{standard_normal, stream_rng};
+    use eccaudit_core::table::{parse_table, ReadOptions};
+    use rand::RngExt;
+    use rayon::prelude::*;
+
+    let orbit = OrbitalElements::new(11.3, 12.0, 0.0, 0.0, 2_460_003.0).unwrap();
+    let settings = |seed: u64| AuditSettings {
+        injection: InjectionSettings {
+            eccentricities: vec![0.0],
+            trials_per_cell: 20,
+            posterior: PosteriorInjectionSettings {
+                priors: Vec::new(),
+                ..PosteriorInjectionSettings::default()
+            },
+            max_circular_trials: 200,
+            ..InjectionSettings::default()
+        },
+        seed,
+        ..AuditSettings::default()
+    };
+    let n_tables = 300u64;
+    // (eccentric called, jitter fitted, circular simulations used) per table.
+    let outcomes: Vec<(bool, bool, usize)> = (0..n_tables)
+        .into_par_iter()
+        .map(|i| {
+            let mut rng = stream_rng(20_261_203, i);
+            let mut times: Vec<f64> = (0..40)
+                .map(|_| 2_460_000.0 + 200.0 * rng.random::<f64>())
+                .collect();
+            times.sort_by(f64::total_cmp);
+            let mut text = String::from("bjd,rv [m/s],sigma [m/s]\n");
+            for t in &times {
+                let v = orbit.radial_velocity(*t) + 4.0 * standard_normal(&mut rng);
+                text.push_str(&format!("{t:.5},{v:.4},2\n"));
+            }
+            let table = parse_table(&text, &ReadOptions::new("circular.csv")).unwrap();
+            let plan = AuditPlan::new(&table, &settings(1000 + i)).unwrap();
+            let mut records = Vec::new();
+            while let Some(batch) = plan.next_batch(&records) {
+                records.extend(plan.run_trials(batch, &mut |_| {}).unwrap());
+            }
+            let report = plan.finish(&records).unwrap();
+            let decision = report.statement.decision.expect("a decision");
+            (
+                decision.circular_excluded,
+                report.context.jitter_fitted,
+                decision.p.n,
+            )
+        })
+        .collect();
+    let called = outcomes.iter().filter(|o| o.0).count();
+    let jittered = outcomes.iter().filter(|o| o.1).count();
+    let share = called as f64 / n_tables as f64;
+    let mean_n = outcomes.iter().map(|o| o.2).sum::<usize>() as f64 / n_tables as f64;
+    eprintln!(
+        "noise 2x sigma: eccentric called in {called} of {n_tables} ({share:.3}); jitter fitted \
+         in {jittered}; {mean_n:.0} circular simulations per decision on average"
+    );
+    // A reduced χ² near 4 over 40 epochs fails the χ² test (p < 0.01) essentially always.
+    assert!(jittered as f64 >= 0.95 * n_tables as f64, "{jittered}");
+    assert!((share - 0.05).abs() <= 0.03, "share {share}");
+}

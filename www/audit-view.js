@@ -12,10 +12,15 @@ const $ = (id) => document.getElementById(id);
 const messageOf = (err) => (err instanceof Error ? err.message : String(err));
 const tick = () => new Promise((resolve) => setTimeout(resolve, 0));
 
-/** Trials per chunk: a few, so progress moves smoothly and idle workers find work. */
-function chunkSize(nTrials, nWorkers) {
-  return Math.max(1, Math.min(4, Math.ceil(nTrials / (nWorkers * 16))));
+/** Trials per chunk: a few, so progress moves smoothly and idle workers find work. Extra
+ * (adaptive) batches are mostly quick least-squares trials, sent in larger chunks. */
+function chunkSize(nTrials, nWorkers, extra) {
+  return Math.max(1, Math.min(extra ? 64 : 4, Math.ceil(nTrials / (nWorkers * (extra ? 8 : 16)))));
 }
+
+/** A grid value as typed (0.15, not 0.15000000000000002): twelve significant digits, as the
+ * core's format::grid_value (kept here until the page has a shared format module). */
+const gridValue = (v) => (Number.isFinite(v) ? String(Number(v.toPrecision(12))) : "–");
 
 function clockText(seconds) {
   if (!Number.isFinite(seconds)) return "–";
@@ -73,9 +78,11 @@ async function copyText(text) {
 export function wireAudit({ currentTable, el, currentModel }) {
   const form = $("audit-settings");
   const defaults = JSON.parse(defaultAuditSettings());
-  form.elements.eccentricities.value = defaults.injection.eccentricities.join(", ");
+  form.elements.eccentricities.value = defaults.injection.eccentricities.map(gridValue).join(", ");
   form.elements.trials.value = String(defaults.injection.trials_per_cell);
   form.elements.seed.value = String(defaults.seed);
+  form.elements.max_circular.value = String(defaults.injection.max_circular_trials ?? 10000);
+  form.elements.estimator.value = defaults.injection.estimator ?? "";
   form.elements.jitter.value = String(defaults.injection.jitter);
   form.elements.audit_companion.value = String(defaults.model.audit_companion ?? 1);
   form.elements.period_search.checked = defaults.injection.period_search;
@@ -116,6 +123,13 @@ export function wireAudit({ currentTable, el, currentModel }) {
     settings.injection.jitter = number("jitter", "added noise", nonNegative);
     settings.injection.period_search = data.get("period_search") === "on";
     settings.seed = number("seed", "seed", whole);
+    const maxCircular = number("max_circular", "circular trials", positiveWhole);
+    // The replay file carries the cap only when it is not the default (as the command line's).
+    if (maxCircular !== (defaults.injection.max_circular_trials ?? 10000)) settings.injection.max_circular_trials = maxCircular;
+    else delete settings.injection.max_circular_trials;
+    const estimator = String(data.get("estimator") ?? "").trim();
+    if (estimator !== "") settings.injection.estimator = estimator;
+    else delete settings.injection.estimator;
     const even = Object.assign((v) => Number.isSafeInteger(v) && v >= 2 && v % 2 === 0, { need: "must be an even whole number ≥ 2" });
     settings.injection.posterior.n_walkers = number("posterior_walkers", "posterior walkers", even);
     settings.injection.posterior.n_steps = number("posterior_steps", "posterior steps", positiveWhole);
@@ -180,24 +194,33 @@ export function wireAudit({ currentTable, el, currentModel }) {
     $("audit-progress-box").hidden = true;
   }
 
+  /** The per-e table of one estimator output (chosen in the menu; the recommended one first). */
   function renderSummary(report) {
-    const head = el("tr", {}, ...["estimator", "true e", "trials", "bias", "scatter", "RMSE",
-      "68% coverage", "95% coverage", "false-eccentric rate"].map((h) => el("th", {}, h)));
-    const rows = [];
-    for (const cell of report.injection.cells) {
-      cell.outputs.forEach((o) => {
-        rows.push(el("tr", {},
-          el("td", {}, o.name),
-          el("td", {}, fixed(cell.cell.eccentricity, 3)),
-          el("td", {}, o.n_failed > 0 ? `${o.n_estimates} (+${o.n_failed} failed)` : String(o.n_estimates)),
-          el("td", {}, o.n_estimates > 0 ? `${fixed(o.bias, 3)} ± ${fixed(o.bias_standard_error, 3)}` : "–"),
-          el("td", {}, fixed(o.scatter, 3)),
-          el("td", {}, fixed(o.rmse, 3)),
-          el("td", {}, rate(o.coverage68)),
-          el("td", {}, rate(o.coverage95)),
-          el("td", {}, cell.cell.eccentricity === 0 ? rate(o.false_eccentric_rate) : "–")));
-      });
-    }
+    const menu = $("audit-estimator");
+    const names = report.injection.outputs.map((o) => o.name);
+    const recommended = report.statement.recommended;
+    const ordered = recommended && names.includes(recommended)
+      ? [recommended, ...names.filter((n) => n !== recommended)] : names;
+    const keep = names.includes(menu.value) && menu.dataset.forRun === String(report.injection.fingerprint) ? menu.value : ordered[0];
+    menu.replaceChildren(...ordered.map((n) => el("option", { value: n }, n === recommended ? `${n} (recommended)` : n)));
+    menu.value = keep;
+    menu.dataset.forRun = String(report.injection.fingerprint);
+    const index = names.indexOf(menu.value);
+    const head = el("tr", {}, ...["true e", "trials", "bias", "scatter", "RMSE",
+      "68% coverage", "95% coverage", "false-eccentric rate", "failed"].map((h) => el("th", {}, h)));
+    const rows = report.injection.cells.map((cell) => {
+      const o = cell.outputs[index];
+      return el("tr", {},
+        el("td", {}, gridValue(cell.cell.eccentricity)),
+        el("td", {}, String(o.n_estimates)),
+        el("td", {}, o.n_estimates > 0 ? `${fixed(o.bias, 3)} ± ${fixed(o.bias_standard_error, 3)}` : "–"),
+        el("td", {}, fixed(o.scatter, 3)),
+        el("td", {}, fixed(o.rmse, 3)),
+        el("td", {}, rate(o.coverage68)),
+        el("td", {}, rate(o.coverage95)),
+        el("td", {}, cell.cell.eccentricity === 0 ? rate(o.false_eccentric_rate) : "–"),
+        el("td", {}, o.n_failed > 0 ? rate(o.failed_share) : "0"));
+    });
     $("audit-summary").replaceChildren(el("thead", {}, head), el("tbody", {}, ...rows));
   }
 
@@ -209,7 +232,7 @@ export function wireAudit({ currentTable, el, currentModel }) {
     run.drawDistributions($("distributions-canvas"));
     const s = report.statement;
     $("statement-source").textContent =
-      `${tableName}: ${report.trials_done} of ${report.trials_total} trials, ${s.trials_per_cell} per e, seed ${s.seed}.`;
+      `${tableName}: ${report.trials_done} trials (${s.trials_per_cell} per e + ${report.extra_trials} added where the statement needs them), seed ${s.seed}.`;
     $("statement-paragraph").textContent = s.paragraph;
     $("statement-text").textContent = run.statementText();
     $("audit-report-json").textContent = run.reportJson();
@@ -248,12 +271,41 @@ export function wireAudit({ currentTable, el, currentModel }) {
     $("audit-progress-box").hidden = true;
   }
 
-  function feed(j, worker) {
-    if (j.next >= j.total) return;
-    const start = j.next;
-    const end = Math.min(j.total, start + j.chunk);
-    j.next = end;
-    worker.postMessage({ type: "run", start, end });
+  /** Send chunks of the current batch to idle workers. */
+  function dispatch(j) {
+    while (j.idle.length > 0 && j.next < j.batchEnd) {
+      const worker = j.idle.pop();
+      const start = j.next;
+      const end = Math.min(j.batchEnd, start + j.chunk);
+      j.next = end;
+      worker.postMessage({ type: "run", start, end });
+    }
+  }
+
+  /** Ask the core for the next batch (the same rule as the command line); finish when none. */
+  function nextBatch(j) {
+    let batch;
+    try {
+      batch = j.run.nextBatch(j.fresh);
+    } catch (err) {
+      fail(messageOf(err));
+      return;
+    }
+    j.fresh = [];
+    if (batch === null) {
+      finishJob(j);
+      return;
+    }
+    const [start, end] = batch;
+    const extra = start >= j.base;
+    j.next = start;
+    j.batchEnd = end;
+    j.outstanding = end - start;
+    j.total = j.done + (end - start);
+    j.chunk = chunkSize(end - start, j.nWorkers, extra);
+    if (extra && j.startedAt !== null) j.etaFrom = null;
+    progress(j.done, j.total, j.etaFrom);
+    dispatch(j);
   }
 
   async function start() {
@@ -281,15 +333,16 @@ export function wireAudit({ currentTable, el, currentModel }) {
       fail(messageOf(err));
       return;
     }
-    const total = run.nTrials;
-    const nWorkers = Math.max(1, Math.min(navigator.hardwareConcurrency || 1, total));
+    const base = run.nTrials;
+    const nWorkers = Math.max(1, Math.min(navigator.hardwareConcurrency || 1, base));
     const j = {
-      run, settingsJson, tableName: table.name, total, nWorkers, chunk: chunkSize(total, nWorkers),
-      next: 0, done: 0, rows: [], workers: [], createdAt: performance.now(), startedAt: null,
+      run, settingsJson, tableName: table.name, base, total: base, nWorkers, chunk: 1,
+      next: 0, batchEnd: 0, outstanding: 0, done: 0, rows: [], fresh: [], idle: [], workers: [],
+      createdAt: performance.now(), startedAt: null, etaFrom: null, batchAsked: false,
     };
     job = j;
-    $("audit-status").textContent = `Running ${total} trials on ${nWorkers} worker${nWorkers === 1 ? "" : "s"}…`;
-    progress(0, total, null);
+    $("audit-status").textContent = `Running ${base} trials, then those the statement needs, on ${nWorkers} worker${nWorkers === 1 ? "" : "s"}…`;
+    progress(0, base, null);
     for (let i = 0; i < nWorkers; i++) {
       const worker = new Worker(new URL("./audit-worker.js", import.meta.url), { type: "module", name: `audit-${i}` });
       j.workers.push(worker);
@@ -297,14 +350,28 @@ export function wireAudit({ currentTable, el, currentModel }) {
         if (job !== j) return;  // a cancelled run's late message
         const msg = event.data;
         if (msg.type === "ready") {
-          if (j.startedAt === null) j.startedAt = performance.now();
-          feed(j, worker);
+          if (j.startedAt === null) {
+            j.startedAt = performance.now();
+            j.etaFrom = j.startedAt;
+          }
+          j.idle.push(worker);
+          if (!j.batchAsked) {
+            j.batchAsked = true;
+            nextBatch(j);
+          } else {
+            dispatch(j);
+          }
         } else if (msg.type === "rows") {
-          for (const row of msg.rows) j.rows.push(row);
+          for (const row of msg.rows) {
+            j.rows.push(row);
+            j.fresh.push(row);
+          }
           j.done += msg.rows.length;
-          progress(j.done, j.total, j.startedAt);
-          if (j.done >= j.total) finishJob(j);
-          else feed(j, worker);
+          j.outstanding -= msg.rows.length;
+          j.idle.push(worker);
+          progress(j.done, j.total, j.etaFrom);
+          if (j.outstanding <= 0) nextBatch(j);
+          else dispatch(j);
         } else if (msg.type === "error") {
           fail(msg.message);
         }
@@ -323,6 +390,7 @@ export function wireAudit({ currentTable, el, currentModel }) {
     start();
   });
   $("audit-cancel").addEventListener("click", () => cancel("by you"));
+  $("audit-estimator").addEventListener("change", () => { if (shown) renderSummary(shown.report); });
 
   $("copy-statement").addEventListener("click", async () => {
     if (!shown) return;

@@ -91,31 +91,74 @@ export function wireSurvey({ settingsFor, el, population = null }) {
     j.workers = [];
   }
 
-  /** Runs every trial of one table on the worker pool; resolves with the rows. */
-  function runTrials(j, table, settingsJson, total) {
+  /**
+   * Runs the trials of one table on the worker pool, batch after batch as the core's adaptive
+   * rule asks (`run.nextBatch`, the command line's rule); resolves with every row.
+   */
+  function runTrials(j, run, table, settingsJson) {
     return new Promise((resolve, reject) => {
-      const chunk = Math.max(1, Math.min(4, Math.ceil(total / (j.workers.length * 16))));
-      let next = 0;
-      let done = 0;
       const trialRows = [];
-      const feed = (worker) => {
-        if (next >= total) return;
-        const start = next;
-        next = Math.min(total, start + chunk);
-        worker.postMessage({ type: "run", start, end: next });
+      let fresh = [];
+      let next = 0;
+      let batchEnd = 0;
+      let outstanding = 0;
+      let done = 0;
+      let total = run.nTrials;
+      let chunk = 1;
+      let started = false;
+      const idle = [];
+      const feed = () => {
+        while (idle.length > 0 && next < batchEnd) {
+          const worker = idle.pop();
+          const start = next;
+          next = Math.min(batchEnd, start + chunk);
+          worker.postMessage({ type: "run", start, end: next });
+        }
+      };
+      const ask = () => {
+        let batch;
+        try {
+          batch = run.nextBatch(fresh);
+        } catch (err) {
+          reject(err);
+          return;
+        }
+        fresh = [];
+        if (batch === null) {
+          resolve(trialRows);
+          return;
+        }
+        const [start, end] = batch;
+        next = start;
+        batchEnd = end;
+        outstanding = end - start;
+        total = done + outstanding;
+        chunk = Math.max(1, Math.min(start >= run.nTrials ? 64 : 4, Math.ceil(outstanding / (j.workers.length * 16))));
+        progress(j.tableIndex, j.nTables, done, total);
+        feed();
       };
       j.fail = reject;
       for (const worker of j.workers) {
         worker.onmessage = (event) => {
           if (job !== j) return;
           const msg = event.data;
-          if (msg.type === "ready") feed(worker);
-          else if (msg.type === "rows") {
-            for (const row of msg.rows) trialRows.push(row);
+          if (msg.type === "ready") {
+            idle.push(worker);
+            if (!started) {
+              started = true;
+              ask();
+            } else feed();
+          } else if (msg.type === "rows") {
+            for (const row of msg.rows) {
+              trialRows.push(row);
+              fresh.push(row);
+            }
             done += msg.rows.length;
+            outstanding -= msg.rows.length;
+            idle.push(worker);
             progress(j.tableIndex, j.nTables, done, total);
-            if (done >= total) resolve(trialRows);
-            else feed(worker);
+            if (outstanding <= 0) ask();
+            else feed();
           } else if (msg.type === "error") reject(new Error(msg.message));
         };
         worker.postMessage({ type: "init", text: table.text, name: table.name, settings: settingsJson });
@@ -158,9 +201,8 @@ export function wireSurvey({ settingsFor, el, population = null }) {
       try {
         const settingsJson = settingsFor({ text: table.text, name: table.name, velocityUnit: "", timeConvention: "" });
         run = new AuditRun(table.text, table.name, settingsJson);
-        const total = run.nTrials;
-        $("survey-status").textContent = `Auditing ${table.name} (${total} trials on ${nWorkers} worker${nWorkers === 1 ? "" : "s"})…`;
-        const trialRows = await runTrials(j, table, settingsJson, total);
+        $("survey-status").textContent = `Auditing ${table.name} (${run.nTrials} trials, then those its statement needs, on ${nWorkers} worker${nWorkers === 1 ? "" : "s"})…`;
+        const trialRows = await runTrials(j, run, table, settingsJson);
         if (job !== j) { run.free(); return; }
         run.finish(trialRows);
         collected.push(...JSON.parse(run.catalogueRows(table.name, folder)));

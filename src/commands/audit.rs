@@ -14,9 +14,15 @@ use eccaudit_core::audit::{
     data_fingerprint, AuditPlan, AuditReport, AuditSettings, DataIdentity, InjectionSettings,
     ReadSettings,
 };
+use eccaudit_core::inject::TrialRecord;
+use eccaudit_core::survey::Shard;
 use eccaudit_core::table::{parse_table, ReadOptions};
 
-use super::inject::{posterior_settings, run_design_with, shard_note, write_outputs, RunArgs};
+use super::inject::{
+    posterior_settings, run_design_with, shard_note, write_outputs, Driver, RunArgs,
+};
+use indicatif::ProgressBar;
+
 use super::input::TableArgs;
 use super::model_args::ModelArgs;
 
@@ -69,7 +75,9 @@ pub fn settings_from_flags(
             } else {
                 run.eccentricities.clone()
             },
-            trials_per_cell: run.trials,
+            trials_per_cell: run
+                .trials
+                .unwrap_or(InjectionSettings::default().trials_per_cell),
             jitter: run.added_noise,
             omegas_deg: run.omegas_deg.clone(),
             period_search: run.period_search,
@@ -77,6 +85,8 @@ pub fn settings_from_flags(
             n_omega_starts: run.omega_starts,
             lucy_sweeney: !run.no_lucy_sweeney,
             posterior: posterior_settings(run),
+            estimator: run.estimator.clone(),
+            max_circular_trials: run.max_circular,
         },
         seed: run.seed,
         ..AuditSettings::default()
@@ -92,9 +102,10 @@ pub fn write_audit_outputs(
 ) -> anyhow::Result<()> {
     let lsq_observed = report
         .statement
-        .calibrations
-        .first()
-        .map(|c| c.observed.point);
+        .rows
+        .iter()
+        .find(|r| r.name == "lsq")
+        .and_then(|r| r.value);
     write_outputs(&report.injection, out, lsq_observed)?;
     fs::write(out.join("statement.txt"), report.statement.text())
         .with_context(|| format!("cannot write into `{}`", out.display()))?;
@@ -111,6 +122,30 @@ pub fn write_audit_outputs(
     fs::write(out.join("settings.json"), settings.to_json())
         .with_context(|| format!("cannot write into `{}`", out.display()))?;
     Ok(())
+}
+
+/// Runs the trials of `plan` that `shard` holds, batch after batch as the plan's adaptive rule
+/// asks (`AuditPlan::next_batch`), into `run.out/trials.csv`; see `run_design_with`.
+pub fn run_plan(
+    plan: &AuditPlan,
+    run: &RunArgs,
+    shard: Shard,
+    bar: Option<&ProgressBar>,
+) -> anyhow::Result<(Vec<TrialRecord>, bool)> {
+    let estimators = plan.estimators();
+    let run_one = |t: u64| -> anyhow::Result<TrialRecord> {
+        plan.run_trials(t..t + 1, &mut |_| {})?
+            .pop()
+            .with_context(|| format!("trial {t} is not in the design"))
+    };
+    let next = |records: &[TrialRecord]| plan.next_batch(records);
+    let valid = |t: u64| plan.has_trial(t);
+    let driver = Driver {
+        run_one: &run_one,
+        next: &next,
+        valid: &valid,
+    };
+    run_design_with(plan.design(), &estimators, run, &driver, shard, bar)
 }
 
 /// Fit, simulate, summarise, state.
@@ -182,9 +217,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         if several {
             run.out = args.run.out.join(format!("c{}", plan.companion()));
         }
-        let estimators = plan.estimators();
         let shard = run.shard()?;
-        let (records, complete) = run_design_with(plan.design(), &estimators, &run, shard, None)?;
+        let (records, complete) = run_plan(plan, &run, shard, None)?;
         if shard.is_split() && !complete {
             shard_note(shard, &records, plan.n_trials(), &run.out);
             continue;
@@ -208,8 +242,13 @@ pub fn run(args: Args) -> anyhow::Result<()> {
         }
         if !complete {
             eprintln!(
-                "eccaudit: note: companion {}: {} of {} trials done; the statement uses those only; run again with --resume to finish",
-                report.context.companion, report.trials_done, report.trials_total
+                "eccaudit: note: companion {}: {} trials done ({} base of {}, {} adaptive) and \
+                 more are needed; the statement uses those only; run again with --resume to finish",
+                report.context.companion,
+                report.trials_done,
+                report.trials_done - report.extra_trials,
+                report.trials_total,
+                report.extra_trials
             );
         }
         reports.push(report);

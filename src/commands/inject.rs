@@ -1,8 +1,10 @@
 //! `eccaudit inject`: injection–recovery at the observer's own epochs and error bars, on all
 //! cores, streamed to a resumable CSV, with a JSON summary and SVG figures.
 
+use std::collections::HashSet;
 use std::fs::{self, OpenOptions};
 use std::io::{IsTerminal, Write};
+use std::ops::Range;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Mutex;
@@ -39,9 +41,10 @@ pub struct RunArgs {
     /// estimators as known (instrument jitters are the model's: see --jitter).
     #[arg(long, value_name = "M/S", default_value_t = 0.0)]
     pub added_noise: f64,
-    /// Trials per grid cell.
-    #[arg(long, default_value_t = 200)]
-    pub trials: usize,
+    /// Trials per grid cell (default: 200 for `inject`; for `audit`, the base trials per cell
+    /// of its settings, to which it adds trials where its statement needs them).
+    #[arg(long)]
+    pub trials: Option<usize>,
     /// Master seed: trial i draws from the stream (seed, i).
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
@@ -100,6 +103,17 @@ pub struct RunArgs {
     /// Combine the slices with `eccaudit merge`.
     #[arg(long, value_name = "I/N")]
     pub shard: Option<Shard>,
+    /// `audit` and `survey`: most circular simulations the circular decision may add (default
+    /// and largest 10000); fewer is quicker, and the decision's p less precise (its Monte-Carlo
+    /// error is printed either way).
+    #[arg(long, value_name = "N", default_value_t = eccaudit_core::inject::adaptive::DECISION_CAP)]
+    pub max_circular: u64,
+    /// `audit` and `survey`: the estimator the statement quotes, by its name in the
+    /// statement's table (`lsq`, or a posterior output such as `posterior_uniform_median`);
+    /// default: the stated rule (smallest RMSE over the injected e inside its calibrated
+    /// interval). Stored in the settings file.
+    #[arg(long, value_name = "NAME")]
+    pub estimator: Option<String>,
 }
 
 impl RunArgs {
@@ -265,7 +279,7 @@ pub fn design(
         semi_amplitudes,
         omegas: run.omegas_deg.iter().map(|d| d.to_radians()).collect(),
         jitter: run.added_noise,
-        trials_per_cell: run.trials,
+        trials_per_cell: run.trials.unwrap_or(200),
         seed: run.seed,
         model: TrialModel::default(),
     };
@@ -308,14 +322,27 @@ pub fn progress_bar(quiet: bool, length: u64, unit: &str) -> ProgressBar {
     progress
 }
 
-/// Runs the pending trials of `design` that belong to `shard` over the thread pool, appending
-/// each row to `out/trials.csv` as it finishes (advancing `bar` when given, else its own);
-/// returns all records (old and new) sorted by trial index, and whether every trial of the
-/// design is done.
+/// How a run gets its trials: which to run next, and how to run one.
+pub struct Driver<'a> {
+    /// Runs one trial.
+    pub run_one: &'a (dyn Fn(u64) -> anyhow::Result<TrialRecord> + Sync),
+    /// The next batch of trial indices wanted, given the records so far (None: done).
+    pub next: &'a dyn Fn(&[TrialRecord]) -> Option<Range<u64>>,
+    /// True for an index the run may hold (records of other indices in a resumed file are dropped).
+    pub valid: &'a dyn Fn(u64) -> bool,
+}
+
+/// Runs the trials `driver` asks for over the thread pool, batch after batch, keeping to the
+/// trials of `shard`, appending each row to `out/trials.csv` as it finishes (advancing `bar`
+/// when given, else its own); returns all records (old and new) sorted by trial index, and
+/// whether the driver wants no more (false after `--stop-after`, and for a split shard, which
+/// cannot choose the next adaptive batch without the other shards' trials: `eccaudit merge`
+/// and a `--resume` run without `--shard` finish those).
 pub fn run_design_with(
     design: &InjectionDesign,
     estimators: &[&dyn Estimator],
     run: &RunArgs,
+    driver: &Driver,
     shard: Shard,
     bar: Option<&ProgressBar>,
 ) -> anyhow::Result<(Vec<TrialRecord>, bool)> {
@@ -340,18 +367,10 @@ pub fn run_design_with(
         Vec::new()
     };
     trial_file::normalise_records(&mut records, n_trials);
+    records.retain(|r| (driver.valid)(r.trial));
     // Start the file afresh from the trials kept (drops a cut-off row), then append.
     write_csv_file(&csv_path, &fingerprint, n_trials, estimators, &records)?;
-    let mut done = vec![false; n_trials as usize];
-    for r in &records {
-        done[r.trial as usize] = true;
-    }
-    let pending: Vec<u64> = (0..n_trials)
-        .filter(|&t| !done[t as usize] && shard.contains(t))
-        .collect();
-    let to_run = run
-        .stop_after
-        .map_or(pending.len() as u64, |s| s.min(pending.len() as u64));
+    let mut done: HashSet<u64> = records.iter().map(|r| r.trial).collect();
 
     let file = OpenOptions::new()
         .append(true)
@@ -362,40 +381,68 @@ pub fn run_design_with(
     let progress = match bar {
         Some(bar) => bar,
         None => {
-            own_bar = progress_bar(run.quiet, to_run, "trials");
+            own_bar = progress_bar(run.quiet, 0, "trials");
             &own_bar
         }
     };
-    let started = AtomicU64::new(0);
-    let work = || -> anyhow::Result<Vec<TrialRecord>> {
-        pending
-            .par_iter()
-            .filter(|_| started.fetch_add(1, Ordering::Relaxed) < to_run)
-            .map(|&trial| -> anyhow::Result<TrialRecord> {
-                let record = run_trial(design, estimators, trial)?;
-                let line = trial_file::row_line(&record, estimators);
-                let mut w = writer.lock().expect("no thread panicked while writing");
-                w.write_all(line.as_bytes())?;
-                progress.inc(1);
-                Ok(record)
-            })
-            .collect()
+    let pool = match run.threads {
+        Some(n) => Some(
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(n)
+                .build()
+                .context("cannot start the worker threads")?,
+        ),
+        None => None,
     };
-    let new_records = match run.threads {
-        Some(n) => rayon::ThreadPoolBuilder::new()
-            .num_threads(n)
-            .build()
-            .context("cannot start the worker threads")?
-            .install(work)?,
-        None => work()?,
-    };
+    let mut budget = run.stop_after.unwrap_or(u64::MAX);
+    while let Some(batch) = (driver.next)(&records) {
+        let pending: Vec<u64> = batch
+            .filter(|t| !done.contains(t) && shard.contains(*t))
+            .collect();
+        if pending.is_empty() || budget == 0 {
+            break;
+        }
+        let to_run = budget.min(pending.len() as u64);
+        // A caller's bar already counts the base design; extra trials lengthen it.
+        let new_length = if bar.is_some() {
+            pending
+                .iter()
+                .take(to_run as usize)
+                .filter(|&&t| t >= n_trials)
+                .count() as u64
+        } else {
+            to_run
+        };
+        progress.inc_length(new_length);
+        let started = AtomicU64::new(0);
+        let work = || -> anyhow::Result<Vec<TrialRecord>> {
+            pending
+                .par_iter()
+                .filter(|_| started.fetch_add(1, Ordering::Relaxed) < to_run)
+                .map(|&trial| -> anyhow::Result<TrialRecord> {
+                    let record = (driver.run_one)(trial)?;
+                    let line = trial_file::row_line(&record, estimators);
+                    let mut w = writer.lock().expect("no thread panicked while writing");
+                    w.write_all(line.as_bytes())?;
+                    progress.inc(1);
+                    Ok(record)
+                })
+                .collect()
+        };
+        let new_records = match &pool {
+            Some(pool) => pool.install(work)?,
+            None => work()?,
+        };
+        budget -= new_records.len() as u64;
+        done.extend(new_records.iter().map(|r| r.trial));
+        records.extend(new_records);
+        records.sort_by_key(|r| r.trial);
+    }
+    let complete = (driver.next)(&records).is_none();
     if bar.is_none() {
         progress.finish_and_clear();
     }
     drop(writer);
-    records.extend(new_records);
-    records.sort_by_key(|r| r.trial);
-    let complete = records.len() as u64 == n_trials;
     // The final file holds every row in trial order, whatever order they finished in.
     write_csv_file(&csv_path, &fingerprint, n_trials, estimators, &records)?;
     // The same trials as ECSV, which astropy reads with units.
@@ -505,8 +552,19 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
         .chain(posteriors.iter().map(|p| p as &dyn Estimator))
         .collect();
+    let n = design.n_trials();
+    let run_one =
+        |t: u64| -> anyhow::Result<TrialRecord> { Ok(run_trial(&design, &estimators, t)?) };
+    let next = |records: &[TrialRecord]| (records.len() < n as usize).then_some(0..n);
+    let valid = |t: u64| t < n;
+    let driver = Driver {
+        run_one: &run_one,
+        next: &next,
+        valid: &valid,
+    };
     let shard = args.run.shard()?;
-    let (records, complete) = run_design_with(&design, &estimators, &args.run, shard, None)?;
+    let (records, complete) =
+        run_design_with(&design, &estimators, &args.run, &driver, shard, None)?;
     if shard.is_split() && !complete {
         shard_note(shard, &records, design.n_trials(), &args.run.out);
         return Ok(());

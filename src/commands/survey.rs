@@ -19,8 +19,8 @@ use eccaudit_core::survey::{
 use eccaudit_core::table::{parse_table, ReadOptions};
 use indicatif::ProgressBar;
 
-use super::audit::{settings_from_flags, write_audit_outputs};
-use super::inject::{progress_bar, run_design_with, RunArgs};
+use super::audit::{run_plan, settings_from_flags, write_audit_outputs};
+use super::inject::{progress_bar, RunArgs};
 use super::input::TableArgs;
 use super::model_args::ModelArgs;
 
@@ -177,14 +177,7 @@ fn audit_entry(
             resume: true,
             ..run.clone()
         };
-        let estimators = plan.estimators();
-        let (records, complete) = run_design_with(
-            plan.design(),
-            &estimators,
-            &table_run,
-            Shard::WHOLE,
-            Some(bar),
-        )?;
+        let (records, complete) = run_plan(plan, &table_run, Shard::WHOLE, Some(bar))?;
         if !complete {
             return Ok(TableOutcome::Stopped);
         }

@@ -65,16 +65,22 @@ test("a small audit of Corvin 4 in the page gives exactly the command line's rep
   await page.fill("#audit-settings [name='posterior_steps']", "400");
   await page.fill("#audit-settings [name='posterior_burn']", "200");
   await runToEnd();
-  assert.match(await page.textContent("#audit-status"), /^Done: 8 trials in /);
+  // 8 base trials, then the trials the statement needs (the circular decision, the interval).
+  const done = Number((await page.textContent("#audit-status")).match(/^Done: (\d+) trials in /)[1]);
+  assert.ok(done > 8, `${done} trials`);
 
   const paragraph = await page.textContent("#statement-paragraph");
   assert.ok(paragraph.length > 100, paragraph);
-  // Two cells × the estimator outputs: least squares, Lucy–Sweeney, and the default
-  // posterior (uniform prior) as median, mean and mode.
-  const rows = await page.$$eval("#audit-summary tbody tr", (trs) => trs.map((tr) => [...tr.children].map((td) => td.textContent)));
+  // One estimator at a time (the recommended one first in the menu), one row per injected e:
+  // least squares, Lucy–Sweeney, and the default posterior (uniform prior) as median, mean, mode.
   const outputs = ["lsq", "lucy_sweeney", "posterior_uniform_median", "posterior_uniform_mean", "posterior_uniform_mode"];
-  assert.deepEqual(rows.map((r) => r[0]), [...outputs, ...outputs], JSON.stringify(rows));
-  assert.deepEqual(rows.map((r) => r[1]), [...outputs.map(() => "0.000"), ...outputs.map(() => "0.300")]);
+  const options = await page.$$eval("#audit-estimator option", (os) => os.map((o) => o.value));
+  assert.deepEqual([...options].sort(), [...outputs].sort());
+  const rows = await page.$$eval("#audit-summary tbody tr", (trs) => trs.map((tr) => [...tr.children].map((td) => td.textContent)));
+  assert.deepEqual(rows.map((r) => r[0]), ["0", "0.3"], JSON.stringify(rows));
+  await page.selectOption("#audit-estimator", "posterior_uniform_mode");
+  const modeRows = await page.$$eval("#audit-summary tbody tr", (trs) => trs.map((tr) => tr.children[1].textContent));
+  assert.deepEqual(modeRows.length, 2);
   assert.ok(await app.paintedPixels("#bias-canvas") > 5000);
   assert.ok(await app.paintedPixels("#distributions-canvas") > 5000);
 
@@ -97,7 +103,8 @@ test("a small audit of Corvin 4 in the page gives exactly the command line's rep
   // Deep equality of the whole report: fit, every cell's numbers, the statement.
   assert.deepEqual(shown, native);
   assert.equal(paragraph, native.statement.paragraph);
-  assert.equal(native.trials_done, 8);
+  assert.equal(native.trials_done, done);
+  assert.equal(native.trials_total, 8);
 
   // The downloads: the same report, and the trial file the command line wrote (byte for byte).
   const results = await saveDownload("#download-results", "results.json");
@@ -161,7 +168,7 @@ test("Cancel stops the workers, keeps nothing of the cancelled run, and the page
   // Still working: a tiny run again finishes.
   await setGrid({ e: "0, 0.3", trials: 2, seed: 5 });
   await runToEnd();
-  assert.match(await page.textContent("#audit-status"), /^Done: 4 trials/);
+  assert.match(await page.textContent("#audit-status"), /^Done: \d+ trials/);
   assert.deepEqual(app.consoleErrors, []);
 });
 
@@ -203,6 +210,8 @@ test("two companions + trend + fitted jitter: the page's audit of companion 2 is
   await page.fill("#audit-settings [name='posterior_walkers']", "32");
   await page.fill("#audit-settings [name='posterior_steps']", "100");
   await page.fill("#audit-settings [name='posterior_burn']", "50");
+  // At most 400 circular simulations (default 10000), carried by the replay file.
+  await page.fill("#audit-settings [name='max_circular']", "400");
   await runToEnd();
   const settings = await saveDownload("#download-settings", "two-settings.json");
   const replay = JSON.parse(readFileSync(settings.file, "utf8"));
@@ -210,6 +219,7 @@ test("two companions + trend + fitted jitter: the page's audit of companion 2 is
   assert.equal(replay.model.trend, true);
   assert.equal(replay.model.jitter, "fit");
   assert.equal(replay.model.audit_companion, 2);
+  assert.equal(replay.injection.max_circular_trials, 400);
   const out = path.join(TMP, "cli-two");
   const native = JSON.parse(execFileSync(CLI, [
     "audit", file, "--settings", settings.file, "--json", "--quiet", "--out", out,

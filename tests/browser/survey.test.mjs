@@ -42,10 +42,18 @@ test("a survey of four tables in the page gives the command line's catalogue", a
   await page.fill("#audit-settings [name='posterior_walkers']", "16");
   await page.fill("#audit-settings [name='posterior_steps']", "40");
   await page.fill("#audit-settings [name='posterior_burn']", "20");
+  // At most 200 circular simulations per decision (default 10000): plumbing, not precision.
+  await page.fill("#audit-settings [name='max_circular']", "200");
+  // Least squares quoted: its extra simulations are cheap (a quoted posterior output adds runs).
+  await page.fill("#audit-settings [name='estimator']", "lsq");
   await page.setInputFiles("#survey-files", names.map((n) => path.join(dir, n)));
   await page.waitForFunction(() => document.getElementById("survey-chosen").textContent.startsWith("4 tables"));
   await page.click("#survey-run");
-  await page.waitForSelector("body[data-survey-state='done']", { timeout: 300_000 });
+  // Each table runs its base trials and then the adaptive ones its statement needs (several
+  // hundred least-squares trials): minutes in wasm on a loaded machine.
+  await page.waitForSelector("body[data-survey-state='done']", { timeout: 900_000 }).catch(async (err) => {
+    throw new Error(`${err.message}; survey status: ${await page.textContent("#survey-status")}; progress: ${await page.textContent("#survey-progress-text").catch(() => "?")}`);
+  });
 
   const status = await page.textContent("#survey-status");
   assert.match(status, /^Done: 3 of 4 tables audited/);
@@ -66,7 +74,8 @@ test("a survey of four tables in the page gives the command line's catalogue", a
   writeFileSync(path.join(dir, "page-manifest.csv"), `table\n${names.join("\n")}\n`);
   execFileSync(CLI, ["survey", path.join(dir, "page-manifest.csv"), "--out", path.join(TMP, "cli"),
     "--e", "0,0.3", "--trials", "2", "--seed", "5",
-    "--posterior-walkers", "16", "--posterior-steps", "40", "--posterior-burn", "20", "--quiet"],
+    "--posterior-walkers", "16", "--posterior-steps", "40", "--posterior-burn", "20",
+    "--max-circular", "200", "--estimator", "lsq", "--quiet"],
   { env: { ...process.env, SLURM_ARRAY_TASK_ID: "" } });
   assert.equal(csv, readFileSync(path.join(TMP, "cli", "catalogue.csv"), "utf8"));
   assert.equal(json, readFileSync(path.join(TMP, "cli", "catalogue.json"), "utf8"));

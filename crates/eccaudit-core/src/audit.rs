@@ -20,10 +20,18 @@ use thiserror::Error;
 use crate::fit::{
     EccentricityCoordinates, FitData, FitError, FitOptions, FitReport, ParameterLayout, RvProblem,
 };
+use crate::inject::adaptive::{
+    kind_of_trial, ExtraKind, ExtraState, BELT_MIN_ALL, BELT_MIN_LEAST_SQUARES, BIAS_TARGET_ERROR,
+    DECISION_CAP, DECISION_TARGET_ERROR,
+};
+use crate::inject::statement::{
+    cells_in_use, choose, decision_statistic, estimates_by_cell, output_belt, statement_cells,
+    DECISION_ALPHA,
+};
 use crate::inject::{
-    default_eccentricity_grid, eccentricity_statement, run_trials, summarise, AuditContext,
-    EccentricityEstimate, EccentricityStatement, Estimator, FittedOrbit, InjectError,
-    InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings,
+    all_outputs, default_eccentricity_grid, eccentricity_statement, run_trials, summarise,
+    AuditContext, EccentricityEstimate, EccentricityStatement, Estimator, FittedOrbit, InjectError,
+    InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings, Outcome,
     PosteriorEstimator, Sampling, TrialModel, TrialPeriod, TrialRecord,
 };
 use crate::posterior::{fast_sampler_settings, parse_prior_spec};
@@ -107,7 +115,8 @@ impl Default for FitSettings {
 pub struct InjectionSettings {
     /// True eccentricities injected.
     pub eccentricities: Vec<f64>,
-    /// Simulations per true eccentricity.
+    /// Base simulations per true eccentricity (every estimator); the audit adds trials where
+    /// its statement needs them ([`AuditPlan::next_batch`]).
     pub trials_per_cell: usize,
     /// Extra Gaussian scatter added to every simulated velocity [m/s], in quadrature, and told
     /// to the estimators as known (on top of any fitted instrument jitter, which the model
@@ -125,6 +134,19 @@ pub struct InjectionSettings {
     pub lucy_sweeney: bool,
     /// Posterior estimators run on every simulation.
     pub posterior: PosteriorInjectionSettings,
+    /// The estimator the statement quotes, by output name (`lsq`, `posterior_median_…`, …);
+    /// None = the stated rule ([`crate::inject::RECOMMENDATION_RULE`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub estimator: Option<String>,
+    /// Most circular simulations the decision may use ([`DECISION_CAP`] by default, and at
+    /// most that): fewer makes the audit quicker and the decision's p less precise (its
+    /// Monte-Carlo error is stated either way).
+    #[serde(skip_serializing_if = "is_decision_cap")]
+    pub max_circular_trials: u64,
+}
+
+fn is_decision_cap(n: &u64) -> bool {
+    *n == DECISION_CAP
 }
 
 /// Posterior estimators of injection–recovery: one per eccentricity prior, each giving the
@@ -255,7 +277,7 @@ impl Default for InjectionSettings {
         let lsq = LeastSquaresSettings::default();
         InjectionSettings {
             eccentricities: default_eccentricity_grid(),
-            trials_per_cell: 200,
+            trials_per_cell: 40,
             jitter: 0.0,
             omegas_deg: Vec::new(),
             period_search: false,
@@ -263,6 +285,8 @@ impl Default for InjectionSettings {
             n_omega_starts: lsq.n_omega_starts,
             lucy_sweeney: lsq.lucy_sweeney,
             posterior: PosteriorInjectionSettings::default(),
+            estimator: None,
+            max_circular_trials: DECISION_CAP,
         }
     }
 }
@@ -456,10 +480,14 @@ pub struct AuditReport {
     pub injection: InjectionSummary,
     /// The calibrated statement about the real data.
     pub statement: EccentricityStatement,
-    /// Trials done out of the design's total (a cancelled or partial run states it).
+    /// Trials done, base and extra (a cancelled or partial run states it).
     pub trials_done: u64,
-    /// Trials in the design.
+    /// Base trials in the design.
     pub trials_total: u64,
+    /// Extra (adaptive) trials done.
+    pub extra_trials: u64,
+    /// True when every base trial is done and the adaptive rule asks for no more.
+    pub complete: bool,
 }
 
 /// A prepared audit of one companion: the fit is done, the simulation design is fixed.
@@ -472,6 +500,20 @@ pub struct AuditPlan {
     posteriors: Vec<PosteriorEstimator>,
     observed: Vec<Option<EccentricityEstimate>>,
     fitted: FittedOrbit,
+    /// The estimator the user chose for the statement (None: the stated rule).
+    estimator: Option<String>,
+    /// Most circular simulations of the decision.
+    max_circular: u64,
+}
+
+/// The estimators of a plan, in output order.
+fn estimators_of<'a>(
+    least_squares: &'a LeastSquaresEstimator,
+    posteriors: &'a [PosteriorEstimator],
+) -> Vec<&'a dyn Estimator> {
+    std::iter::once(least_squares as &dyn Estimator)
+        .chain(posteriors.iter().map(|p| p as &dyn Estimator))
+        .collect()
 }
 
 /// The fit of the real data under the settings' model.
@@ -586,10 +628,7 @@ impl AuditPlan {
         // The real data, estimated exactly as each simulation is.
         let mut rng = crate::random::stream_rng(settings.seed, REAL_DATA_STREAM);
         let mut observed: Vec<Option<EccentricityEstimate>> = Vec::new();
-        let estimators: Vec<&dyn Estimator> = std::iter::once(&least_squares as &dyn Estimator)
-            .chain(posteriors.iter().map(|p| p as &dyn Estimator))
-            .collect();
-        for estimator in estimators {
+        for estimator in estimators_of(&least_squares, &posteriors) {
             match estimator.estimate(&data, &design, &mut rng) {
                 Ok(estimates) => observed.extend(estimates.into_iter().map(Some)),
                 Err(_) => observed.extend(std::iter::repeat_n(None, estimator.outputs().len())),
@@ -603,6 +642,27 @@ impl AuditPlan {
             lucy_sweeney_p,
         };
         let context = AuditContext::new(&model_fit, audited, inj.period_search);
+        if inj.max_circular_trials == 0 || inj.max_circular_trials > DECISION_CAP {
+            return Err(AuditError::Settings(format!(
+                "injection.max_circular_trials: {} is not between 1 and {DECISION_CAP}",
+                inj.max_circular_trials
+            )));
+        }
+        if let Some(name) = &inj.estimator {
+            let outputs = all_outputs(&estimators_of(&least_squares, &posteriors));
+            if name == "lucy_sweeney" || !outputs.iter().any(|o| &o.name == name) {
+                let names: Vec<&str> = outputs
+                    .iter()
+                    .map(|o| o.name.as_str())
+                    .filter(|n| *n != "lucy_sweeney")
+                    .collect();
+                return Err(AuditError::Settings(format!(
+                    "estimator `{}`: not one of this audit's estimators ({})",
+                    crate::one_line(name),
+                    names.join(", ")
+                )));
+            }
+        }
         Ok(AuditPlan {
             model_fit,
             context,
@@ -611,6 +671,8 @@ impl AuditPlan {
             posteriors,
             observed,
             fitted,
+            estimator: inj.estimator.clone(),
+            max_circular: inj.max_circular_trials,
         })
     }
 
@@ -647,42 +709,160 @@ impl AuditPlan {
             .collect()
     }
 
-    /// Trials in the design.
+    /// Base trials in the design (the adaptive rule adds extra trials after them).
     pub fn n_trials(&self) -> u64 {
         self.design.n_trials()
     }
 
-    /// Run the trials with indices in `range` (clipped to the design), calling
-    /// `observer` after each, in index order.
+    /// True when `trial` is a base trial or an extra trial of one of the design's cells.
+    pub fn has_trial(&self, trial: u64) -> bool {
+        self.design.has_trial(trial)
+    }
+
+    /// Run the trials with indices in `range` (a range of base trials is clipped to them; an
+    /// extra range must lie in one cell's block), calling `observer` after each, in index
+    /// order. Extra trials of the least-squares kind run the least-squares estimator only; the
+    /// other outputs are [`Outcome::Skipped`]. A trial's numbers depend only on its index.
     pub fn run_trials(
         &self,
         range: Range<u64>,
         observer: &mut dyn FnMut(&TrialRecord),
     ) -> Result<Vec<TrialRecord>, AuditError> {
-        Ok(run_trials(
-            &self.design,
-            &self.estimators(),
-            range,
-            observer,
-        )?)
+        if kind_of_trial(&self.design, range.start) != Some(ExtraKind::LeastSquares) {
+            return Ok(run_trials(
+                &self.design,
+                &self.estimators(),
+                range,
+                observer,
+            )?);
+        }
+        let n_outputs = all_outputs(&self.estimators()).len();
+        let lsq: [&dyn Estimator; 1] = [&self.least_squares];
+        let mut records = run_trials(&self.design, &lsq, range, &mut |_| {})?;
+        for record in &mut records {
+            record.outcomes.resize(n_outputs, Outcome::Skipped);
+            observer(record);
+        }
+        Ok(records)
+    }
+
+    /// The next batch of trials the audit needs, decided from the `records` so far (any order),
+    /// or None when it needs no more. The drivers (the command line's threads, the page's
+    /// workers) loop: run the trials of the batch not yet done, then ask again.
+    ///
+    /// The rule, in order: (1) every base trial; (2) the circular decision: least-squares
+    /// trials of the e = 0 cell while the Wilson 95% interval of the Monte-Carlo p contains
+    /// 0.05 or its standard error exceeds [`DECISION_TARGET_ERROR`], until the settings'
+    /// `max_circular_trials` (at most [`DECISION_CAP`]; batches double, so the last may pass it);
+    /// (3) the recommended estimator (chosen from the base trials): in the cells its interval
+    /// rests on ([`cells_in_use`]), at least [`BELT_MIN_LEAST_SQUARES`] (least squares) or
+    /// [`BELT_MIN_ALL`] (a posterior output) simulations, and in the cell nearest its value
+    /// enough for a bias standard error of [`BIAS_TARGET_ERROR`], each within its kind's cap.
+    /// Only base trials and complete batches are looked at, so the sequence of batches does
+    /// not depend on how trials were split or on an interruption.
+    pub fn next_batch(&self, records: &[TrialRecord]) -> Option<Range<u64>> {
+        let design = &self.design;
+        let base = design.n_trials();
+        let mut done_base = vec![false; base as usize];
+        for r in records.iter().filter(|r| r.trial < base) {
+            done_base[r.trial as usize] = true;
+        }
+        if done_base.iter().any(|d| !d) {
+            return Some(0..base);
+        }
+        let state = ExtraState::of(design, records);
+        let counted: Vec<&TrialRecord> =
+            records.iter().filter(|r| state.counts(design, r)).collect();
+        let outputs = all_outputs(&self.estimators());
+        let cells = statement_cells(design, &self.fitted);
+        // (2) The circular decision.
+        if let (Some(stat), Some(c0)) = (
+            decision_statistic(&outputs),
+            cells.iter().find(|c| c.eccentricity == 0.0),
+        ) {
+            if let Some(obs) = self.observed.get(stat.output).and_then(Option::as_ref) {
+                let circular: Vec<&TrialRecord> = counted
+                    .iter()
+                    .copied()
+                    .filter(|r| r.cell == c0.index)
+                    .collect();
+                if let Some(p) = stat.p_value(obs, &circular) {
+                    let unresolved =
+                        !p.resolves(DECISION_ALPHA) || p.standard_error > DECISION_TARGET_ERROR;
+                    if unresolved && (p.n as u64) < self.max_circular {
+                        if let Some(batch) = state.next(design, c0.index, ExtraKind::LeastSquares) {
+                            return Some(batch);
+                        }
+                    }
+                }
+            }
+        }
+        // (3) The recommended estimator's interval and bias.
+        let base_records: Vec<&TrialRecord> =
+            counted.iter().copied().filter(|r| r.trial < base).collect();
+        let chosen = choose(
+            &outputs,
+            &self.observed,
+            &cells,
+            &base_records,
+            self.estimator.as_deref(),
+        )?;
+        let x0 = self.observed[chosen].as_ref()?.point;
+        let per_cell = estimates_by_cell(&cells, &counted, chosen);
+        let belt = output_belt(&cells, &per_cell, x0)?;
+        let (used, nearest) = cells_in_use(&cells, &belt.interval(x0), x0);
+        let is_lsq = chosen < self.least_squares.outputs().len();
+        let (kind, minimum) = if is_lsq {
+            (ExtraKind::LeastSquares, BELT_MIN_LEAST_SQUARES)
+        } else {
+            (ExtraKind::AllEstimators, BELT_MIN_ALL)
+        };
+        for j in used {
+            let v = &per_cell[j];
+            let mut target = minimum;
+            if j == nearest && v.len() > 1 {
+                let mean = v.iter().sum::<f64>() / v.len() as f64;
+                let var =
+                    v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (v.len() - 1) as f64;
+                let needed = (var / (BIAS_TARGET_ERROR * BIAS_TARGET_ERROR)).ceil() as usize;
+                target = target.max(needed);
+            }
+            if v.len() < target {
+                if let Some(batch) = state.next(design, cells[j].index, kind) {
+                    return Some(batch);
+                }
+            }
+        }
+        None
     }
 
     /// Summarise `records` (any order; duplicates by trial index are dropped)
     /// and state the result for the real data.
     pub fn finish(&self, records: &[TrialRecord]) -> Result<AuditReport, AuditError> {
         let estimators = self.estimators();
-        let injection = summarise(&self.design, &estimators, records);
-        let statement = eccentricity_statement(&injection, records, &self.observed, self.fitted)?;
-        let mut indices: Vec<u64> = records.iter().map(|r| r.trial).collect();
-        indices.sort_unstable();
-        indices.dedup();
+        let mut sorted: Vec<TrialRecord> = records.to_vec();
+        sorted.sort_by_key(|r| r.trial);
+        sorted.dedup_by_key(|r| r.trial);
+        let injection = summarise(&self.design, &estimators, &sorted);
+        let statement = eccentricity_statement(
+            &injection,
+            &sorted,
+            &self.observed,
+            self.fitted,
+            &self.context,
+            self.estimator.as_deref(),
+            self.max_circular,
+        )?;
+        let base = self.n_trials();
         Ok(AuditReport {
             fit: self.model_fit.report.clone(),
             context: self.context.clone(),
             injection,
             statement,
-            trials_done: indices.len() as u64,
-            trials_total: self.n_trials(),
+            trials_done: sorted.len() as u64,
+            trials_total: base,
+            extra_trials: sorted.iter().filter(|r| r.trial >= base).count() as u64,
+            complete: self.next_batch(&sorted).is_none(),
         })
     }
 }
@@ -927,5 +1107,76 @@ mod tests {
         assert_eq!(report.context.companion, 2);
         assert_eq!(report.context.others.len(), 1);
         assert!(report.context.trend.is_some());
+    }
+
+    /// The adaptive loop gives the same trials and the same report however each batch is split
+    /// and in whatever order its pieces finish, and after an interrupted batch is resumed.
+    #[test]
+    fn adaptive_batches_do_not_depend_on_the_split_or_an_interruption() {
+        let text = include_str!("../../../demo-data/velka17-nearly-circular.csv");
+        let table = parse_table(text, &ReadOptions::new("velka17-nearly-circular.csv")).unwrap();
+        let settings = AuditSettings {
+            injection: InjectionSettings {
+                eccentricities: vec![0.0, 0.1, 0.2, 0.3],
+                trials_per_cell: 20,
+                posterior: PosteriorInjectionSettings {
+                    priors: Vec::new(),
+                    ..PosteriorInjectionSettings::default()
+                },
+                ..InjectionSettings::default()
+            },
+            seed: 3,
+            ..AuditSettings::default()
+        };
+        let plan = AuditPlan::new(&table, &settings).unwrap();
+        let drive = |chunk: u64, interrupt: bool| {
+            let mut records: Vec<TrialRecord> = Vec::new();
+            let mut batches = Vec::new();
+            let mut interrupted = false;
+            while let Some(batch) = plan.next_batch(&records) {
+                assert!(batches.len() < 40, "the rule must stop");
+                batches.push(batch.clone());
+                let mut starts: Vec<u64> = batch.clone().step_by(chunk as usize).collect();
+                starts.reverse();
+                for s in starts {
+                    let end = (s + chunk).min(batch.end);
+                    let todo: Vec<u64> = (s..end)
+                        .filter(|t| !records.iter().any(|r| r.trial == *t))
+                        .collect();
+                    for t in todo {
+                        records.extend(plan.run_trials(t..t + 1, &mut |_| {}).unwrap());
+                    }
+                }
+                if interrupt && !interrupted && batches.len() == 2 {
+                    // Lose the last few trials of the second batch, as a killed run would.
+                    interrupted = true;
+                    records.retain(|r| r.trial + 5 < batch.end || r.trial < batch.start);
+                }
+            }
+            records.sort_by_key(|r| r.trial);
+            (records, batches)
+        };
+        let (a, batches_a) = drive(1000, false);
+        let (b, _) = drive(7, true);
+        assert!(batches_a.len() >= 2, "{batches_a:?}");
+        assert_eq!(a, b);
+        let report = plan.finish(&a).unwrap();
+        assert!(report.complete);
+        assert!(report.extra_trials > 0);
+        let d = report.statement.decision.as_ref().unwrap();
+        assert!(
+            (d.resolved && d.p.standard_error <= DECISION_TARGET_ERROR)
+                || d.p.n as u64 >= DECISION_CAP,
+            "{d:?}"
+        );
+        assert!(
+            report.statement.sentences.len() <= 3,
+            "{:?}",
+            report.statement.sentences
+        );
+        assert_eq!(
+            serde_json::to_string(&report).unwrap(),
+            serde_json::to_string(&plan.finish(&b).unwrap()).unwrap()
+        );
     }
 }

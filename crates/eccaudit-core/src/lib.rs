@@ -9,6 +9,7 @@
 pub mod audit;
 pub mod constants;
 pub mod fit;
+pub mod format;
 pub mod inject;
 pub mod kepler;
 pub mod limits;

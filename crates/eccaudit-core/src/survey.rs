@@ -467,7 +467,8 @@ pub struct CatalogueRow {
     pub lsq_e: Option<f64>,
     /// Its formal 1σ error.
     pub lsq_e_error: Option<f64>,
-    /// The estimator quoted: the statement's first calibrated estimator (least squares).
+    /// The estimator quoted: the statement's recommended estimator (its stated rule: smallest
+    /// RMSE over the belt-consistent range, or the user's `--estimator`).
     pub estimator: Option<String>,
     /// Its value on the real data.
     pub e: Option<f64>,
@@ -475,17 +476,20 @@ pub struct CatalogueRow {
     pub bias: Option<f64>,
     /// The bias's Monte-Carlo standard error.
     pub bias_error: Option<f64>,
-    /// Lower end of the calibrated 95% set of true e (the inverted simulated distributions).
+    /// Lower end of its calibrated 95% interval on the true e (the inverted simulated confidence
+    /// belt, Feldman & Cousins 1998 ordering; 0 for an upper limit).
     pub e_low95: Option<f64>,
-    /// Upper end of that set.
+    /// Upper end of that interval.
     pub e_high95: Option<f64>,
-    /// True when the set is open above the simulated grid.
+    /// True when the interval reaches the top of the simulated grid.
     pub e_open_above: Option<bool>,
-    /// Circular orbit excluded at the 5% level (Lucy–Sweeney test).
+    /// Circular orbit excluded at the 5% level by the statement's calibrated decision (the
+    /// Monte-Carlo p of the circular simulations of the full model ≤ 0.05).
     pub circular_excluded: Option<bool>,
-    /// Lucy–Sweeney p.
+    /// Lucy–Sweeney p of the real data (two-dimensional Wald form; asymptotic, not calibrated).
     pub circular_p: Option<f64>,
-    /// Monte-Carlo p: share of circular simulations giving an estimate at least the observed.
+    /// The calibrated decision's Monte-Carlo p: share of the circular simulations whose decision
+    /// statistic is at least as extreme as the real data's.
     pub circular_mc_p: Option<f64>,
     /// m sin i [Jupiter masses], when the manifest gives a stellar mass.
     pub m_sin_i_mjup: Option<f64>,
@@ -517,7 +521,13 @@ pub fn catalogue_rows(
     let Some(c) = solution.companions.get(companion) else {
         return vec![error_row(table, folder, "the fit has no such companion")];
     };
-    let calibration = statement.calibrations.first();
+    // The statement's recommended estimator (its stated rule, or the user's choice).
+    let recommended = statement
+        .recommended
+        .as_ref()
+        .and_then(|name| statement.rows.iter().find(|r| &r.name == name));
+    let interval = recommended.and_then(|r| r.interval);
+    let decision = statement.decision.as_ref();
     let mut flags = Vec::new();
     if context.scatter_warning.is_some() {
         flags.push("excess_scatter".to_string());
@@ -534,21 +544,16 @@ pub fn catalogue_rows(
     if !fit.warnings.is_empty() {
         flags.push("fit_warnings".to_string());
     }
-    let posterior_unconverged = statement.calibrations.iter().any(|cal| {
-        cal.name.starts_with("posterior_")
-            && report
-                .injection
-                .outputs
-                .iter()
-                .find(|o| o.name == cal.name)
-                .and_then(|o| o.extra_names.iter().position(|n| n == "converged"))
-                .and_then(|i| cal.observed.extra.get(i))
-                .is_some_and(|&v| v == 0.0)
-    });
+    // A posterior estimator whose run on the real data did not meet its convergence rule has
+    // no value in the statement (its note says why).
+    let posterior_unconverged = statement
+        .rows
+        .iter()
+        .any(|r| r.name.starts_with("posterior_") && r.value.is_none());
     if posterior_unconverged {
         flags.push("unconverged_posterior".to_string());
     }
-    if calibration.is_some_and(|cal| cal.belt95_open_above) {
+    if interval.is_some_and(|i| i.open_above) {
         flags.push("open_above_grid".to_string());
     }
     let partial = report.trials_done < report.trials_total;
@@ -571,16 +576,16 @@ pub fn catalogue_rows(
         semi_amplitude_error: c.semi_amplitude.error,
         lsq_e: Some(c.eccentricity.value),
         lsq_e_error: c.eccentricity.error,
-        estimator: calibration.map(|cal| cal.name.clone()),
-        e: calibration.map(|cal| cal.observed.point),
-        bias: calibration.map(|cal| cal.bias),
-        bias_error: calibration.map(|cal| cal.bias_standard_error),
-        e_low95: calibration.and_then(|cal| cal.belt95.map(|b| b.0)),
-        e_high95: calibration.and_then(|cal| cal.belt95.map(|b| b.1)),
-        e_open_above: calibration.map(|cal| cal.belt95_open_above),
-        circular_excluded: statement.circular_excluded,
+        estimator: recommended.map(|r| r.name.clone()),
+        e: recommended.and_then(|r| r.value),
+        bias: recommended.map(|r| r.bias),
+        bias_error: recommended.map(|r| r.bias_standard_error),
+        e_low95: interval.map(|i| i.lower),
+        e_high95: interval.map(|i| i.upper),
+        e_open_above: interval.map(|i| i.open_above),
+        circular_excluded: decision.map(|d| d.circular_excluded),
         circular_p: statement.fitted.lucy_sweeney_p,
-        circular_mc_p: calibration.and_then(|cal| cal.circular_exceedance.map(|p| p.value)),
+        circular_mc_p: decision.map(|d| d.p.value),
         m_sin_i_mjup: m_sin_i,
         trials_done: Some(report.trials_done),
         trials_total: Some(report.trials_total),

@@ -52,6 +52,9 @@ pub struct EstimateHistogram {
 pub struct DistributionPanel {
     /// The injected e (marked by a vertical line).
     pub true_e: f64,
+    /// The panel's title, with e as typed (made by the caller, e.g. with
+    /// `eccaudit_core::format::grid_value`).
+    pub title: String,
     /// One histogram per estimator.
     pub histograms: Vec<EstimateHistogram>,
 }
@@ -201,7 +204,7 @@ pub fn draw_distributions<DB: DrawingBackend>(
         let mut chart = ChartBuilder::on(cell)
             .margin(8)
             .caption(
-                format!("injected e = {}", panel.true_e),
+                panel.title.clone(),
                 ("sans-serif", 13).into_font().color(&INK),
             )
             .x_label_area_size(28)
@@ -330,6 +333,7 @@ mod tests {
             let root = SVGBackend::with_string(&mut svg, (800, 500)).into_drawing_area();
             let panel = |e: f64| DistributionPanel {
                 true_e: e,
+                title: format!("injected e = {e}"),
                 histograms: vec![EstimateHistogram {
                     name: "lsq".into(),
                     bin_width: 0.02,

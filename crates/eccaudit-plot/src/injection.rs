@@ -1,6 +1,7 @@
 //! From an injection–recovery summary of the core to the two figures of this crate: the one
 //! conversion shared by the command line (SVG) and the page (canvas).
 
+use eccaudit_core::format::grid_value;
 use eccaudit_core::inject::summary::HISTOGRAM_BIN_WIDTH;
 use eccaudit_core::inject::{CellSummary, InjectionSummary, Quantiles};
 
@@ -60,6 +61,7 @@ pub fn distribution_figure(summary: &InjectionSummary) -> DistributionFigure {
     let panels = cells_at(summary, k0)
         .map(|c| DistributionPanel {
             true_e: c.cell.eccentricity,
+            title: format!("injected e = {}", grid_value(c.cell.eccentricity)),
             histograms: c
                 .outputs
                 .iter()

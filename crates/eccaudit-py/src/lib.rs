@@ -330,6 +330,43 @@ fn run_design(
     Ok(Some(results.into_iter().flatten().collect()))
 }
 
+/// Runs the trials of an audit batch after batch, as its adaptive rule asks
+/// (`AuditPlan::next_batch`, the same loop as the CLI and the page), checking the cancel flag
+/// before each trial. Returns the records sorted by trial index, or `None` if cancelled.
+fn run_audit(plan: &AuditPlan, control: &Control) -> Result<Option<Vec<TrialRecord>>, String> {
+    let mut records: Vec<TrialRecord> = Vec::new();
+    while let Some(batch) = plan.next_batch(&records) {
+        let pending: Vec<u64> = batch
+            .filter(|t| records.binary_search_by_key(t, |r| r.trial).is_err())
+            .collect();
+        if pending.is_empty() {
+            break;
+        }
+        control
+            .total
+            .fetch_add(pending.len() as u64, Ordering::Relaxed);
+        let results: Vec<Option<TrialRecord>> = pending
+            .into_par_iter()
+            .map(|trial| -> Result<Option<TrialRecord>, String> {
+                if control.cancelled() {
+                    return Ok(None);
+                }
+                let mut record = plan
+                    .run_trials(trial..trial + 1, &mut |_| {})
+                    .map_err(|e| e.to_string())?;
+                control.done.fetch_add(1, Ordering::Relaxed);
+                Ok(record.pop())
+            })
+            .collect::<Result<_, _>>()?;
+        if control.cancelled() {
+            return Ok(None);
+        }
+        records.extend(results.into_iter().flatten());
+        records.sort_by_key(|r| r.trial);
+    }
+    Ok(Some(records))
+}
+
 fn bias_json(summary: &InjectionSummary, observed: Option<f64>) -> serde_json::Value {
     let figure = bias_figure(summary, observed);
     serde_json::json!({
@@ -404,15 +441,16 @@ fn audit(
     let result = run_with_progress(py, threads, progress, |control| {
         let plan = AuditPlan::new(inner, &settings).map_err(|e| e.to_string())?;
         let estimators = plan.estimators();
-        let Some(records) = run_design(plan.design(), &estimators, control)? else {
+        let Some(records) = run_audit(&plan, control)? else {
             return Ok(None);
         };
         let report = plan.finish(&records).map_err(|e| e.to_string())?;
         let observed = report
             .statement
-            .calibrations
-            .first()
-            .map(|c| c.observed.point);
+            .rows
+            .iter()
+            .find(|r| r.name == "lsq")
+            .and_then(|r| r.value);
         Ok(Some((
             serde_json::to_string(&report).map_err(|e| e.to_string())?,
             settings_text.clone(),

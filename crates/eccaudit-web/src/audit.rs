@@ -66,6 +66,8 @@ pub struct AuditRun {
     settings: AuditSettings,
     /// The records and report of the last `finish`.
     finished: Option<(Vec<TrialRecord>, AuditReport)>,
+    /// Records passed to `nextBatch` so far.
+    collected: Vec<TrialRecord>,
 }
 
 #[wasm_bindgen]
@@ -94,13 +96,30 @@ impl AuditRun {
             plan,
             settings,
             finished: None,
+            collected: Vec::new(),
         })
     }
 
-    /// Trials in the design.
+    /// Base trials in the design (the audit adds trials after them: see `nextBatch`).
     #[wasm_bindgen(getter, js_name = nTrials)]
     pub fn n_trials(&self) -> f64 {
         self.plan.n_trials() as f64
+    }
+
+    /// The next batch of trials the audit needs, given every row returned by `runTrials` so
+    /// far (any order; rows already passed in an earlier call need not be passed again:
+    /// they are kept), as `[start, end]`, or `null` when no more are needed. The page's workers
+    /// run it and the page asks again: the same batches as the command line's threads.
+    #[wasm_bindgen(js_name = nextBatch)]
+    pub fn next_batch(&mut self, new_rows: JsValue) -> Result<JsValue, JsValue> {
+        let records = parse_rows(&self.plan, new_rows)?;
+        self.collected.extend(records);
+        self.collected.sort_by_key(|r| r.trial);
+        self.collected.dedup_by_key(|r| r.trial);
+        match self.plan.next_batch(&self.collected) {
+            Some(range) => to_js(&[range.start as f64, range.end as f64]),
+            None => Ok(JsValue::NULL),
+        }
     }
 
     /// The least-squares fit of the real data (the core's `FitReport`, a plain object).
@@ -115,7 +134,7 @@ impl AuditRun {
         self.settings.to_json()
     }
 
-    /// Run trials `start..end` (clipped to the design); returns one row of strings per trial,
+    /// Run trials `start..end` (a range from `nextBatch`, or part of one); returns one row of strings per trial,
     /// the trial CSV's row, which `finish` reads back exactly.
     #[wasm_bindgen(js_name = runTrials)]
     pub fn run_trials(&self, start: f64, end: f64) -> Result<JsValue, JsValue> {
@@ -133,15 +152,7 @@ impl AuditRun {
     /// result; returns the core's `AuditReport` as a plain object and keeps it for the figures
     /// and downloads.
     pub fn finish(&mut self, rows: JsValue) -> Result<JsValue, JsValue> {
-        let rows: Vec<Vec<String>> = serde_wasm_bindgen::from_value(rows).map_err(js_error)?;
-        let estimators = self.plan.estimators();
-        let mut records = Vec::with_capacity(rows.len());
-        for (idx, row) in rows.iter().enumerate() {
-            let fields: Vec<&str> = row.iter().map(String::as_str).collect();
-            let record =
-                record_from_csv_row(&fields, &estimators, idx as u64 + 1).map_err(js_error)?;
-            records.push(record);
-        }
+        let mut records = parse_rows(&self.plan, rows)?;
         trial_file::normalise_records(&mut records, self.plan.n_trials());
         let report = self.plan.finish(&records).map_err(js_error)?;
         let out = to_js(&report)?;
@@ -212,9 +223,10 @@ impl AuditRun {
         let report = &self.report()?.1;
         let observed = report
             .statement
-            .calibrations
-            .first()
-            .map(|c| c.observed.point);
+            .rows
+            .iter()
+            .find(|r| r.name == "lsq")
+            .and_then(|r| r.value);
         Ok(bias_figure(&report.injection, observed))
     }
 
@@ -223,6 +235,26 @@ impl AuditRun {
             .as_ref()
             .ok_or_else(|| js_error("no result yet: finish the run first"))
     }
+}
+
+/// Trial records from rows of the trial CSV (as `runTrials` returns them).
+fn parse_rows(plan: &AuditPlan, rows: JsValue) -> Result<Vec<TrialRecord>, JsValue> {
+    let rows: Vec<Vec<String>> = serde_wasm_bindgen::from_value(rows).map_err(js_error)?;
+    let estimators = plan.estimators();
+    let mut records = Vec::with_capacity(rows.len());
+    for (idx, row) in rows.iter().enumerate() {
+        let fields: Vec<&str> = row.iter().map(String::as_str).collect();
+        let record = record_from_csv_row(&fields, &estimators, idx as u64 + 1).map_err(js_error)?;
+        if !plan.has_trial(record.trial) {
+            return Err(js_error(format!(
+                "row {}: trial {} is not in the design",
+                idx + 1,
+                record.trial
+            )));
+        }
+        records.push(record);
+    }
+    Ok(records)
 }
 
 /// A trial index from JavaScript: a whole number ≥ 0.

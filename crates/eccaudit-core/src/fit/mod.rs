@@ -22,7 +22,9 @@ use crate::periodogram::{FrequencyLimits, PeriodogramError};
 
 pub use goodness::{chi_squared_p_value, Goodness, EXCESS_SCATTER_P};
 pub use jitter::JitterMethod;
-pub use lucy_sweeney::{eccentricity_error, lucy_sweeney, LucySweeney, LUCY_SWEENEY_THRESHOLD};
+pub use lucy_sweeney::{
+    eccentricity_error, lucy_sweeney, lucy_sweeney_wald, LucySweeney, LUCY_SWEENEY_THRESHOLD,
+};
 pub use multistart::{fit_from_start, fit_orbit, StartPoint};
 pub use problem::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
 pub use report::{

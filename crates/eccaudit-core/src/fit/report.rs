@@ -7,7 +7,7 @@ use serde::Serialize;
 
 use super::goodness::chi_squared_p_value;
 use super::jitter::JitterMethod;
-use super::lucy_sweeney::{eccentricity_error, lucy_sweeney, LucySweeney};
+use super::lucy_sweeney::{eccentricity_error, lucy_sweeney_wald, LucySweeney};
 use super::problem::{
     decode_companion, EccentricityCoordinates, FitData, ParameterLayout, RvProblem,
 };
@@ -247,7 +247,7 @@ pub(crate) struct SolutionContext<'a> {
 /// Builds a [`Solution`] from parameters in E coordinates: covariance from the analytic
 /// Jacobian at the optimum (`(JᵀJ)⁻¹`, see [`covariance_from_jacobian`]) in
 /// (P, K, e cos ω, e sin ω, λ, γ…, trend), derived errors by the delta method, and the
-/// Lucy–Sweeney test with σ_e from [`eccentricity_error`].
+/// Lucy–Sweeney test in the 2-D Wald form ([`lucy_sweeney_wald`]); σ_e from [`eccentricity_error`].
 pub(crate) fn build_solution(ctx: &SolutionContext, params_in: &[f64]) -> Solution {
     let layout = ctx.layout;
     let data = ctx.data;
@@ -333,7 +333,18 @@ pub(crate) fn build_solution(ctx: &SolutionContext, params_in: &[f64]) -> Soluti
             } else {
                 None
             };
-            let lucy = sigma_e.map(|s| lucy_sweeney(e, s, ctx.lucy_sweeney_threshold));
+            // Lucy–Sweeney in the 2-D Wald form, from the full (e cos ω, e sin ω) covariance.
+            let lucy = match (var(ix), covar(ix, iy), var(iy)) {
+                (Some(sxx), Some(sxy), Some(syy)) => Some(lucy_sweeney_wald(
+                    params[ix],
+                    params[iy],
+                    sxx,
+                    sxy,
+                    syy,
+                    ctx.lucy_sweeney_threshold,
+                )),
+                _ => None,
+            };
             let m0_grad = if e > 0.0 {
                 vec![(l, 1.0), (ix, sw / e), (iy, -cw / e)]
             } else {

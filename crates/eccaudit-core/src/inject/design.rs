@@ -10,10 +10,15 @@ use crate::random::stream_rng;
 use crate::table::VelocityTable;
 use rand::RngExt;
 
-/// Default grid of injected eccentricities: 0, 0.05, …, 0.6.
+/// Default grid of injected eccentricities: 0, 0.05, …, 0.6 (each value i/20, the double
+/// nearest the decimal, so it prints as typed).
 pub fn default_eccentricity_grid() -> Vec<f64> {
-    (0..=12).map(|i| i as f64 * 0.05).collect()
+    (0..=12).map(|i| f64::from(i) / 20.0).collect()
 }
+
+/// Trial indices reserved for the extra (adaptive) trials of each cell: cell `c`'s extra trials
+/// are `n_base + c·EXTRA_BLOCK + k`, `k < EXTRA_BLOCK`, after the design's base trials.
+pub const EXTRA_BLOCK: u64 = 1 << 24;
 
 /// Stream index reserved for drawing a random schedule's epochs (trial streams are 0, 1, …;
 /// this one is far above any trial count).
@@ -477,9 +482,26 @@ impl InjectionDesign {
         (0..self.n_cells()).map(|i| self.cell(i)).collect()
     }
 
-    /// The cell of a trial.
+    /// The cell of a trial: base trials `i < n_trials()` belong to cell `i / trials_per_cell`;
+    /// extra trials to the cell of their [`EXTRA_BLOCK`] (see [`InjectionDesign::extra_trials`]).
     pub fn cell_of_trial(&self, trial: u64) -> usize {
-        (trial / self.trials_per_cell as u64) as usize
+        let base = self.n_trials();
+        if trial < base {
+            (trial / self.trials_per_cell as u64) as usize
+        } else {
+            usize::try_from((trial - base) / EXTRA_BLOCK).unwrap_or(usize::MAX)
+        }
+    }
+
+    /// The indices reserved for extra trials of cell `cell` (each with its own random stream).
+    pub fn extra_trials(&self, cell: usize) -> std::ops::Range<u64> {
+        let start = self.n_trials() + cell as u64 * EXTRA_BLOCK;
+        start..start + EXTRA_BLOCK
+    }
+
+    /// True when `trial` is a base trial or an extra trial of an existing cell.
+    pub fn has_trial(&self, trial: u64) -> bool {
+        self.cell_of_trial(trial) < self.n_cells()
     }
 
     /// The reference epoch of the injected mean longitude: the middle of the time span (as in

@@ -37,6 +37,9 @@ pub enum Outcome {
     Estimate(EccentricityEstimate),
     /// The estimator failed; the reason in words.
     Failed(String),
+    /// The estimator was not run on this trial (an extra trial for another estimator's
+    /// calibration); counted neither as an estimate nor as a failure.
+    Skipped,
 }
 
 impl Outcome {
@@ -44,7 +47,7 @@ impl Outcome {
     pub fn estimate(&self) -> Option<&EccentricityEstimate> {
         match self {
             Outcome::Estimate(e) => Some(e),
-            Outcome::Failed(_) => None,
+            Outcome::Failed(_) | Outcome::Skipped => None,
         }
     }
 }
@@ -83,7 +86,7 @@ pub fn simulate_trial(
     design: &InjectionDesign,
     trial: u64,
 ) -> Result<(SimulatedTrial, SimRng), InjectError> {
-    if trial >= design.n_trials() {
+    if !design.has_trial(trial) {
         return Err(InjectError::TrialOutOfRange {
             trial,
             n_trials: design.n_trials(),
@@ -190,8 +193,9 @@ pub fn run_trial(
 }
 
 /// Runs the trials of `trial_range` in order, calling `observer` after each (for progress
-/// reports or streaming), and returns their records. The range is clipped to the design's
-/// trials. The same index always gives the same record, whatever the chunking.
+/// reports or streaming), and returns their records. A range of base trials is clipped to the
+/// design's base trials (a range of extra trials must lie inside one cell's block). The same
+/// index always gives the same record, whatever the chunking.
 pub fn run_trials(
     design: &InjectionDesign,
     estimators: &[&dyn Estimator],
@@ -199,7 +203,11 @@ pub fn run_trials(
     observer: &mut dyn FnMut(&TrialRecord),
 ) -> Result<Vec<TrialRecord>, InjectError> {
     design.validate()?;
-    let end = trial_range.end.min(design.n_trials());
+    let end = if trial_range.start < design.n_trials() {
+        trial_range.end.min(design.n_trials())
+    } else {
+        trial_range.end
+    };
     let mut records = Vec::with_capacity(end.saturating_sub(trial_range.start) as usize);
     for trial in trial_range.start..end {
         let record = run_trial(design, estimators, trial)?;
@@ -318,7 +326,10 @@ pub(crate) mod tests {
             (mean_sq - 1.0).abs() < 4.0 * libm::sqrt(2.0 / n as f64),
             "{mean_sq}"
         );
-        assert!(simulate_trial(&d, d.n_trials()).is_err());
+        // Extra trials of a cell are valid; indices beyond every cell's block are not.
+        assert!(simulate_trial(&d, d.n_trials()).is_ok());
+        let beyond = d.n_trials() + d.n_cells() as u64 * crate::inject::design::EXTRA_BLOCK;
+        assert!(simulate_trial(&d, beyond).is_err());
     }
 
     #[test]

@@ -6,9 +6,7 @@ use serde::Serialize;
 use thiserror::Error;
 
 use super::design::InjectionDesign;
-use crate::fit::{
-    fit_orbit, lucy_sweeney, CompanionFit, FitData, FitError, FitOptions, LUCY_SWEENEY_THRESHOLD,
-};
+use crate::fit::{fit_orbit, CompanionFit, FitData, FitError, FitOptions, LUCY_SWEENEY_THRESHOLD};
 use crate::random::SimRng;
 
 /// z of the two-sided 95% normal interval (common practice).
@@ -158,8 +156,10 @@ impl LeastSquaresSettings {
 /// the orbit eccentric when the 95% interval excludes 0 (ê > 1.96 σ_e).
 ///
 /// Output `lucy_sweeney` (optional): the eccentricity adopted by the test of Lucy & Sweeney
-/// (1971, AJ 76, 544) — ê when p = exp(−ê²/2σ_e²) ≤ 0.05, else 0 — with the same formal
-/// intervals; it calls the orbit eccentric when p ≤ 0.05.
+/// (1971, AJ 76, 544) in the 2-D Wald form — ê when p = exp(−½ zᵀΣ⁻¹z) ≤ 0.05, else 0, with
+/// z = (e cos ω, e sin ω) and Σ its covariance from the fit
+/// ([`crate::fit::lucy_sweeney_wald`]) — with the same formal intervals; it calls the orbit
+/// eccentric when p ≤ 0.05.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct LeastSquaresEstimator {
     /// Its settings.
@@ -239,7 +239,9 @@ impl Estimator for LeastSquaresEstimator {
                     .into(),
                 prior: "none".into(),
                 intervals: intervals.into(),
-                eccentric_call: "Lucy & Sweeney (1971) p = exp(-ê²/2σ_e²) <= 0.05".into(),
+                eccentric_call: "Lucy & Sweeney (1971) p = exp(-W/2) <= 0.05, W = z'Σ⁻¹z of \
+                                 z = (e cos ω, e sin ω)"
+                    .into(),
                 extra_names: vec!["p".into()],
             });
         }
@@ -307,11 +309,13 @@ impl Estimator for LeastSquaresEstimator {
         };
         let mut out = vec![lsq.clone()];
         if self.settings.lucy_sweeney {
-            let test = lucy_sweeney(e_hat, sigma_e, LUCY_SWEENEY_THRESHOLD);
+            // The fit's own test (2-D Wald form); no covariance: p = 1 (nothing decided).
+            let p = companion.lucy_sweeney.map_or(1.0, |t| t.probability);
+            let significant = p <= LUCY_SWEENEY_THRESHOLD;
             out.push(EccentricityEstimate {
-                point: if test.significant { e_hat } else { 0.0 },
-                calls_eccentric: Some(test.significant),
-                extra: vec![test.probability],
+                point: if significant { e_hat } else { 0.0 },
+                calls_eccentric: Some(significant),
+                extra: vec![p],
                 ..lsq
             });
         }

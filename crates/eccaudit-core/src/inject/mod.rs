@@ -9,6 +9,8 @@
 //! the same trait); [`summary`] and [`statement`] turn records into numbers and words;
 //! [`trial_file`] is the text format of the trials (resumable, mergeable).
 
+pub mod adaptive;
+pub mod belt;
 pub mod context;
 pub mod design;
 pub mod engine;
@@ -21,10 +23,11 @@ pub mod trials_ecsv;
 
 use thiserror::Error;
 
+pub use belt::{belt_estimate, Belt, BeltCellInput, BeltEstimate, BeltInterval};
 pub use context::{AuditContext, InstrumentNoise, OtherCompanion};
 pub use design::{
     default_eccentricity_grid, DesignError, GridCell, InjectionDesign, Sampling, Schedule, Spacing,
-    TrialModel,
+    TrialModel, EXTRA_BLOCK,
 };
 pub use engine::{
     run_trial, run_trials, settings_fingerprint, simulate_trial, Outcome, SimulatedTrial,
@@ -36,7 +39,8 @@ pub use estimators::{
 };
 pub use posterior_estimator::PosteriorEstimator;
 pub use statement::{
-    eccentricity_statement, EccentricityStatement, FittedOrbit, MonteCarloP, OutputCalibration,
+    eccentricity_statement, BayesNote, CircularDecision, EccentricityStatement, EstimatorRow,
+    FittedOrbit, LucySweeneyCheck, MonteCarloP,
 };
 pub use summary::{summarise, CellSummary, InjectionSummary, OutputCellSummary, Quantiles, Rate};
 pub use trial_file::{

@@ -333,6 +333,8 @@ mod tests {
             let estimate = match &record.outcomes[median_at] {
                 Outcome::Estimate(e) => e,
                 Outcome::Failed(why) => panic!("trial {}: {why}", record.trial),
+                // Base trials run every estimator.
+                Outcome::Skipped => panic!("trial {}: skipped", record.trial),
             };
             // extra[3] = converged (see `outputs`).
             assert_eq!(

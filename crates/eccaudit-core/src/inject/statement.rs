@@ -1,14 +1,33 @@
-//! The eccentricity statement: each estimator's value on the real data set beside its
-//! simulated bias and scatter at the data's own sampling and fitted orbit, whether a circular
-//! orbit is excluded, and one paragraph of plain text for a paper.
+//! The eccentricity statement: at most three sentences one can quote for the recommended
+//! estimator (its belt-calibrated interval, its measured bias, the calibrated circular-vs-
+//! eccentric decision), a compact table of every estimator, and a short methods paragraph.
+//! Every number is computed from the simulations of this table's fitted orbit and noise, with
+//! its Monte-Carlo error; nothing is quoted from a posterior run that failed its convergence
+//! rule.
 
 use serde::Serialize;
 
+use super::belt::{belt_estimate, Belt, BeltCellInput, BeltEstimate, BeltInterval};
+use super::context::AuditContext;
+use super::design::{GridCell, InjectionDesign};
 use super::engine::TrialRecord;
-use super::estimators::EccentricityEstimate;
-use super::summary::{CellSummary, InjectionSummary};
+use super::estimators::{EccentricityEstimate, OutputInfo};
+use super::summary::{InjectionSummary, Rate};
 use super::InjectError;
 use crate::fit::LUCY_SWEENEY_THRESHOLD;
+use crate::format::grid_value;
+use crate::random::stream_rng;
+
+/// Confidence level of the belt intervals.
+pub const BELT_LEVEL: f64 = 0.95;
+/// Level of the circular-vs-eccentric decision.
+pub const DECISION_ALPHA: f64 = 0.05;
+/// z of the two-sided 95% normal interval (common practice).
+const Z95: f64 = 1.959_963_984_540_054;
+/// Bootstrap resamples for the Monte-Carlo errors of the recommended interval's ends.
+pub const BOOTSTRAP_RESAMPLES: usize = 20;
+/// Random stream of the bootstrap (trials use 0, 1, …; the real data u64::MAX − 1).
+const BOOTSTRAP_STREAM: u64 = u64::MAX - 2;
 
 /// The fitted orbit of the real data the simulations were made at.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -19,56 +38,210 @@ pub struct FittedOrbit {
     pub semi_amplitude: f64,
     /// Fitted ω [rad] (used only when the design has an ω axis).
     pub omega: f64,
-    /// Lucy–Sweeney p of the fitted eccentricity, when computed.
+    /// Lucy–Sweeney p of the fitted eccentricity (2-D Wald form), when computed.
     pub lucy_sweeney_p: Option<f64>,
 }
 
-/// A Monte-Carlo p-value (k + 1)/(n + 1) of k exceedances in n simulations (Davison & Hinkley
-/// 1997, Bootstrap Methods and their Application, eq. 4.11; from memory).
+/// A Monte-Carlo p-value (k + 1)/(n + 1) of k simulations at least as extreme as the data in
+/// n (Davison & Hinkley 1997, Bootstrap Methods and their Application, eq. 4.11; from memory),
+/// with its binomial standard error and the Wilson (1927, JASA 22, 209) 95% interval of k/n.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct MonteCarloP {
     /// (k + 1)/(n + 1).
     pub value: f64,
-    /// Simulations with an estimate at least the observed one.
+    /// Simulations at least as extreme as the data.
     pub exceedances: usize,
     /// Simulations.
     pub n: usize,
+    /// √(p(1 − p)/n).
+    pub standard_error: f64,
+    /// Wilson 95% interval of k/n.
+    pub wilson95: [f64; 2],
 }
 
-/// One output's calibrated value.
+/// The Wilson score interval of a binomial share k/n at normal quantile z (Wilson 1927, JASA
+/// 22, 209): (k + z²/2 ± z √(k(n − k)/n + z²/4)) / (n + z²).
+pub fn wilson_interval(k: usize, n: usize, z: f64) -> [f64; 2] {
+    if n == 0 {
+        return [0.0, 1.0];
+    }
+    let (k, n) = (k as f64, n as f64);
+    let z2 = z * z;
+    let centre = (k + 0.5 * z2) / (n + z2);
+    let half = z * libm::sqrt(k * (n - k) / n + 0.25 * z2) / (n + z2);
+    [(centre - half).max(0.0), (centre + half).min(1.0)]
+}
+
+impl MonteCarloP {
+    /// From k exceedances in n simulations.
+    pub fn new(k: usize, n: usize) -> Self {
+        let value = (k + 1) as f64 / (n + 1) as f64;
+        MonteCarloP {
+            value,
+            exceedances: k,
+            n,
+            standard_error: libm::sqrt(value * (1.0 - value) / n.max(1) as f64),
+            wilson95: wilson_interval(k, n, Z95),
+        }
+    }
+
+    /// True when the Wilson interval lies wholly on one side of `alpha`: more simulations would
+    /// not change the decision at that level (at 95% confidence).
+    pub fn resolves(&self, alpha: f64) -> bool {
+        self.wilson95[1] < alpha || self.wilson95[0] > alpha
+    }
+}
+
+/// The statistic of the circular-vs-eccentric decision.
 #[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct OutputCalibration {
+pub struct DecisionStatistic {
+    /// Index of the output it is read from.
+    pub output: usize,
+    /// What it is, in words.
+    pub description: String,
+    /// True when smaller values are more eccentric (a p-value).
+    pub smaller_is_extreme: bool,
+}
+
+/// The decision statistic of a set of outputs: the Wald statistic W = zᵀΣ⁻¹z of the
+/// least-squares fit, read as its asymptotic p = exp(−W/2) from the `lucy_sweeney` output
+/// (monotone in W); without that output, the least-squares ê itself.
+pub fn decision_statistic(outputs: &[OutputInfo]) -> Option<DecisionStatistic> {
+    if let Some(i) = outputs
+        .iter()
+        .position(|o| o.name == "lucy_sweeney" && o.extra_names.first().is_some_and(|n| n == "p"))
+    {
+        return Some(DecisionStatistic {
+            output: i,
+            description: "the Wald statistic W = zᵀΣ⁻¹z of the least-squares (e cos ω, e sin ω) \
+                          and its covariance"
+                .into(),
+            smaller_is_extreme: true,
+        });
+    }
+    outputs
+        .iter()
+        .position(|o| o.name == "lsq")
+        .map(|i| DecisionStatistic {
+            output: i,
+            description: "the least-squares eccentricity ê".into(),
+            smaller_is_extreme: false,
+        })
+}
+
+impl DecisionStatistic {
+    fn value(&self, e: &EccentricityEstimate) -> f64 {
+        if self.smaller_is_extreme {
+            e.extra.first().copied().unwrap_or(f64::NAN)
+        } else {
+            e.point
+        }
+    }
+
+    /// The Monte-Carlo p of the observed estimate against circular simulations.
+    pub fn p_value(
+        &self,
+        observed: &EccentricityEstimate,
+        circular: &[&TrialRecord],
+    ) -> Option<MonteCarloP> {
+        let t0 = self.value(observed);
+        if !t0.is_finite() {
+            return None;
+        }
+        let sims: Vec<f64> = circular
+            .iter()
+            .filter_map(|r| r.outcomes.get(self.output).and_then(|o| o.estimate()))
+            .map(|e| self.value(e))
+            .filter(|t| !t.is_nan())
+            .collect();
+        if sims.is_empty() {
+            return None;
+        }
+        let k = sims
+            .iter()
+            .filter(|&&t| {
+                if self.smaller_is_extreme {
+                    t <= t0
+                } else {
+                    t >= t0
+                }
+            })
+            .count();
+        Some(MonteCarloP::new(k, sims.len()))
+    }
+}
+
+/// The calibrated circular-vs-eccentric decision.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CircularDecision {
+    /// The statistic, in words.
+    pub statistic: String,
+    /// Its Monte-Carlo p against the circular simulations of the full model.
+    pub p: MonteCarloP,
+    /// True when p ≤ 0.05: a circular orbit is excluded at the 5% level.
+    pub circular_excluded: bool,
+    /// True when more simulations would not change the decision (Wilson interval clear of 0.05).
+    pub resolved: bool,
+}
+
+/// The Lucy–Sweeney test beside its false-alarm rate measured at this sampling.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct LucySweeneyCheck {
+    /// Asymptotic p = exp(−W/2) of the real data.
+    pub p: f64,
+    /// Share of the circular simulations with p ≤ 0.05 (nominally 5%).
+    pub false_alarm_rate: Rate,
+}
+
+/// One estimator's row of the table.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct EstimatorRow {
     /// Output name.
     pub name: String,
     /// What it is.
     pub label: String,
     /// Its prior.
     pub prior: String,
-    /// How its intervals are made.
-    pub intervals: String,
-    /// The estimate on the real data.
-    pub observed: EccentricityEstimate,
-    /// The injected e nearest the observed value, where bias and scatter are quoted.
-    pub nearest_true_e: f64,
-    /// Simulated bias there (mean estimate − true e).
+    /// The estimate on the real data (None when its run failed or did not converge).
+    pub value: Option<f64>,
+    /// Why no value is quoted, when none is.
+    pub value_note: Option<String>,
+    /// The belt-calibrated 95% interval on the true e (from all its simulations).
+    pub interval: Option<BeltInterval>,
+    /// Bootstrap Monte-Carlo errors of the interval's ends (recommended estimator only).
+    pub interval_errors: Option<BeltEstimate>,
+    /// The injected e nearest the value, where bias, RMSE and coverage are quoted.
+    pub at_true_e: f64,
+    /// Simulations there.
+    pub n_at_true_e: usize,
+    /// Bias there (mean estimate − true e).
     pub bias: f64,
     /// Its Monte-Carlo standard error.
     pub bias_standard_error: f64,
-    /// Simulated scatter there (standard deviation of the estimates).
-    pub scatter: f64,
-    /// Share of circular injections giving an estimate ≥ the observed one, when the grid has
-    /// e = 0.
-    pub circular_exceedance: Option<MonteCarloP>,
-    /// Lowest and highest injected e whose central 95% range of estimates (2.5–97.5%) contains
-    /// the observed value: a confidence set by inverting the simulated distributions on the
-    /// grid (the confidence belt of Neyman 1937, Phil. Trans. R. Soc. A 236, 333).
-    pub belt95: Option<(f64, f64)>,
-    /// True when the observed value lies above the 97.5% point of the largest injected e, so
-    /// the set is open above the grid.
-    pub belt95_open_above: bool,
+    /// RMSE there.
+    pub rmse: f64,
+    /// Coverage of the estimator's own 95% intervals there.
+    pub coverage95: Option<Rate>,
+    /// Share of circular simulations it calls eccentric.
+    pub false_eccentric_rate: Option<Rate>,
+    /// Share of its simulations (all cells) that failed.
+    pub failed: Option<Rate>,
 }
 
-/// The bias-aware statement for the real data.
+/// A Bayes factor quoted, or left out with the reason.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BayesNote {
+    /// The prior.
+    pub prior: String,
+    /// BF₀₁ (circular over eccentric) when quoted.
+    pub bf01: Option<f64>,
+    /// True when BF₀₁ is only an upper bound.
+    pub upper_bound: bool,
+    /// The sentence about it.
+    pub text: String,
+}
+
+/// The statement about the real data.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct EccentricityStatement {
     /// Epochs of the data set.
@@ -77,33 +250,241 @@ pub struct EccentricityStatement {
     pub fitted: FittedOrbit,
     /// The injected K nearest the fitted one (the cells used) [m/s].
     pub semi_amplitude_used: f64,
-    /// Trials per cell.
+    /// Base trials per cell.
     pub trials_per_cell: usize,
+    /// Extra (adaptive) trials run.
+    pub extra_trials: usize,
     /// Master seed.
     pub seed: u64,
-    /// Per output.
-    pub calibrations: Vec<OutputCalibration>,
-    /// Circular orbit excluded at the 5% level by the Lucy–Sweeney test (None: not computed).
-    /// A Bayes factor will join it when posterior estimators are added.
-    pub circular_excluded: Option<bool>,
-    /// A paragraph for a paper.
+    /// The audited companion (1-based) and the companions in the model.
+    pub companion: usize,
+    /// Companions in the model.
+    pub n_companions: usize,
+    /// The recommended output's name.
+    pub recommended: Option<String>,
+    /// How it was chosen.
+    pub recommendation_rule: String,
+    /// Most circular simulations the decision was allowed (the settings' cap).
+    pub max_circular_trials: u64,
+    /// The calibrated circular-vs-eccentric decision.
+    pub decision: Option<CircularDecision>,
+    /// The Lucy–Sweeney test and its measured false-alarm rate.
+    pub lucy_sweeney: Option<LucySweeneyCheck>,
+    /// One row per output with an estimate on the real data.
+    pub rows: Vec<EstimatorRow>,
+    /// Bayes factors quoted or left out.
+    pub bayes: Vec<BayesNote>,
+    /// The quotable sentences (opening warnings, then at most three for the recommended estimator).
+    pub sentences: Vec<String>,
+    /// The methods paragraph.
+    pub methods: String,
+    /// The quotable sentences as one paragraph (what the page copies).
     pub paragraph: String,
 }
 
-fn nearest(values: impl Iterator<Item = f64>, target: f64) -> Option<f64> {
-    values.min_by(|a, b| (a - target).abs().total_cmp(&(b - target).abs()))
+/// The cells the statement uses: the injected K nearest the fitted K (and the ω nearest the
+/// fitted ω when the design has an ω axis), sorted by injected e.
+pub fn statement_cells(design: &InjectionDesign, fitted: &FittedOrbit) -> Vec<GridCell> {
+    let nearest = |values: &[f64], target: f64| {
+        values
+            .iter()
+            .copied()
+            .min_by(|a, b| (a - target).abs().total_cmp(&(b - target).abs()))
+    };
+    let k = nearest(&design.semi_amplitudes, fitted.semi_amplitude);
+    let w = nearest(&design.omegas, fitted.omega);
+    let mut cells: Vec<GridCell> = design
+        .cells()
+        .into_iter()
+        .filter(|c| Some(c.semi_amplitude) == k && c.omega == w)
+        .collect();
+    cells.sort_by(|a, b| a.eccentricity.total_cmp(&b.eccentricity));
+    cells
 }
 
-/// Builds the statement from a run at the data's fitted orbit.
+/// Each cell's estimates of output `output` from `records` (sorted by trial index, so the
+/// result does not depend on the order the trials finished in).
+pub fn estimates_by_cell(
+    cells: &[GridCell],
+    records: &[&TrialRecord],
+    output: usize,
+) -> Vec<Vec<f64>> {
+    let mut sorted: Vec<&TrialRecord> = records.to_vec();
+    sorted.sort_by_key(|r| r.trial);
+    sorted.dedup_by_key(|r| r.trial);
+    cells
+        .iter()
+        .map(|c| {
+            sorted
+                .iter()
+                .filter(|r| r.cell == c.index)
+                .filter_map(|r| r.outcomes.get(output).and_then(|o| o.estimate()))
+                .map(|e| e.point)
+                .filter(|x| x.is_finite())
+                .collect()
+        })
+        .collect()
+}
+
+/// The belt of one output over the statement's cells.
+pub fn output_belt(cells: &[GridCell], per_cell: &[Vec<f64>], x0: f64) -> Option<Belt> {
+    let inputs: Vec<BeltCellInput> = cells
+        .iter()
+        .zip(per_cell)
+        .map(|(c, v)| BeltCellInput {
+            e: c.eccentricity,
+            estimates: v,
+        })
+        .collect();
+    Belt::new(&inputs, BELT_LEVEL, x0)
+}
+
+fn rmse(values: &[f64], truth: f64) -> f64 {
+    libm::sqrt(
+        values
+            .iter()
+            .map(|x| (x - truth) * (x - truth))
+            .sum::<f64>()
+            / values.len() as f64,
+    )
+}
+
+fn mean_sd(values: &[f64]) -> (f64, f64) {
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    let sd = if values.len() > 1 {
+        libm::sqrt(values.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1.0))
+    } else {
+        f64::NAN
+    };
+    (mean, sd)
+}
+
+/// Whether the real-data run of an output can be quoted: it exists and, for a posterior
+/// output, met its convergence criterion.
+fn quotable(info: &OutputInfo, observed: Option<&EccentricityEstimate>) -> Result<f64, String> {
+    let Some(obs) = observed else {
+        return Err("the estimator failed on the data".into());
+    };
+    if let Some(i) = info.extra_names.iter().position(|n| n == "converged") {
+        if obs.extra.get(i) != Some(&1.0) {
+            return Err(
+                "its sampler run on the data did not meet its convergence criterion".into(),
+            );
+        }
+    }
+    if obs.point.is_finite() {
+        Ok(obs.point)
+    } else {
+        Err("the estimate is not finite".into())
+    }
+}
+
+/// The recommendation rule, in words.
+pub const RECOMMENDATION_RULE: &str = "the estimator with the smallest root-mean-square error \
+    averaged over the injected e inside its own calibrated interval, from the base simulations \
+    (the Lucy-Sweeney adopted value, a test, and posterior runs that did not converge on the data \
+    are not candidates)";
+
+/// The recommended output (index) by [`RECOMMENDATION_RULE`], from `base_records` (the base
+/// trials only, so adding extra trials never changes the choice).
+pub fn recommend(
+    outputs: &[OutputInfo],
+    observed: &[Option<EccentricityEstimate>],
+    cells: &[GridCell],
+    base_records: &[&TrialRecord],
+) -> Option<usize> {
+    let mut best: Option<(usize, f64)> = None;
+    for (i, info) in outputs.iter().enumerate() {
+        if info.name == "lucy_sweeney" {
+            continue;
+        }
+        let Ok(x0) = quotable(info, observed.get(i).and_then(Option::as_ref)) else {
+            continue;
+        };
+        let per_cell = estimates_by_cell(cells, base_records, i);
+        let Some(belt) = output_belt(cells, &per_cell, x0) else {
+            continue;
+        };
+        let interval = belt.interval(x0);
+        let inside: Vec<f64> = cells
+            .iter()
+            .zip(&per_cell)
+            .filter(|(c, v)| {
+                v.len() >= 2 && interval.lower <= c.eccentricity && c.eccentricity <= interval.upper
+            })
+            .map(|(c, v)| rmse(v, c.eccentricity))
+            .collect();
+        if inside.is_empty() {
+            continue;
+        }
+        let score = inside.iter().sum::<f64>() / inside.len() as f64;
+        if best.is_none_or(|(_, s)| score < s) {
+            best = Some((i, score));
+        }
+    }
+    best.map(|(i, _)| i)
+}
+
+/// The output the statement quotes: the user's `chosen` one (by name) when given and quotable
+/// on the real data, else none (the statement says why); without a choice, [`recommend`].
+pub fn choose(
+    outputs: &[OutputInfo],
+    observed: &[Option<EccentricityEstimate>],
+    cells: &[GridCell],
+    base_records: &[&TrialRecord],
+    chosen: Option<&str>,
+) -> Option<usize> {
+    match chosen {
+        Some(name) => {
+            let i = outputs.iter().position(|o| o.name == name)?;
+            quotable(&outputs[i], observed.get(i).and_then(Option::as_ref))
+                .ok()
+                .map(|_| i)
+        }
+        None => recommend(outputs, observed, cells, base_records),
+    }
+}
+
+/// The cells of the statement that the recommended output's quoted numbers rest on: those
+/// inside its calibrated interval, one on each side of it, and the one nearest its value
+/// (indices into `cells`), with the index of the nearest.
+pub fn cells_in_use(cells: &[GridCell], interval: &BeltInterval, x0: f64) -> (Vec<usize>, usize) {
+    let inside: Vec<usize> = (0..cells.len())
+        .filter(|&j| {
+            interval.lower <= cells[j].eccentricity && cells[j].eccentricity <= interval.upper
+        })
+        .collect();
+    let nearest = (0..cells.len())
+        .min_by(|&a, &b| {
+            (cells[a].eccentricity - x0)
+                .abs()
+                .total_cmp(&(cells[b].eccentricity - x0).abs())
+        })
+        .unwrap_or(0);
+    let mut used: Vec<usize> = Vec::new();
+    if let (Some(&first), Some(&last)) = (inside.first(), inside.last()) {
+        used.extend(first.saturating_sub(1)..=(last + 1).min(cells.len() - 1));
+    }
+    used.push(nearest);
+    used.sort_unstable();
+    used.dedup();
+    (used, nearest)
+}
+
+/// Builds the statement from the run at the data's fitted orbit.
 ///
 /// `observed` holds one estimate per output of the summary, made on the real data (a `None`
-/// where that estimator failed on it). The cells used are those with the injected K nearest
-/// the fitted K (and, with an ω axis, the ω nearest the fitted ω).
+/// where that estimator failed on it); `records` are all trials (base and extra); those with
+/// index below `design.n_trials()` are the base trials the recommendation is chosen from.
 pub fn eccentricity_statement(
     summary: &InjectionSummary,
     records: &[TrialRecord],
     observed: &[Option<EccentricityEstimate>],
     fitted: FittedOrbit,
+    context: &AuditContext,
+    chosen: Option<&str>,
+    max_circular_trials: u64,
 ) -> Result<EccentricityStatement, InjectError> {
     if observed.len() != summary.outputs.len() {
         return Err(InjectError::Statement(format!(
@@ -113,333 +494,581 @@ pub fn eccentricity_statement(
         )));
     }
     let design = &summary.design;
-    let k_used = nearest(
-        design.semi_amplitudes.iter().copied(),
-        fitted.semi_amplitude,
-    )
-    .ok_or_else(|| InjectError::Statement("the design has no semi-amplitude".into()))?;
-    let omega_used = nearest(design.omegas.iter().copied(), fitted.omega);
-    let mut cells: Vec<&CellSummary> = summary
-        .cells
-        .iter()
-        .filter(|c| c.cell.semi_amplitude == k_used && c.cell.omega == omega_used)
-        .filter(|c| c.n_trials > 0)
-        .collect();
-    cells.sort_by(|a, b| a.cell.eccentricity.total_cmp(&b.cell.eccentricity));
-    if cells.is_empty() {
+    let cells = statement_cells(design, &fitted);
+    let Some(first_cell) = cells.first() else {
+        return Err(InjectError::Statement(
+            "the design has no cell at the fitted semi-amplitude".into(),
+        ));
+    };
+    let semi_amplitude_used = first_cell.semi_amplitude;
+    let all: Vec<&TrialRecord> = records.iter().collect();
+    if !all.iter().any(|r| cells.iter().any(|c| c.index == r.cell)) {
         return Err(InjectError::Statement(
             "no simulated trials at the fitted semi-amplitude".into(),
         ));
     }
-    let mut calibrations = Vec::new();
-    for (index, (info, obs)) in summary.outputs.iter().zip(observed).enumerate() {
-        let Some(obs) = obs else { continue };
-        let value = obs.point;
-        let usable: Vec<&&CellSummary> = cells
+    let n_base = design.n_trials();
+    let base: Vec<&TrialRecord> = all.iter().copied().filter(|r| r.trial < n_base).collect();
+    let extra_trials = {
+        let mut t: Vec<u64> = all
             .iter()
-            .filter(|c| c.outputs[index].n_estimates > 1)
+            .filter(|r| r.trial >= n_base)
+            .map(|r| r.trial)
             .collect();
-        let Some(near) = usable.iter().min_by(|a, b| {
-            (a.cell.eccentricity - value)
-                .abs()
-                .total_cmp(&(b.cell.eccentricity - value).abs())
-        }) else {
+        t.sort_unstable();
+        t.dedup();
+        t.len()
+    };
+    let recommended = choose(&summary.outputs, observed, &cells, &base, chosen);
+    let circular_cell = cells.iter().find(|c| c.eccentricity == 0.0);
+    let circular_records: Vec<&TrialRecord> = match circular_cell {
+        Some(c) => all.iter().copied().filter(|r| r.cell == c.index).collect(),
+        None => Vec::new(),
+    };
+    let decision = decision_statistic(&summary.outputs).and_then(|stat| {
+        let obs = observed.get(stat.output)?.as_ref()?;
+        let p = stat.p_value(obs, &circular_records)?;
+        Some(CircularDecision {
+            statistic: stat.description.clone(),
+            p,
+            circular_excluded: p.value <= DECISION_ALPHA,
+            resolved: p.resolves(DECISION_ALPHA),
+        })
+    });
+    let cell_summary = |cell: &GridCell| summary.cells.iter().find(|c| c.cell.index == cell.index);
+    let lucy_index = summary
+        .outputs
+        .iter()
+        .position(|o| o.name == "lucy_sweeney");
+    let lucy_sweeney = match (fitted.lucy_sweeney_p, lucy_index, circular_cell) {
+        (Some(p), Some(i), Some(c)) => cell_summary(c)
+            .and_then(|s| s.outputs[i].false_eccentric_rate)
+            .map(|rate| LucySweeneyCheck {
+                p,
+                false_alarm_rate: rate,
+            }),
+        _ => None,
+    };
+
+    let mut rows = Vec::new();
+    for (i, (info, obs)) in summary.outputs.iter().zip(observed).enumerate() {
+        let Some(obs) = obs else { continue };
+        let per_cell = estimates_by_cell(&cells, &all, i);
+        let (value, value_note) = match quotable(info, Some(obs)) {
+            Ok(v) => (Some(v), None),
+            Err(why) => (None, Some(why)),
+        };
+        let x0 = obs.point;
+        let belt = output_belt(&cells, &per_cell, x0);
+        let interval = value.and(belt.as_ref()).map(|b| b.interval(x0));
+        let interval_errors = if recommended == Some(i) {
+            let inputs: Vec<BeltCellInput> = cells
+                .iter()
+                .zip(&per_cell)
+                .map(|(c, v)| BeltCellInput {
+                    e: c.eccentricity,
+                    estimates: v,
+                })
+                .collect();
+            let mut rng = stream_rng(design.seed, BOOTSTRAP_STREAM);
+            belt_estimate(&inputs, BELT_LEVEL, x0, BOOTSTRAP_RESAMPLES, &mut rng)
+        } else {
+            None
+        };
+        // Bias etc. at the usable injected e nearest the estimate.
+        let Some(j) = (0..cells.len())
+            .filter(|&j| per_cell[j].len() >= 2)
+            .min_by(|&a, &b| {
+                (cells[a].eccentricity - x0)
+                    .abs()
+                    .total_cmp(&(cells[b].eccentricity - x0).abs())
+            })
+        else {
             continue;
         };
-        let stats = &near.outputs[index];
-        let circular_exceedance = usable.iter().find(|c| c.cell.eccentricity == 0.0).map(|c| {
-            let estimates: Vec<f64> = records
-                .iter()
-                .filter(|r| r.cell == c.cell.index)
-                .filter_map(|r| r.outcomes.get(index).and_then(|o| o.estimate()))
-                .map(|e| e.point)
-                .collect();
-            let k = estimates.iter().filter(|&&e| e >= value).count();
-            MonteCarloP {
-                value: (k + 1) as f64 / (estimates.len() + 1) as f64,
-                exceedances: k,
-                n: estimates.len(),
-            }
-        });
-        let inside: Vec<f64> = usable
+        let (mean, sd) = mean_sd(&per_cell[j]);
+        let n_j = per_cell[j].len();
+        let stats = cell_summary(&cells[j]).map(|s| &s.outputs[i]);
+        let (failed, tried) = cells
             .iter()
-            .filter(|c| {
-                let q = c.outputs[index].quantiles;
-                q.q025 <= value && value <= q.q975
+            .filter_map(&cell_summary)
+            .map(|s| {
+                (
+                    s.outputs[i].n_failed,
+                    s.outputs[i].n_failed + s.outputs[i].n_estimates,
+                )
             })
-            .map(|c| c.cell.eccentricity)
-            .collect();
-        let top = usable.last().expect("usable is not empty");
-        calibrations.push(OutputCalibration {
+            .fold((0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
+        rows.push(EstimatorRow {
             name: info.name.clone(),
             label: info.label.clone(),
             prior: info.prior.clone(),
-            intervals: info.intervals.clone(),
-            observed: obs.clone(),
-            nearest_true_e: near.cell.eccentricity,
-            bias: stats.bias,
-            bias_standard_error: stats.bias_standard_error,
-            scatter: stats.scatter,
-            circular_exceedance,
-            belt95: inside.first().zip(inside.last()).map(|(lo, hi)| (*lo, *hi)),
-            belt95_open_above: value > top.outputs[index].quantiles.q975,
+            value,
+            value_note,
+            interval,
+            interval_errors,
+            at_true_e: cells[j].eccentricity,
+            n_at_true_e: n_j,
+            bias: mean - cells[j].eccentricity,
+            bias_standard_error: sd / libm::sqrt(n_j as f64),
+            rmse: rmse(&per_cell[j], cells[j].eccentricity),
+            coverage95: stats.and_then(|s| s.coverage95),
+            false_eccentric_rate: circular_cell
+                .and_then(&cell_summary)
+                .and_then(|s| s.outputs[i].false_eccentric_rate),
+            failed: Rate::of(failed, tried),
         });
     }
-    let circular_excluded = fitted.lucy_sweeney_p.map(|p| p <= LUCY_SWEENEY_THRESHOLD);
+    let bayes = bayes_notes(&summary.outputs, observed);
     let mut statement = EccentricityStatement {
         n_epochs: design.sampling.n_epochs(),
         fitted,
-        semi_amplitude_used: k_used,
+        semi_amplitude_used,
         trials_per_cell: design.trials_per_cell,
+        extra_trials,
         seed: design.seed,
-        calibrations,
-        circular_excluded,
+        companion: context.companion,
+        n_companions: context.n_companions,
+        recommended: recommended.map(|i| summary.outputs[i].name.clone()),
+        max_circular_trials,
+        recommendation_rule: match chosen {
+            Some(name) => format!("chosen by the user ({name})"),
+            None => RECOMMENDATION_RULE.into(),
+        },
+        decision,
+        lucy_sweeney,
+        rows,
+        bayes,
+        sentences: Vec::new(),
+        methods: String::new(),
         paragraph: String::new(),
     };
-    statement.paragraph = paragraph(&statement, summary);
+    statement.sentences = sentences(&statement, context);
+    statement.methods = methods(&statement, summary, context);
+    statement.paragraph = statement.sentences.join(" ");
     Ok(statement)
 }
 
-fn grid_text(values: &[f64]) -> String {
-    match values {
-        [] => String::new(),
-        [one] => format!("{one}"),
-        [first, .., last] if values.len() > 3 => {
-            let step = values[1] - values[0];
-            let regular = values
-                .windows(2)
-                .all(|w| ((w[1] - w[0]) - step).abs() < 1e-9);
-            if regular {
-                format!(
-                    "{} to {} in steps of {}",
-                    round_step(*first),
-                    round_step(*last),
-                    round_step(step)
-                )
-            } else {
-                values
-                    .iter()
-                    .map(|v| v.to_string())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            }
-        }
-        _ => values
-            .iter()
-            .map(|v| v.to_string())
-            .collect::<Vec<_>>()
-            .join(", "),
-    }
-}
-
-/// "no prior on e" or "prior on e: …".
-fn prior_text(prior: &str) -> String {
-    if prior.starts_with("none") {
-        "no prior on e".to_string()
-    } else {
-        format!("prior on e: {prior}")
-    }
-}
-
-/// A grid value without the float noise of its arithmetic (six decimals).
-fn round_step(step: f64) -> f64 {
-    (step * 1e6).round() / 1e6
-}
-
-fn paragraph(s: &EccentricityStatement, summary: &InjectionSummary) -> String {
-    let design = &summary.design;
-    let mut text = String::new();
-    let Some(first) = s.calibrations.first() else {
-        return "No estimator produced an eccentricity for these data.".into();
-    };
-    let jitter = if design.jitter > 0.0 {
-        format!(" plus {:.3} m/s of extra Gaussian noise", design.jitter)
-    } else {
-        String::new()
-    };
-    let omega_text = if design.omegas.is_empty() {
-        "random orbital phase and argument of periastron"
-    } else {
-        "random orbital phase"
-    };
-    text.push_str(&format!(
-        "From the {} radial velocities, the {} ({}) is e = {:.3} (68% interval {:.3}-{:.3}; {}). \
-         To calibrate it we simulated our own observing run, with the same epochs and stated \
-         uncertainties{}, {} times for each injected eccentricity (e = {}) at the fitted period \
-         P = {:.4} d and semi-amplitude K = {:.2} m/s, with {}, and estimated e from each \
-         simulation in the same way. ",
-        s.n_epochs,
-        first.label,
-        prior_text(&first.prior),
-        first.observed.point,
-        first.observed.lower68,
-        first.observed.upper68,
-        first.intervals,
-        jitter,
-        s.trials_per_cell,
-        grid_text(&design.eccentricities),
-        s.fitted.period,
-        s.semi_amplitude_used,
-        omega_text,
-    ));
-    for c in &s.calibrations {
-        text.push_str(&format!(
-            "At an injected e = {} the {} ({}) is biased by {:+.3} (Monte-Carlo error {:.3}) \
-             with a scatter of {:.3}",
-            round_step(c.nearest_true_e),
-            c.label,
-            prior_text(&c.prior),
-            c.bias,
-            c.bias_standard_error,
-            c.scatter
-        ));
-        if let Some(p) = c.circular_exceedance {
-            text.push_str(&format!(
-                "; circular orbits gave a value at least as large as ours in {} of {} \
-                 simulations (p = {:.3})",
-                p.exceedances, p.n, p.value
-            ));
-        }
-        match (c.belt95, c.belt95_open_above) {
-            (Some((lo, hi)), false) => text.push_str(&format!(
-                "; injected eccentricities from {} to {} produce our value within their \
-                 central 95% of simulated estimates",
-                round_step(lo),
-                round_step(hi)
-            )),
-            (_, true) => {
-                let lo = c
-                    .belt95
-                    .map_or(design.eccentricities.last().copied().unwrap_or(0.0), |b| {
-                        b.0
-                    });
-                text.push_str(&format!(
-                    "; our value lies above the central 95% of estimates for the largest \
-                     injected e, so the data favour e above {} (beyond the simulated grid)",
-                    round_step(lo)
-                ));
-            }
-            (None, false) => text.push_str(
-                "; no injected eccentricity on the grid produces our value within its central \
-                 95% of simulated estimates",
-            ),
-        }
-        text.push_str(". ");
-    }
-    match (s.fitted.lucy_sweeney_p, s.circular_excluded) {
-        (Some(p), Some(true)) => text.push_str(&format!(
-            "The test of Lucy & Sweeney (1971) gives p = {p:.3}, so a circular orbit is excluded \
-             at the 5% level."
-        )),
-        (Some(p), _) => text.push_str(&format!(
-            "The test of Lucy & Sweeney (1971) gives p = {p:.3}, so a circular orbit is not \
-             excluded at the 5% level."
-        )),
-        (None, _) => {}
-    }
-    // The Savage–Dickey Bayes factor of each posterior estimator (once per prior).
-    for (calibration, info) in s.calibrations.iter().zip(&summary.outputs) {
+fn bayes_notes(
+    outputs: &[OutputInfo],
+    observed: &[Option<EccentricityEstimate>],
+) -> Vec<BayesNote> {
+    let mut notes = Vec::new();
+    for (info, obs) in outputs.iter().zip(observed) {
         let Some(bf_index) = info.extra_names.iter().position(|n| n == "bf01") else {
             continue;
         };
-        if !calibration.name.ends_with("_median") {
+        if !info.name.ends_with("_median") {
             continue;
         }
-        let upper_limit = calibration
-            .observed
-            .extra
-            .get(bf_index + 1)
-            .is_some_and(|&flag| flag == 1.0);
-        match calibration.observed.extra.get(bf_index) {
-            Some(bf01) if bf01.is_finite() && upper_limit => text.push_str(&format!(
-                " Under the prior {}, no posterior sample lies near e = 0, so the Savage–Dickey \
-                 Bayes factor of a circular over an eccentric orbit is only bounded: BF01 < {bf01:.3} \
-                 ({}).",
-                calibration.prior,
-                if *bf01 < 1.0 / 3.0 {
+        let prior = info.prior.clone();
+        let Some(obs) = obs else {
+            notes.push(BayesNote {
+                text: format!(
+                    "No Bayes factor under the prior {prior}: the sampler failed on the data."
+                ),
+                prior,
+                bf01: None,
+                upper_bound: false,
+            });
+            continue;
+        };
+        if let Err(why) = quotable(info, Some(obs)) {
+            notes.push(BayesNote {
+                text: format!("No Bayes factor is quoted under the prior {prior}: {why}."),
+                prior,
+                bf01: None,
+                upper_bound: false,
+            });
+            continue;
+        }
+        let upper_bound = obs.extra.get(bf_index + 1).is_some_and(|&f| f == 1.0);
+        let note = match obs.extra.get(bf_index) {
+            Some(&bf) if bf.is_finite() => {
+                let verdict = if bf < 1.0 / 3.0 {
                     "the data favour an eccentric orbit"
-                } else {
-                    "the bound does not decide between them"
-                }
-            )),
-            Some(bf01) if bf01.is_finite() => text.push_str(&format!(
-                " Under the prior {}, the Savage–Dickey Bayes factor of a circular over an eccentric \
-                 orbit is BF01 = {bf01:.3} ({}).",
-                calibration.prior,
-                if *bf01 < 1.0 / 3.0 {
-                    "the data favour an eccentric orbit"
-                } else if *bf01 > 3.0 {
+                } else if bf > 3.0 && !upper_bound {
                     "the data favour a circular orbit"
                 } else {
                     "the data do not decide between them"
+                };
+                BayesNote {
+                    text: format!(
+                        "Under the prior {prior}, the Savage-Dickey Bayes factor of a circular \
+                         over an eccentric orbit is BF01 {} {bf:.3} ({verdict}; from a converged \
+                         run).",
+                        if upper_bound { "<" } else { "=" }
+                    ),
+                    prior,
+                    bf01: Some(bf),
+                    upper_bound,
                 }
-            )),
-            _ => text.push_str(&format!(
-                " Under the prior {}, the Savage–Dickey Bayes factor is not defined (the prior \
-                 excludes e = 0).",
-                calibration.prior
-            )),
+            }
+            _ => BayesNote {
+                text: format!("No Bayes factor under the prior {prior}: the prior excludes e = 0."),
+                prior,
+                bf01: None,
+                upper_bound: false,
+            },
+        };
+        notes.push(note);
+    }
+    notes
+}
+
+fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
+    let err = |se: f64| {
+        if se.is_finite() {
+            format!(" (±{se:.3})")
+        } else {
+            String::new()
+        }
+    };
+    let (lo_err, hi_err) = errors.map_or((String::new(), String::new()), |e| {
+        (err(e.lower_standard_error), err(e.upper_standard_error))
+    });
+    if i.open_above {
+        // The set reaches the top of the simulated grid: only its lower end is bounded here.
+        return if i.upper_limit {
+            format!(
+                "unbounded over the whole simulated grid (e = 0 to {}; extend the grid)",
+                grid_value(i.upper)
+            )
+        } else {
+            format!(
+                "e > {:.3}{lo_err} (open above: it reaches the top of the simulated grid, e = {}; \
+                 extend the grid to bound it)",
+                i.lower,
+                grid_value(i.upper)
+            )
+        };
+    }
+    let coarse = if i.under_resolved {
+        " (conservative: the injected grid is too coarse to place its ends more closely)"
+    } else {
+        ""
+    };
+    if i.upper_limit {
+        format!("e < {:.3}{hi_err}{coarse}", i.upper)
+    } else {
+        format!(
+            "{:.3}{lo_err} < e < {:.3}{hi_err}{coarse}",
+            i.lower, i.upper
+        )
+    }
+}
+
+/// The estimator the user chose, read back from the statement's rule.
+fn chosen_name(s: &EccentricityStatement) -> Option<&str> {
+    s.recommendation_rule
+        .strip_prefix("chosen by the user (")
+        .and_then(|r| r.strip_suffix(')'))
+}
+
+fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
+    // The model side's opening lines (excess scatter, marginal detections) come first.
+    let mut out: Vec<String> = context
+        .notes
+        .iter()
+        .map(|n| {
+            let n = n.trim();
+            if n.ends_with('.') {
+                n.to_string()
+            } else {
+                format!("{n}.")
+            }
+        })
+        .collect();
+    if context.n_companions > 1 {
+        out.push(format!(
+            "This statement is about companion {} of {} (P = {:.4} d).",
+            context.companion, context.n_companions, s.fitted.period
+        ));
+    }
+    let rec = s
+        .recommended
+        .as_ref()
+        .and_then(|name| s.rows.iter().find(|r| &r.name == name));
+    match rec {
+        Some(r) => {
+            let value = r.value.unwrap_or(f64::NAN);
+            let interval = r.interval.map_or("not available".to_string(), |i| {
+                interval_text(&i, r.interval_errors.as_ref())
+            });
+            let prior = if r.prior.starts_with("none") {
+                String::new()
+            } else {
+                format!(" under a {} prior", r.prior)
+            };
+            out.push(format!(
+                "The {}{prior} gives e = {value:.3}; its 95% confidence interval, calibrated by \
+                 simulations of these {} epochs and uncertainties, is {interval}.",
+                r.label, s.n_epochs
+            ));
+            out.push(format!(
+                "At this sampling it is biased by {:+.3} ± {:.3} at a true e = {} ({} simulations).",
+                r.bias,
+                r.bias_standard_error,
+                grid_value(r.at_true_e),
+                r.n_at_true_e
+            ));
+        }
+        None => out.push(match chosen_name(s) {
+            Some(name) => format!(
+                "The chosen estimator ({name}) gave no value that can be quoted for these data \
+                 (see the table)."
+            ),
+            None => "No estimator gave a value that can be quoted for these data (see the table)."
+                .into(),
+        }),
+    }
+    if let Some(d) = &s.decision {
+        out.push(format!(
+            "Against {} simulated circular orbits, a circular orbit is {}excluded at the 5% level \
+             (p = {:.3} ± {:.3}{}).",
+            d.p.n,
+            if d.circular_excluded { "" } else { "not " },
+            d.p.value,
+            d.p.standard_error,
+            if d.resolved {
+                ""
+            } else {
+                "; the simulations do not resolve p from 0.05"
+            }
+        ));
+    }
+    out
+}
+
+fn methods(
+    s: &EccentricityStatement,
+    summary: &InjectionSummary,
+    context: &AuditContext,
+) -> String {
+    let design = &summary.design;
+    let grid = grid_text(&design.eccentricities);
+    let jitter = if design.jitter > 0.0 {
+        format!(
+            " plus {} m/s of extra Gaussian noise",
+            grid_value(design.jitter)
+        )
+    } else {
+        String::new()
+    };
+    let mut text = format!(
+        "Methods: the observing run was simulated {} times at each injected e = {grid} (plus {} \
+         adaptive trials) at the fitted P = {:.4} d and K = {:.2} m/s, with random phase{}, the \
+         same epochs and uncertainties{jitter}, and each simulation was estimated as the data were. \
+         Intervals invert the simulated confidence belt (Neyman 1937) with the likelihood-ratio \
+         ordering of Feldman & Cousins (1998) on reflected kernel density estimates, linear in e \
+         between grid points; their ends' Monte-Carlo errors come from {} bootstrap resamples. ",
+        s.trials_per_cell,
+        s.extra_trials,
+        s.fitted.period,
+        s.semi_amplitude_used,
+        if design.omegas.is_empty() {
+            " and argument of periastron"
+        } else {
+            ""
+        },
+        BOOTSTRAP_RESAMPLES
+    );
+    if !context.held_fixed.is_empty() {
+        text.push_str(&format!(
+            "The simulations hold fixed {}; {}. ",
+            context.held_fixed.join("; "),
+            context.refit
+        ));
+    }
+    let g = &context.goodness;
+    text.push_str(&format!(
+        "The fit of the data has chi-squared {:.1} for {} degrees of freedom{}; {}. ",
+        g.chi_squared,
+        g.dof,
+        g.p_value
+            .map_or(String::new(), |p| format!(" (p = {p:.3})")),
+        context.jitter_reason.trim_end_matches('.')
+    ));
+    if let Some(fap) = context.detection.false_alarm_probability {
+        text.push_str(&format!(
+            "The period of companion {} was found with false-alarm probability {fap:.2e} \
+             (limit {}). ",
+            context.companion,
+            grid_value(context.detection.fap_limit)
+        ));
+    }
+    if let Some(d) = &s.decision {
+        text.push_str(&format!(
+            "The circular decision is the Monte-Carlo p = (k+1)/(n+1) of {} against the circular \
+             simulations; circular trials were added in batches while the Wilson 95% interval of \
+             p contained 0.05 or its standard error exceeded {}, up to {}. ",
+            d.statistic,
+            grid_value(crate::inject::adaptive::DECISION_TARGET_ERROR),
+            s.max_circular_trials
+        ));
+    }
+    if let Some(ls) = &s.lucy_sweeney {
+        text.push_str(&format!(
+            "The asymptotic Lucy & Sweeney (1971) test in its 2-D Wald form gives p = {:.3}; at \
+             this sampling it fires on {:.1}% ± {:.1}% of circular simulations (nominally 5%). ",
+            ls.p,
+            100.0 * ls.false_alarm_rate.value,
+            100.0 * ls.false_alarm_rate.standard_error
+        ));
+    }
+    let failures: Vec<String> = s
+        .rows
+        .iter()
+        .filter_map(|r| r.failed.filter(|f| f.value > 0.0).map(|f| (r, f)))
+        .map(|(r, f)| {
+            format!(
+                "{} {:.1}% ± {:.1}% of {}",
+                r.name,
+                100.0 * f.value,
+                100.0 * f.standard_error,
+                f.n
+            )
+        })
+        .collect();
+    if !failures.is_empty() {
+        text.push_str(&format!(
+            "Simulations where an estimator failed are left out of its numbers: {}. ",
+            failures.join("; ")
+        ));
+    }
+    text.push_str(&format!("Recommended: {}.", s.recommendation_rule));
+    for b in &s.bayes {
+        text.push(' ');
+        text.push_str(&b.text);
+    }
+    text
+}
+
+/// The grid in words: "0 to 0.6 in steps of 0.05" when regular, else the list.
+fn grid_text(values: &[f64]) -> String {
+    if values.len() > 3 {
+        let step = values[1] - values[0];
+        let regular = values
+            .windows(2)
+            .all(|w| ((w[1] - w[0]) - step).abs() < 1e-9);
+        if regular {
+            return format!(
+                "{} to {} in steps of {}",
+                grid_value(values[0]),
+                grid_value(values[values.len() - 1]),
+                grid_value(step)
+            );
         }
     }
-    text.trim_end().to_string()
+    crate::format::grid_list(values)
+}
+
+fn rate_text(r: &Option<Rate>) -> String {
+    r.map_or("-".into(), |r| {
+        format!("{:.1}±{:.1}%", 100.0 * r.value, 100.0 * r.standard_error)
+    })
 }
 
 impl EccentricityStatement {
-    /// A plain-text layout: one line per output, then the paragraph.
+    /// A plain-text layout: the sentences, the table of every estimator, the methods.
     pub fn text(&self) -> String {
         let mut out = String::new();
         out.push_str(&format!(
-            "Eccentricity statement ({} epochs; simulations at P = {:.4} d, K = {:.2} m/s, {} trials per e, seed {})\n",
+            "Eccentricity statement ({} epochs; simulations at P = {:.4} d, K = {:.2} m/s, {} base trials per e + {} adaptive, seed {})\n\n",
             self.n_epochs,
             self.fitted.period,
             self.semi_amplitude_used,
             self.trials_per_cell,
+            self.extra_trials,
             self.seed
         ));
+        out.push_str(&self.paragraph);
+        out.push_str("\n\n");
         let width = self
-            .calibrations
+            .rows
             .iter()
-            .map(|c| c.name.chars().count())
+            .map(|r| r.name.chars().count() + 2)
             .max()
             .unwrap_or(0)
             .max(9);
         out.push_str(&format!(
-            "  {:<width$} {:>7} {:>15} {:>7} {:>8} {:>7} {:>10} {:>13}\n",
-            "estimator", "value", "68% interval", "at e", "bias", "scatter", "p(circ)", "95% belt"
+            "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7} {:>13} {:>13} {:>13}\n",
+            "estimator",
+            "value",
+            "95% calibrated",
+            "at e",
+            "bias",
+            "RMSE",
+            "coverage95",
+            "false-ecc",
+            "failed"
         ));
-        for c in &self.calibrations {
-            let p = c
-                .circular_exceedance
-                .map_or("-".to_string(), |p| format!("{:.4}", p.value));
-            let belt = match (c.belt95, c.belt95_open_above) {
-                (Some((lo, hi)), false) => format!("{}-{}", round_step(lo), round_step(hi)),
-                (_, true) => "above grid".to_string(),
-                (None, false) => "none".to_string(),
+        for r in &self.rows {
+            let mark = if self.recommended.as_ref() == Some(&r.name) {
+                " *"
+            } else {
+                ""
+            };
+            let value = r.value.map_or("-".into(), |v| format!("{v:.4}"));
+            let interval = r.interval.map_or("-".into(), |i| {
+                let top = if i.open_above { "+" } else { "" };
+                if i.upper_limit {
+                    format!("< {:.3}{top}", i.upper)
+                } else {
+                    format!("{:.3}-{:.3}{top}", i.lower, i.upper)
+                }
+            });
+            let failed = match r.failed {
+                Some(f) if f.value > 0.0 => rate_text(&Some(f)),
+                _ => "0".into(),
             };
             out.push_str(&format!(
-                "  {:<width$} {:>7.4} {:>15} {:>7} {:>+8.4} {:>7.4} {:>10} {:>13}\n",
-                c.name,
-                c.observed.point,
-                format!("{:.3}-{:.3}", c.observed.lower68, c.observed.upper68),
-                round_step(c.nearest_true_e),
-                c.bias,
-                c.scatter,
-                p,
-                belt
+                "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7.4} {:>13} {:>13} {:>13}\n",
+                format!("{}{mark}", r.name),
+                value,
+                interval,
+                grid_value(r.at_true_e),
+                format!("{:+.4}±{:.4}", r.bias, r.bias_standard_error),
+                r.rmse,
+                rate_text(&r.coverage95),
+                rate_text(&r.false_eccentric_rate),
+                failed
             ));
         }
-        if let Some(p) = self.fitted.lucy_sweeney_p {
+        out.push_str("  (* recommended; value '-' : not quoted, see the notes)\n");
+        for r in &self.rows {
+            if let Some(note) = &r.value_note {
+                out.push_str(&format!("  {}: not quoted: {note}.\n", r.name));
+            }
+        }
+        if let Some(d) = &self.decision {
             out.push_str(&format!(
-                "  Lucy-Sweeney p = {p:.4}: circular orbit {}excluded at the 5% level\n",
-                if p <= LUCY_SWEENEY_THRESHOLD {
+                "  circular decision: p = {:.4} ± {:.4} ({} of {} circular simulations at least as \
+                 eccentric; Wilson 95% {:.4}-{:.4}) -> circular {}excluded at 5%\n",
+                d.p.value,
+                d.p.standard_error,
+                d.p.exceedances,
+                d.p.n,
+                d.p.wilson95[0],
+                d.p.wilson95[1],
+                if d.circular_excluded { "" } else { "not " }
+            ));
+        }
+        if let Some(ls) = &self.lucy_sweeney {
+            out.push_str(&format!(
+                "  Lucy-Sweeney (2-D Wald) p = {:.4}: circular {}excluded at 5% by the asymptotic \
+                 test, whose false-alarm rate here is {}\n",
+                ls.p,
+                if ls.p <= LUCY_SWEENEY_THRESHOLD {
                     ""
                 } else {
                     "not "
-                }
+                },
+                rate_text(&Some(ls.false_alarm_rate))
             ));
         }
         out.push('\n');
-        out.push_str(&self.paragraph);
+        out.push_str(&self.methods);
         out.push('\n');
         out
     }
@@ -454,5 +1083,63 @@ mod tests {
         let grid: Vec<f64> = (0..=12).map(|i| i as f64 * 0.05).collect();
         assert_eq!(grid_text(&grid), "0 to 0.6 in steps of 0.05");
         assert_eq!(grid_text(&[0.0, 0.3]), "0, 0.3");
+    }
+
+    #[test]
+    fn wilson_interval_and_monte_carlo_p() {
+        // Wilson (1927) for 5 of 100 at z = 1.96: 0.0215-0.1118 (closed form, computed by hand
+        // from the formula in the doc comment).
+        let [lo, hi] = wilson_interval(5, 100, Z95);
+        assert!(
+            (lo - 0.02154).abs() < 1e-4 && (hi - 0.11175).abs() < 1e-4,
+            "{lo} {hi}"
+        );
+        let p = MonteCarloP::new(4, 99);
+        assert_eq!(p.value, 0.05);
+        assert!(!p.resolves(0.05));
+        assert!(MonteCarloP::new(0, 2000).resolves(0.05));
+        assert!(MonteCarloP::new(800, 2000).resolves(0.05));
+    }
+
+    /// A posterior output whose run on the data did not converge is not quoted, and neither is
+    /// its Bayes factor; a converged one is.
+    #[test]
+    fn unconverged_runs_are_not_quoted() {
+        let info = OutputInfo {
+            name: "posterior_uniform_median".into(),
+            label: "posterior median of e".into(),
+            prior: "uniform on [0, 0.99]".into(),
+            intervals: String::new(),
+            eccentric_call: String::new(),
+            extra_names: vec![
+                "p_e_below_0.05".into(),
+                "bf01".into(),
+                "bf01_is_upper_limit".into(),
+                "converged".into(),
+            ],
+        };
+        let estimate = |converged: f64| EccentricityEstimate {
+            point: 0.12,
+            lower68: 0.05,
+            upper68: 0.2,
+            lower95: 0.0,
+            upper95: 0.3,
+            calls_eccentric: Some(false),
+            extra: vec![0.2, 0.8, 0.0, converged],
+        };
+        let no = estimate(0.0);
+        let yes = estimate(1.0);
+        assert!(quotable(&info, Some(&no))
+            .unwrap_err()
+            .contains("convergence"));
+        assert_eq!(quotable(&info, Some(&yes)), Ok(0.12));
+        let notes = bayes_notes(std::slice::from_ref(&info), &[Some(no)]);
+        assert_eq!(notes[0].bf01, None);
+        assert!(notes[0]
+            .text
+            .contains("did not meet its convergence criterion"));
+        let notes = bayes_notes(&[info], &[Some(yes)]);
+        assert_eq!(notes[0].bf01, Some(0.8));
+        assert!(notes[0].text.contains("BF01 = 0.800"), "{}", notes[0].text);
     }
 }

@@ -5,7 +5,7 @@
 use serde::Serialize;
 
 use super::design::{GridCell, InjectionDesign};
-use super::engine::{settings_fingerprint, TrialRecord};
+use super::engine::{settings_fingerprint, Outcome, TrialRecord};
 use super::estimators::{all_outputs, Estimator, OutputInfo};
 
 /// Width of the histogram bins of the estimates.
@@ -40,6 +40,11 @@ pub struct Rate {
 }
 
 impl Rate {
+    /// `hits` of `n`, or None when `n` is 0.
+    pub fn of(hits: usize, n: usize) -> Option<Self> {
+        Self::new(hits, n)
+    }
+
     fn new(hits: usize, n: usize) -> Option<Self> {
         if n == 0 {
             return None;
@@ -62,6 +67,8 @@ pub struct OutputCellSummary {
     pub n_estimates: usize,
     /// Trials where the estimator failed.
     pub n_failed: usize,
+    /// Share of the trials it was run on that failed.
+    pub failed_share: Option<Rate>,
     /// Mean estimate.
     pub mean: f64,
     /// Bias: mean estimate − true e.
@@ -144,7 +151,10 @@ fn summarise_output(
         .filter_map(|r| r.outcomes.get(index).and_then(|o| o.estimate()))
         .collect();
     let n = estimates.len();
-    let n_failed = records.len() - n;
+    let n_failed = records
+        .iter()
+        .filter(|r| matches!(r.outcomes.get(index), Some(Outcome::Failed(_))))
+        .count();
     let mut points: Vec<f64> = estimates.iter().map(|e| e.point).collect();
     let mean = points.iter().sum::<f64>() / n as f64;
     let scatter = if n > 1 {
@@ -180,6 +190,7 @@ fn summarise_output(
         name: name.to_string(),
         n_estimates: n,
         n_failed,
+        failed_share: Rate::new(n_failed, n + n_failed),
         mean,
         bias: mean - true_e,
         bias_standard_error: scatter / libm::sqrt(n as f64),

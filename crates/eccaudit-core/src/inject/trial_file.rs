@@ -148,23 +148,25 @@ pub fn row_line(record: &TrialRecord, estimators: &[&dyn Estimator]) -> String {
     csv_line(&record_to_csv_row(record, estimators))
 }
 
-/// Sorts by trial index, keeps the first record of each index and drops indices at or beyond
-/// `n_trials`: the normal form of a trial set.
+/// Sorts by trial index and keeps the first record of each index: the normal form of a trial
+/// set. `n_trials` is the planned count of base trials; indices at or beyond it are the extra
+/// (adaptive) trials of [`crate::inject::adaptive`] and are kept (the caller, which knows the
+/// design, drops any whose cell it lacks: `InjectionDesign::has_trial`).
 pub fn normalise_records(records: &mut Vec<TrialRecord>, n_trials: u64) {
-    records.retain(|r| r.trial < n_trials);
+    let _ = n_trials;
     records.sort_by_key(|r| r.trial);
     records.dedup_by_key(|r| r.trial);
 }
 
 /// A complete trial file: first line, header, and `records` in trial order, each index once
-/// (the first of repeated indices), indices at or beyond `n_trials` left out.
+/// (the first of repeated indices); `n_trials` (the base trials planned) goes on the first line.
 pub fn write_trial_file(
     fingerprint: &str,
     n_trials: u64,
     estimators: &[&dyn Estimator],
     records: &[TrialRecord],
 ) -> String {
-    let mut sorted: Vec<&TrialRecord> = records.iter().filter(|r| r.trial < n_trials).collect();
+    let mut sorted: Vec<&TrialRecord> = records.iter().collect();
     sorted.sort_by_key(|r| r.trial);
     sorted.dedup_by_key(|r| r.trial);
     let mut out = file_start(fingerprint, n_trials, estimators);
@@ -425,6 +427,10 @@ pub fn record_to_csv_row(record: &TrialRecord, estimators: &[&dyn Estimator]) ->
                 row.push(format!("failed: {message}"));
                 row.extend((0..6 + output.extra_names.len()).map(|_| String::new()));
             }
+            Outcome::Skipped => {
+                row.push("skipped".into());
+                row.extend((0..6 + output.extra_names.len()).map(|_| String::new()));
+            }
         }
     }
     row
@@ -509,6 +515,8 @@ pub fn record_from_csv_row(
                     calls_eccentric,
                     extra,
                 }));
+        } else if status == "skipped" {
+            record.outcomes.push(Outcome::Skipped);
         } else if let Some(message) = status.strip_prefix("failed: ") {
             record.outcomes.push(Outcome::Failed(message.to_string()));
         } else {
@@ -516,7 +524,7 @@ pub fn record_from_csv_row(
                 line,
                 column: header[i].clone(),
                 value: status.to_string(),
-                reason: "expected `ok` or `failed: …`".into(),
+                reason: "expected `ok`, `skipped` or `failed: …`".into(),
             });
         }
         i += width;

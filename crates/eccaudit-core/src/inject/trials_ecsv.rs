@@ -60,13 +60,17 @@ pub fn trials_ecsv(
         columns.push(EcsvColumn {
             name: format!("{n}_status"),
             unit: None,
-            description: Some(format!("{}: ok, or why it failed", output.label)),
+            description: Some(format!(
+                "{}: ok, why it failed, or skipped (an extra trial this estimator does not run)",
+                output.label
+            )),
             values: EcsvValues::Text(
                 records
                     .iter()
                     .map(|r| match outcome(r) {
                         Some(Outcome::Estimate(_)) => "ok".to_string(),
                         Some(Outcome::Failed(message)) => format!("failed: {message}"),
+                        Some(Outcome::Skipped) => "skipped".to_string(),
                         None => "missing".to_string(),
                     })
                     .collect(),
