@@ -806,8 +806,8 @@ mod tests {
     /// background is exactly its noise (replayed from the trial's stream) to 1e-9 m/s.
     #[test]
     fn simulations_carry_the_fitted_background_of_two_companions_trend_and_offsets() {
-        use crate::fit::problem::keplerian_shape;
         use crate::inject::simulate_trial;
+        use crate::model::keplerian_shape;
         use crate::random::{standard_normal, stream_rng};
         let text = two_companion_table(0.0, 5);
         let table = parse_table(&text, &ReadOptions::new("two.csv")).unwrap();

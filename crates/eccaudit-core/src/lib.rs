@@ -11,6 +11,7 @@ pub mod constants;
 pub mod fit;
 pub mod inject;
 pub mod kepler;
+pub mod lanes;
 pub mod limits;
 pub mod lsq;
 pub mod model;

@@ -2,10 +2,12 @@
 //! optional jitter (Baluev 2009 modified likelihood), χ² goodness of fit, covariance, and the Lucy & Sweeney eccentricity test.
 //!
 //! Split, as in [`crate::lsq`]: [`problem`] is the RV residual problem with its analytic
-//! Jacobian; [`multistart`] is the driver (period search → starts → LM → best → polish →
+//! Jacobian (the model velocities and the parameter layout are [`crate::model`]'s); `data.rs`
+//! holds [`FitData`]; [`multistart`] is the driver (period search → starts → LM → best → polish →
 //! jitter → covariance → Lucy–Sweeney → circular refit); [`report`] holds what is returned;
 //! [`lucy_sweeney`] and [`jitter`] are the two statistical pieces.
 
+mod data;
 pub mod figures;
 pub mod goodness;
 pub mod jitter;
@@ -20,11 +22,13 @@ use thiserror::Error;
 use crate::lsq::{LsqError, LsqOptions};
 use crate::periodogram::{FrequencyLimits, PeriodogramError};
 
+pub use crate::model::{EccentricityCoordinates, ParameterLayout, MAX_ECCENTRICITY};
+pub use data::FitData;
 pub use goodness::{chi_squared_p_value, Goodness, EXCESS_SCATTER_P};
 pub use jitter::JitterMethod;
 pub use lucy_sweeney::{eccentricity_error, lucy_sweeney, LucySweeney, LUCY_SWEENEY_THRESHOLD};
 pub use multistart::{fit_from_start, fit_orbit, StartPoint};
-pub use problem::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
+pub use problem::RvProblem;
 pub use report::{
     CompanionFit, Estimate, FitReport, InstrumentFit, PeriodSearchSummary, Solution, StartOutcome,
 };

@@ -4,17 +4,18 @@
 use nalgebra::{DMatrix as Matrix, DVector};
 
 use super::jitter::{ml_jitter, modified_likelihood_jitter, JitterMethod};
-use super::problem::{
-    convert_coordinates, decode_companion, encode_companion, keplerian_shape,
-    EccentricityCoordinates, ElementsAtEpoch, FitData, ParameterLayout, RvProblem,
-};
 use super::report::{
     build_solution, Adopted, FitReport, PeriodSearchSummary, Solution, SolutionContext,
     StartOutcome,
 };
 use super::{count_distinct_phases, FitError, FitOptions, MIN_DISTINCT_PHASES, PHASE_BIN_CYCLES};
+use super::{FitData, RvProblem};
 use crate::kepler::TWO_PI;
 use crate::lsq::{fit_least_squares_with, LeastSquaresProblem, LmSolver, LsqReport, Termination};
+use crate::model::{
+    convert_coordinates, decode_companion, encode_companion, keplerian_shape,
+    EccentricityCoordinates, ElementsAtEpoch, ParameterLayout,
+};
 use crate::periodogram::{peak_search, GridOptions, PeriodogramOptions};
 use crate::random::stream_rng;
 use rand::RngExt;

@@ -8,14 +8,13 @@ use serde::Serialize;
 use super::goodness::chi_squared_p_value;
 use super::jitter::JitterMethod;
 use super::lucy_sweeney::{eccentricity_error, lucy_sweeney, LucySweeney};
-use super::problem::{
-    decode_companion, EccentricityCoordinates, FitData, ParameterLayout, RvProblem,
-};
+use super::{FitData, RvProblem};
 use crate::constants::{ASTRONOMICAL_UNIT, JUPITER_MASS_IN_SOLAR_MASSES};
 use crate::kepler::{reduce_angle, reduce_angle_signed, TWO_PI};
 use crate::lsq::{
     covariance_from_jacobian, CovarianceStatus, DMatrix, LeastSquaresProblem, Termination,
 };
+use crate::model::{decode_companion, EccentricityCoordinates, ParameterLayout};
 use crate::orbit::OrbitalElements;
 
 const DEG: f64 = 180.0 / core::f64::consts::PI;

@@ -7,7 +7,7 @@
 //! (absent under a circular prior), mean longitude λ = M₀ + ω at the reference epoch t_ref [rad];
 //! then one offset γ per instrument [m/s]; then the linear trend [m/s/d] (optional); then one
 //! jitter s per instrument [m/s] (optional). The first part is exactly the layout of
-//! [`crate::fit::RvProblem`] in √e coordinates, whose model evaluation is reused.
+//! [`crate::model::ParameterModel`] in √e coordinates, whose model evaluation is used.
 //!
 //! # Priors
 //!
@@ -23,8 +23,9 @@ use std::cell::{Cell, RefCell};
 
 use serde::{Deserialize, Serialize};
 
-use crate::fit::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
+use crate::fit::FitData;
 use crate::kepler::TWO_PI;
+use crate::model::{EccentricityCoordinates, ParameterLayout, ParameterModel, MAX_ECCENTRICITY};
 use crate::priors::{
     EccentricityPrior, EccentricityPriorSettings, OrbitPriorSettings, OrbitPriors,
     PreparedScalarPrior, ScalarPrior,
@@ -161,7 +162,8 @@ struct PreparedPriors {
 /// allocates nothing: the model velocities go to a scratch buffer owned by the target.
 #[derive(Debug)]
 pub struct RvPosterior<'a> {
-    problem: RvProblem<'a>,
+    data: &'a FitData,
+    model: ParameterModel<'a>,
     priors: OrbitPriors,
     prepared: PreparedPriors,
     jitter: bool,
@@ -214,7 +216,12 @@ impl<'a> RvPosterior<'a> {
         settings.trend_prior.validate("trend")?;
         let layout = settings.layout(data.n_instruments());
         let n_orbit_params = layout.n_params();
-        let problem = RvProblem::new(data, layout, EccentricityCoordinates::SqrtE);
+        let model = ParameterModel::new(
+            data.shifted_times(),
+            data.instruments(),
+            layout,
+            EccentricityCoordinates::SqrtE,
+        );
         let variances: Vec<f64> = data.uncertainties().iter().map(|s| s * s).collect();
         let fixed_normalisation = -0.5
             * variances
@@ -236,7 +243,8 @@ impl<'a> RvPosterior<'a> {
         }
         let inverse_weight_sums = weight_sums.iter().map(|s| 1.0 / s).collect();
         Ok(Self {
-            problem,
+            data,
+            model,
             priors,
             prepared,
             jitter: settings.jitter,
@@ -289,7 +297,7 @@ impl<'a> RvPosterior<'a> {
         lambda_centres: &[f64],
     ) -> Result<Self, PosteriorError> {
         let mut target = Self::new(data, settings, lambda_centres)?;
-        let layout = target.problem.layout().clone();
+        let layout = target.model.layout().clone();
         target.linear = LinearParameters::Marginalised;
         target.n_sampled_orbit = layout.offsets_start();
         let width = |prior: &ScalarPrior| {
@@ -347,9 +355,9 @@ impl<'a> RvPosterior<'a> {
     /// (bᵀN⁻¹b with b = AᵀWr, ln det N) for weights `w` and residuals `r` in the design of
     /// [`Self::marginalised`]; `sums` holds 3 entries per instrument of scratch.
     fn normal_solution(&self, w: &[f64], r: &[f64], sums: &mut [f64]) -> (f64, f64) {
-        let layout = self.problem.layout();
+        let layout = self.model.layout();
         let n_inst = layout.n_instruments;
-        let data = self.problem.data();
+        let data = self.data;
         sums.fill(0.0);
         let (weight, rest) = sums.split_at_mut(n_inst);
         let (rhs, cross) = rest.split_at_mut(n_inst);
@@ -407,7 +415,7 @@ impl<'a> RvPosterior<'a> {
 
     /// The orbital parameter layout.
     pub fn layout(&self) -> &ParameterLayout {
-        self.problem.layout()
+        self.model.layout()
     }
 
     /// Index of the first jitter in the sampled vector, when sampled.
@@ -422,7 +430,7 @@ impl<'a> RvPosterior<'a> {
 
     /// The log-prior: sum of the independent priors (−∞ outside any support).
     pub fn log_prior(&self, x: &[f64]) -> f64 {
-        let layout = self.problem.layout();
+        let layout = self.model.layout();
         let prepared = &self.prepared;
         let mut lp = 0.0;
         for c in 0..layout.n_companions() {
@@ -466,15 +474,15 @@ impl<'a> RvPosterior<'a> {
         let mut full = self.full.borrow_mut();
         full[..self.n_sampled_orbit].copy_from_slice(&x[..self.n_sampled_orbit]);
         let mut model = self.scratch.borrow_mut();
-        if !self.problem.model_velocities_unchecked(&full, &mut model) {
+        if !self.model.velocities_unchecked(&full, &mut model) {
             return f64::NEG_INFINITY;
         }
-        let data = self.problem.data();
+        let data = self.data;
         let mut scratch = self.linear_scratch.borrow_mut();
         let (sums, weights) = &mut *scratch;
-        let n_inst = self.problem.layout().n_instruments;
+        let n_inst = self.model.layout().n_instruments;
         let n_linear = self.n_orbit_params - self.n_sampled_orbit;
-        if self.problem.layout().trend_index().is_none() {
+        if self.model.layout().trend_index().is_none() {
             // Offsets only: N is diagonal, so one pass gives χ² and the per-instrument sums
             // (Σ w, Σ w r) of the closed form (see [`Self::marginalised`]).
             sums[..2 * n_inst].fill(0.0);
@@ -579,10 +587,10 @@ impl<'a> RvPosterior<'a> {
         let mut model = self.scratch.borrow_mut();
         // A non-finite model velocity makes the sum below non-finite (the data are finite),
         // which is caught at the end instead of by a separate pass.
-        if !self.problem.model_velocities_unchecked(x, &mut model) {
+        if !self.model.velocities_unchecked(x, &mut model) {
             return f64::NEG_INFINITY;
         }
-        let data = self.problem.data();
+        let data = self.data;
         if self.jitter {
             let jitters = &x[self.n_orbit_params..];
             let mut sum = 0.0;
@@ -623,7 +631,7 @@ impl LogDensity for RvPosterior<'_> {
     fn dim(&self) -> usize {
         self.n_sampled_orbit
             + if self.jitter {
-                self.problem.layout().n_instruments
+                self.model.layout().n_instruments
             } else {
                 0
             }
