@@ -23,6 +23,7 @@ pub mod priors;
 pub mod random;
 pub mod sampler;
 pub mod spec;
+pub mod stats;
 pub mod survey;
 pub mod table;
 

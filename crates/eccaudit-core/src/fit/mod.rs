@@ -218,13 +218,14 @@ pub enum FitError {
         /// Bin width [cycles].
         bin: f64,
     },
-    /// The period search failed.
-    #[error("period search for companion {companion}: {source}")]
+    /// The period search failed. The message carries the periodogram's error, so it is not
+    /// also returned as `source()` (an error chain printed in full says it once).
+    #[error("period search for companion {companion}: {error}")]
     PeriodSearch {
         /// 1-based companion number.
         companion: usize,
         /// The periodogram's error.
-        source: PeriodogramError,
+        error: PeriodogramError,
     },
     /// Every start failed before the search began (e.g. non-finite model at all starts).
     #[error("no start could be fitted: {0}")]
@@ -259,6 +260,22 @@ pub fn count_distinct_phases(times: &[f64], period: f64) -> usize {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_period_search_error_says_its_cause_once() {
+        let error = FitError::PeriodSearch {
+            companion: 2,
+            error: PeriodogramError::TooFewEpochs {
+                n_epochs: 3,
+                minimum: 4,
+            },
+        };
+        assert_eq!(
+            error.to_string(),
+            "period search for companion 2: too few epochs for a periodogram: 3 given, at least 4 needed"
+        );
+        assert!(std::error::Error::source(&error).is_none());
+    }
 
     #[test]
     fn distinct_phases() {
