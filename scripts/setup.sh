@@ -18,31 +18,13 @@ cd "$(dirname "$0")/.."
 
 log() { printf '[setup] %s\n' "$*" >&2; }
 
-# Debian packages: `apt-get update` once, before the first install of this run.
-APT_UPDATED=0
-apt_ensure() {
-  local missing=() p
-  for p in "$@"; do
-    dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q 'install ok installed' || missing+=("$p")
-  done
-  [[ ${#missing[@]} -eq 0 ]] && return 0
-  if [[ $APT_UPDATED -eq 0 ]]; then
-    log "apt-get update"
-    apt-get update -qq
-    APT_UPDATED=1
-  fi
-  log "apt-get install ${missing[*]}"
-  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "${missing[@]}" >/dev/null
-}
+# apt_ensure PACKAGE… and wasm_bindgen_version CARGO_LOCK.
+. scripts/setup-common.sh
 
 NO_BROWSER=0
 [[ "${1:-}" == "--no-browser" ]] && NO_BROWSER=1
 
-WB_VERSION="$(awk '
-  /^\[\[package\]\]/ { inpkg = 0 }
-  /^name = "wasm-bindgen"$/ { inpkg = 1; next }
-  inpkg && /^version = / { gsub(/"/, "", $3); print $3; exit }
-' Cargo.lock)"
+WB_VERSION="$(wasm_bindgen_version Cargo.lock)"
 [[ -n "$WB_VERSION" ]] || { log "no wasm-bindgen in Cargo.lock"; exit 1; }
 
 ENV_FILE=target/wasm-env.sh

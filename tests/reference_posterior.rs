@@ -12,9 +12,9 @@ use eccaudit_core::posterior::{
     default_prior_set, kl_divergence_binned, prior_sensitivity, savage_dickey_ball_ratio,
     BayesFactorStatus, SensitivityReport, SensitivitySettings,
 };
-use eccaudit_core::priors::regularized_incomplete_beta;
 use eccaudit_core::random::{normal, standard_normal, stream_rng};
 use eccaudit_core::sampler::{SamplerSettings, Steer};
+use eccaudit_core::stats::regularized_incomplete_beta;
 use rand::RngExt;
 
 /// A simulated single-instrument table: `n` irregular epochs over `span` days.

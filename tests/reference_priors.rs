@@ -15,11 +15,12 @@ use std::ops::ControlFlow;
 
 use approx::assert_relative_eq;
 use eccaudit_core::priors::{
-    regularized_incomplete_beta, EccentricityPrior, EccentricityPriorSettings, EccentricityShape,
-    OrbitPriorSettings, ScalarPrior,
+    EccentricityPrior, EccentricityPriorSettings, EccentricityShape, OrbitPriorSettings,
+    ScalarPrior,
 };
 use eccaudit_core::random::stream_rng;
 use eccaudit_core::sampler::{diagnose, run_ensemble, DensityFn, SamplerSettings};
+use eccaudit_core::stats::regularized_incomplete_beta;
 use rand::RngExt;
 
 const KS_P_THRESHOLD: f64 = 1e-3;

@@ -570,6 +570,104 @@ pub fn trial_model(data: &FitData, fit: &ModelFit, audited: usize) -> TrialModel
     }
 }
 
+/// How the injected semi-amplitudes of [`table_design`] are chosen.
+#[derive(Debug, Clone, PartialEq)]
+pub enum InjectedAmplitudes {
+    /// The fitted K of the audited companion.
+    Fitted,
+    /// These K [m/s].
+    Given(Vec<f64>),
+    /// These K/σ, σ the design's median uncertainty with the jitter
+    /// ([`InjectionDesign::signal_to_noise`]).
+    OverSigma(Vec<f64>),
+}
+
+/// What an injection run on a table takes from its settings rather than from the fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TableDesignGrid {
+    /// Injected eccentricities; empty = [`crate::inject::default_eccentricity_grid`].
+    pub eccentricities: Vec<f64>,
+    /// Injected ω [deg]; empty = random per trial.
+    pub omegas_deg: Vec<f64>,
+    /// Known extra noise [m/s] added in quadrature to every uncertainty.
+    pub added_noise: f64,
+    /// Trials per grid cell.
+    pub trials_per_cell: usize,
+    /// Master seed (also the fit's).
+    pub seed: u64,
+    /// The injected semi-amplitudes.
+    pub semi_amplitudes: InjectedAmplitudes,
+}
+
+/// Why [`table_design`] failed; each message says what, and the fit's names the table.
+#[derive(Debug, Clone, PartialEq, Error)]
+pub enum TableDesignError {
+    /// The model settings are invalid.
+    #[error("{0}")]
+    Model(ModelSpecError),
+    /// The fit of the table failed.
+    #[error("fit of `{table}`: {error}")]
+    Fit {
+        /// The table's name.
+        table: String,
+        /// The fit's error.
+        error: FitError,
+    },
+    /// The design is invalid.
+    #[error("{0}")]
+    Design(InjectError),
+}
+
+/// The injection design of `inject FILE` (command line and Python): `model` (its audited
+/// companion, else companion 1) fitted to `table` with the grid's seed, the audited companion's
+/// period, the rest of the model of each simulation ([`trial_model`]), and the injected K
+/// (fitted, given, or K/σ); returns the fit with the design.
+pub fn table_design(
+    table: &VelocityTable,
+    model: &ModelSpec,
+    grid: &TableDesignGrid,
+) -> Result<(ModelFit, InjectionDesign), TableDesignError> {
+    let model = model.validate().map_err(TableDesignError::Model)?;
+    let audited = model.audited()[0];
+    let data = FitData::from_table(table);
+    let base = FitOptions {
+        seed: grid.seed,
+        ..FitOptions::default()
+    };
+    let fit = fit_model(&data, &model, &base).map_err(|error| TableDesignError::Fit {
+        table: table.source_name().to_string(),
+        error,
+    })?;
+    let companion = &fit.report.eccentric.companions[audited];
+    let mut design = InjectionDesign {
+        sampling: Sampling::from_table(table),
+        period: companion.period.value,
+        eccentricities: if grid.eccentricities.is_empty() {
+            default_eccentricity_grid()
+        } else {
+            grid.eccentricities.clone()
+        },
+        semi_amplitudes: vec![1.0],
+        omegas: grid.omegas_deg.iter().map(|d| d.to_radians()).collect(),
+        jitter: grid.added_noise,
+        trials_per_cell: grid.trials_per_cell,
+        seed: grid.seed,
+        model: TrialModel::default(),
+    };
+    design.validate().map_err(TableDesignError::Design)?;
+    design.model = trial_model(&data, &fit, audited);
+    design.semi_amplitudes = match &grid.semi_amplitudes {
+        InjectedAmplitudes::Fitted => vec![companion.semi_amplitude.value],
+        InjectedAmplitudes::Given(k) => k.clone(),
+        InjectedAmplitudes::OverSigma(ratios) => {
+            let unit = design.signal_to_noise(1.0);
+            ratios.iter().map(|r| r / unit).collect()
+        }
+    };
+    design.validate().map_err(TableDesignError::Design)?;
+    Ok((fit, design))
+}
+
 impl AuditPlan {
     /// Fit `table` and fix the simulation design of the first audited companion (the one of
     /// `settings.model.audit_companion`, else companion 1). [`AuditPlan::all`] gives every
@@ -913,6 +1011,42 @@ mod tests {
 
     /// However the trials are split into ranges, the report is the same.
     #[test]
+    fn table_design_takes_period_and_k_from_the_fit_or_from_the_grid() {
+        // The design of `inject FILE` on a demo table: the fitted period and K by default; K/σ
+        // turns into K through the design's own σ (its definition); a bad grid is refused.
+        let text = include_str!("../../../demo-data/corvin4-eccentric.tsv");
+        let table = parse_table(text, &ReadOptions::new("corvin4-eccentric.tsv")).unwrap();
+        let model = ModelSpec {
+            audit_companion: Some(1),
+            ..ModelSpec::DEFAULT
+        };
+        let mut grid = TableDesignGrid {
+            eccentricities: Vec::new(),
+            omegas_deg: vec![30.0],
+            added_noise: 0.0,
+            trials_per_cell: 3,
+            seed: 4,
+            semi_amplitudes: InjectedAmplitudes::Fitted,
+        };
+        let (fit, design) = table_design(&table, &model, &grid).unwrap();
+        let c = &fit.report.eccentric.companions[0];
+        assert_eq!(design.period, c.period.value);
+        assert_eq!(design.semi_amplitudes, vec![c.semi_amplitude.value]);
+        assert_eq!(design.eccentricities, default_eccentricity_grid());
+        assert_eq!(design.omegas, vec![30f64.to_radians()]);
+        grid.semi_amplitudes = InjectedAmplitudes::OverSigma(vec![2.0, 5.0]);
+        let (_, scaled) = table_design(&table, &model, &grid).unwrap();
+        for (k, ratio) in scaled.semi_amplitudes.iter().zip([2.0, 5.0]) {
+            assert!((scaled.signal_to_noise(*k) - ratio).abs() < 1e-12);
+        }
+        grid.trials_per_cell = 0;
+        assert!(matches!(
+            table_design(&table, &model, &grid),
+            Err(TableDesignError::Design(_))
+        ));
+    }
+
+    #[test]
     fn split_runs_give_the_same_report() {
         let text = include_str!("../../../demo-data/corvin4-eccentric.tsv");
         let table = parse_table(text, &ReadOptions::new("corvin4-eccentric.tsv")).unwrap();
@@ -1006,8 +1140,8 @@ mod tests {
     /// background is exactly its noise (replayed from the trial's stream) to 1e-9 m/s.
     #[test]
     fn simulations_carry_the_fitted_background_of_two_companions_trend_and_offsets() {
-        use crate::fit::problem::keplerian_shape;
         use crate::inject::simulate_trial;
+        use crate::model::keplerian_shape;
         use crate::random::{standard_normal, stream_rng};
         let text = two_companion_table(0.0, 5);
         let table = parse_table(&text, &ReadOptions::new("two.csv")).unwrap();

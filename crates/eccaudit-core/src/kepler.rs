@@ -7,13 +7,12 @@
 use core::f64::consts::PI;
 
 mod bench;
-mod lanes;
 mod trig;
 
+pub(crate) use crate::lanes::{LaneMask, Lanes, Real};
 #[cfg(test)]
 use bench::*;
 pub use bench::{benchmark_inputs, solve_all};
-pub(crate) use lanes::{LaneMask, Lanes, Real};
 use trig::*;
 
 /// 2π.
@@ -511,6 +510,7 @@ pub(crate) fn true_anomaly_cos_sin_prepared(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::lanes::Isa;
     use approx::assert_relative_eq;
 
     #[test]
@@ -619,13 +619,16 @@ mod tests {
                 .iter()
                 .map(|&(m, e)| eccentric_anomaly_or_nan(m, e))
                 .sum();
-            // The portable four-lane path, the eight-lane shape (AVX2 on x86-64 when the
-            // processor has it, else plain code), and whatever solve_all dispatches to.
-            for lanes in [
-                solve_all_lanes::<4>(chunk),
-                solve_all_lanes::<8>(chunk),
-                solve_all(chunk),
-            ] {
+            // Four and eight lanes in plain code, every instruction set this processor offers,
+            // and whatever solve_all dispatches to.
+            let mut results = vec![solve_all_lanes::<4>(chunk), solve_all_lanes::<8>(chunk)];
+            results.extend(
+                Isa::available()
+                    .into_iter()
+                    .map(|isa| solve_all_on(isa, chunk)),
+            );
+            results.push(solve_all(chunk));
+            for lanes in results {
                 assert!(same(lanes, scalar), "{chunk:?}: {lanes} vs {scalar}");
             }
         }

@@ -12,6 +12,7 @@ pub mod fit;
 pub mod format;
 pub mod inject;
 pub mod kepler;
+pub mod lanes;
 pub mod limits;
 pub mod lsq;
 pub mod model;
@@ -23,6 +24,7 @@ pub mod priors;
 pub mod random;
 pub mod sampler;
 pub mod spec;
+pub mod stats;
 pub mod survey;
 pub mod table;
 

@@ -1,11 +1,23 @@
 //! The radial-velocity model: v(t) = Σ_companions K [cos(ν + ω) + e cos ω] + γ_instrument +
 //! trend · (t − t_ref), evaluated at one time or over slices without allocating.
+//!
+//! One evaluator computes every companion's true anomaly at many epochs (`keplerian.rs`, on the
+//! Kepler solver's lanes); it serves both forms of the model: [`RvModel`] (elements with the
+//! time of periastron, absolute times) and [`ParameterModel`] (the fit's parameter vector with
+//! the mean longitude at a reference epoch; `parameters.rs`), which the least-squares problem,
+//! the posterior and the injection engine share.
 
-use crate::kepler::{
-    eccentric_anomaly_reduced, eccentric_anomaly_reduced_fast, true_anomaly_cos_sin_lanes,
-    true_anomaly_cos_sin_prepared, Eccentricity, LaneMask, Lanes, TWO_PI,
+mod keplerian;
+pub mod parameters;
+
+use keplerian::{FromPeriastron, Keplerian};
+pub use parameters::{
+    convert_coordinates, decode_companion, encode_companion, keplerian_shape, DecodedCompanion,
+    EccentricityCoordinates, ElementsAtEpoch, ParameterLayout, ParameterModel, MAX_ECCENTRICITY,
 };
-use crate::orbit::{phase_cycles_with_frequency, OrbitalElements};
+
+use crate::lanes::Isa;
+use crate::orbit::OrbitalElements;
 
 /// Errors of model construction and evaluation.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -46,10 +58,7 @@ pub enum ModelError {
 /// One companion with the constants of its velocity term precomputed.
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct PreparedCompanion {
-    frequency: f64,
-    time_of_periastron: f64,
-    eccentricity: Eccentricity,
-    sqrt_one_minus_e2: f64,
+    keplerian: Keplerian<FromPeriastron>,
     k_cos_omega: f64,
     k_sin_omega: f64,
     k_e_cos_omega: f64,
@@ -60,55 +69,31 @@ impl PreparedCompanion {
         let k = elements.semi_amplitude();
         let (sin_w, cos_w) = libm::sincos(elements.omega());
         let e = elements.eccentricity().value();
-        PreparedCompanion {
+        let phase = FromPeriastron {
             frequency: 1.0 / elements.period(),
             time_of_periastron: elements.time_of_periastron(),
-            eccentricity: elements.eccentricity(),
-            sqrt_one_minus_e2: libm::sqrt((1.0 - e) * (1.0 + e)),
+        };
+        PreparedCompanion {
+            keplerian: Keplerian::new(phase, elements.eccentricity()),
             k_cos_omega: k * cos_w,
             k_sin_omega: k * sin_w,
             k_e_cos_omega: k * e * cos_w,
         }
     }
 
-    /// K [cos(ν + ω) + e cos ω] = K cos ω cos ν − K sin ω sin ν + K e cos ω.
+    /// K [cos(ν + ω) + e cos ω] = K cos ω cos ν − K sin ω sin ν + K e cos ω, from (cos ν, sin ν).
     #[inline(always)]
-    fn velocity(&self, time: f64) -> f64 {
-        let mean_anomaly =
-            TWO_PI * phase_cycles_with_frequency(time, self.frequency, self.time_of_periastron);
-        let anomaly = eccentric_anomaly_reduced(mean_anomaly, self.eccentricity);
-        let (cos_nu, sin_nu) = true_anomaly_cos_sin_prepared(
-            &anomaly,
-            self.eccentricity.value(),
-            self.sqrt_one_minus_e2,
-        );
+    fn velocity_from(&self, cos_nu: f64, sin_nu: f64) -> f64 {
         self.k_cos_omega * cos_nu - self.k_sin_omega * sin_nu + self.k_e_cos_omega
     }
 
-    /// [`Self::velocity`] at `N` times at once, on the solver's branch-free common path; the
-    /// mask says which lanes are valid (the others need [`Self::velocity`]). Same operations as
-    /// the scalar code, so a valid lane has exactly its bits.
+    /// [`Self::velocity_from`] at `time`.
     #[inline(always)]
-    fn velocity_lanes<const N: usize>(&self, times: &[f64; N]) -> (Lanes<N>, LaneMask<N>) {
-        let mean_anomaly = Lanes(core::array::from_fn(|i| {
-            TWO_PI * phase_cycles_with_frequency(times[i], self.frequency, self.time_of_periastron)
-        }));
-        let e = self.eccentricity.value();
-        let (_, sin_e, cos_e, valid) = eccentric_anomaly_reduced_fast(mean_anomaly, e);
-        let (cos_nu, sin_nu) = true_anomaly_cos_sin_lanes(sin_e, cos_e, e, self.sqrt_one_minus_e2);
-        (
-            cos_nu * self.k_cos_omega - sin_nu * self.k_sin_omega + self.k_e_cos_omega,
-            valid,
-        )
+    fn velocity(&self, time: f64) -> f64 {
+        let (cos_nu, sin_nu) = self.keplerian.true_anomaly(time);
+        self.velocity_from(cos_nu, sin_nu)
     }
 }
-
-/// How many times the slice evaluations handle side by side (two SSE2 registers of two lanes).
-const MODEL_LANES: usize = 4;
-
-/// The lane count of the slice evaluations on x86-64 processors with AVX2.
-#[cfg(target_arch = "x86_64")]
-const MODEL_LANES_AVX2: usize = 8;
 
 /// A radial-velocity model: Keplerian companions, one velocity offset γ per instrument
 /// (indexed 0, 1, …), and a linear trend [m/s/d] about the reference time t_ref [d].
@@ -188,105 +173,35 @@ impl RvModel {
         self.prepared.iter().map(|c| c.velocity(time)).sum()
     }
 
-    /// [`Self::keplerian_velocity`] at `N` times at once (bit for bit the same values).
-    #[inline(always)]
-    fn keplerian_velocity_lanes<const N: usize>(&self, times: &[f64; N]) -> [f64; N] {
+    /// Fills `out[i]` with the model velocity at `times[i]` with offset `offset_at(i)`, the
+    /// companions' velocities evaluated by [`Keplerian::for_each_group_on`] on `isa`; the
+    /// lengths are equal (checked by the callers). Each sum is formed in the order of
+    /// [`Self::velocity`] (companions in order from the same zero, then γ, then the trend), so
+    /// every value has exactly the bits of the point evaluation.
+    #[inline]
+    fn fill_velocities_on(
+        &self,
+        isa: Isa,
+        times: &[f64],
+        out: &mut [f64],
+        offset_at: impl Fn(usize) -> f64,
+    ) {
         // The scalar path sums with `Iterator::sum`; start from the same zero it starts from.
         let zero: f64 = core::iter::empty::<f64>().sum();
-        let mut total = Lanes([zero; N]);
-        let mut valid = LaneMask([u64::MAX; N]);
+        out.fill(zero);
         for companion in &self.prepared {
-            let (velocity, companion_valid) = companion.velocity_lanes(times);
-            total = total + velocity;
-            valid = valid & companion_valid;
+            companion
+                .keplerian
+                .for_each_group_on(isa, times, |start, cos_nu, sin_nu| {
+                    let group = &mut out[start..start + cos_nu.len()];
+                    for ((slot, &cos), &sin) in group.iter_mut().zip(cos_nu).zip(sin_nu) {
+                        *slot += companion.velocity_from(cos, sin);
+                    }
+                });
         }
-        let mut velocities = total.0;
-        if !valid.all() {
-            for (i, (velocity, &time)) in velocities.iter_mut().zip(times).enumerate() {
-                if !valid.lane(i) {
-                    *velocity = self.keplerian_velocity(time);
-                }
-            }
+        for (i, (slot, &time)) in out.iter_mut().zip(times).enumerate() {
+            *slot = *slot + offset_at(i) + self.trend * (time - self.reference_time);
         }
-        velocities
-    }
-
-    /// Fills `out[i]` with the model velocity at `times[i]` with offset `offset_at(i)`, `N` times
-    /// at once; the lengths are equal (checked by the callers).
-    #[inline(always)]
-    fn fill_velocities<const N: usize>(
-        &self,
-        times: &[f64],
-        out: &mut [f64],
-        offset_at: impl Fn(usize) -> f64,
-    ) {
-        // The last, partial group is padded with copies of its first time; those lanes are
-        // dropped (a lane has exactly the bits of the scalar path, so padding changes nothing).
-        for (group, (time_chunk, out_chunk)) in times.chunks(N).zip(out.chunks_mut(N)).enumerate() {
-            let start = group * N;
-            let chunk_times: [f64; N] =
-                core::array::from_fn(|i| *time_chunk.get(i).unwrap_or(&time_chunk[0]));
-            let keplerian = self.keplerian_velocity_lanes(&chunk_times);
-            for (i, slot) in out_chunk.iter_mut().enumerate() {
-                *slot = keplerian[i]
-                    + offset_at(start + i)
-                    + self.trend * (chunk_times[i] - self.reference_time);
-            }
-        }
-    }
-
-    /// [`Self::fill_velocities`] with the lane count suited to the processor: eight lanes with
-    /// AVX-512F or AVX2 (detected at run time; the same IEEE operations, so the same bits), else four.
-    fn fill_velocities_dispatch(
-        &self,
-        times: &[f64],
-        out: &mut [f64],
-        offset_at: impl Fn(usize) -> f64,
-    ) {
-        #[cfg(target_arch = "x86_64")]
-        {
-            if std::is_x86_feature_detected!("avx512f") {
-                // SAFETY: the processor supports AVX-512F, checked just above.
-                unsafe { self.fill_velocities_avx512(times, out, offset_at) };
-                return;
-            }
-            if std::is_x86_feature_detected!("avx2") {
-                // SAFETY: the processor supports AVX2, checked just above.
-                unsafe { self.fill_velocities_avx2(times, out, offset_at) };
-                return;
-            }
-        }
-        self.fill_velocities::<MODEL_LANES>(times, out, offset_at);
-    }
-
-    /// [`Self::fill_velocities`] compiled for AVX-512F (eight lanes in one register).
-    ///
-    /// # Safety
-    /// The processor must support AVX-512F.
-    #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx512f")]
-    unsafe fn fill_velocities_avx512(
-        &self,
-        times: &[f64],
-        out: &mut [f64],
-        offset_at: impl Fn(usize) -> f64,
-    ) {
-        self.fill_velocities::<MODEL_LANES_AVX2>(times, out, offset_at);
-    }
-
-    /// [`Self::fill_velocities`] compiled for AVX2.
-    ///
-    /// # Safety
-    /// The processor must support AVX2.
-    #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2")]
-    unsafe fn fill_velocities_avx2(
-        &self,
-        times: &[f64],
-        out: &mut [f64],
-        offset_at: impl Fn(usize) -> f64,
-    ) {
-        self.fill_velocities::<MODEL_LANES_AVX2>(times, out, offset_at);
     }
 
     /// Full model velocity [m/s] at `time` [d] for instrument `instrument`.
@@ -322,7 +237,9 @@ impl RvModel {
             });
         }
         // Indices were checked above, so the lookup cannot fail.
-        self.fill_velocities_dispatch(times, out, |i| self.offsets[instruments[i]]);
+        self.fill_velocities_on(Isa::detected(), times, out, |i| {
+            self.offsets[instruments[i]]
+        });
         Ok(())
     }
 
@@ -335,7 +252,7 @@ impl RvModel {
     ) -> Result<(), ModelError> {
         check_length("output buffer", times.len(), out.len())?;
         let gamma = self.offset(instrument)?;
-        self.fill_velocities_dispatch(times, out, |_| gamma);
+        self.fill_velocities_on(Isa::detected(), times, out, |_| gamma);
         Ok(())
     }
 }
@@ -364,8 +281,8 @@ mod tests {
 
     #[test]
     fn lane_slice_evaluations_give_the_bits_of_point_evaluations() {
-        // The lane paths (four lanes, eight lanes, and the run-time dispatch) must reproduce the
-        // one-time-at-a-time model bit for bit: ordinary times, a companion with e = 0.999999
+        // The lane paths (every instruction set and group size, and the run-time dispatch) must
+        // reproduce the one-time-at-a-time model bit for bit: ordinary times, a companion with e = 0.999999
         // sampled just after periastron (mean anomalies 1e-9 to 1e-3), a NaN time (a lane that
         // falls back to the scalar path), and the scalar remainder.
         let near_parabolic = OrbitalElements::new(50.0, 20.0, 0.999_999, 2.0, 1000.0).unwrap();
@@ -392,17 +309,21 @@ mod tests {
             .map(|i| model.velocity(times[i], instruments[i]).unwrap())
             .collect();
         let offset_at = |i: usize| model.offsets()[instruments[i]];
-        let mut four = vec![0.0; n];
-        model.fill_velocities::<4>(&times, &mut four, offset_at);
-        let mut eight = vec![0.0; n];
-        model.fill_velocities::<8>(&times, &mut eight, offset_at);
         let mut dispatched = vec![0.0; n];
         model
             .velocities(&times, &instruments, &mut dispatched)
             .unwrap();
         for i in 0..n {
-            for got in [four[i], eight[i], dispatched[i]] {
-                assert!(same(got, expected[i]), "time {}", times[i]);
+            assert!(same(dispatched[i], expected[i]), "time {}", times[i]);
+        }
+        // Every instruction set this processor offers, at lengths that use every group size.
+        for isa in Isa::available() {
+            for len in [1, 7, 12, 30, 33, n] {
+                let mut lanes = vec![0.0; len];
+                model.fill_velocities_on(isa, &times[..len], &mut lanes, offset_at);
+                for i in 0..len {
+                    assert!(same(lanes[i], expected[i]), "{isa:?}, time {}", times[i]);
+                }
             }
         }
         let mut one = vec![0.0; n];

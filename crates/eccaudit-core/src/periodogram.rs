@@ -31,7 +31,7 @@
 use serde::Serialize;
 use thiserror::Error;
 
-use crate::kepler::Lanes;
+use crate::lanes::Lanes;
 
 mod epochs;
 mod fap;

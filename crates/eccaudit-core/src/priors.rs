@@ -30,6 +30,8 @@ use std::fmt;
 use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
+use crate::stats::{ln_beta, regularized_incomplete_beta};
+
 /// Impossible prior settings, with the offending values.
 #[derive(Debug, Clone, PartialEq, Error)]
 pub enum PriorError {
@@ -514,57 +516,6 @@ fn bisect_cdf(cdf: impl Fn(f64) -> f64, target: f64, lo: f64, hi: f64) -> f64 {
         }
     }
     0.5 * (lo + hi)
-}
-
-/// ln B(a, b) from `libm::lgamma`.
-fn ln_beta(a: f64, b: f64) -> f64 {
-    libm::lgamma(a) + libm::lgamma(b) - libm::lgamma(a + b)
-}
-
-/// The regularised incomplete beta function I_x(a, b), by its continued
-/// fraction evaluated with the modified Lentz method (Press et al. 2007,
-/// Numerical Recipes, 3rd ed., §6.4, eq. 6.4.5), using the symmetry
-/// I_x(a, b) = 1 − I_{1−x}(b, a) where the fraction converges faster.
-pub fn regularized_incomplete_beta(a: f64, b: f64, x: f64) -> f64 {
-    if x <= 0.0 {
-        return 0.0;
-    }
-    if x >= 1.0 {
-        return 1.0;
-    }
-    let ln_front = a * libm::log(x) + b * libm::log1p(-x) - ln_beta(a, b);
-    let front = libm::exp(ln_front);
-    if x < (a + 1.0) / (a + b + 2.0) {
-        front * beta_continued_fraction(a, b, x) / a
-    } else {
-        1.0 - front * beta_continued_fraction(b, a, 1.0 - x) / b
-    }
-}
-
-fn beta_continued_fraction(a: f64, b: f64, x: f64) -> f64 {
-    const TINY: f64 = 1e-300;
-    let guard = |v: f64| if v.abs() < TINY { TINY } else { v };
-    let (qab, qap, qam) = (a + b, a + 1.0, a - 1.0);
-    let mut c = 1.0;
-    let mut d = 1.0 / guard(1.0 - qab * x / qap);
-    let mut h = d;
-    for m in 1..=500 {
-        let m = m as f64;
-        let m2 = 2.0 * m;
-        let aa = m * (b - m) * x / ((qam + m2) * (a + m2));
-        d = 1.0 / guard(1.0 + aa * d);
-        c = guard(1.0 + aa / c);
-        h *= d * c;
-        let aa = -(a + m) * (qab + m) * x / ((a + m2) * (qap + m2));
-        d = 1.0 / guard(1.0 + aa * d);
-        c = guard(1.0 + aa / c);
-        let step = d * c;
-        h *= step;
-        if (step - 1.0).abs() < 1e-16 {
-            break;
-        }
-    }
-    h
 }
 
 /// A prior on one non-negative or real scalar parameter, with explicit bounds.

@@ -22,7 +22,7 @@ use eccaudit_core::fit::figures::{phase_fold, search_periodogram};
 use eccaudit_core::fit::FitData;
 use eccaudit_core::inject::{
     csv_header, record_to_csv_row, run_trial, summarise, Estimator, InjectionDesign,
-    InjectionSummary, Sampling, TrialRecord,
+    InjectionSummary, TrialRecord,
 };
 use eccaudit_core::posterior::{assemble_sensitivity_report, sensitivity_run, sensitivity_start};
 use eccaudit_core::spec::fit_model;
@@ -392,8 +392,7 @@ fn inject(
     let request: InjectRequest = serde_json::from_str(settings_json).map_err(value_error)?;
     let inner = &table.inner;
     let result = run_with_progress(py, threads, progress, |control| {
-        let sampling = Sampling::from_table(inner);
-        let design = request.design(inner, sampling)?;
+        let design = request.design(inner)?;
         let (lsq, posteriors) = request.estimators(&design)?;
         let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
             .chain(posteriors.iter().map(|p| p as &dyn Estimator))

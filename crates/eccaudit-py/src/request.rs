@@ -4,13 +4,14 @@
 
 use serde::Deserialize;
 
-use eccaudit_core::audit::{trial_model, PosteriorInjectionSettings};
-use eccaudit_core::fit::{FitData, FitOptions};
-use eccaudit_core::inject::{
-    default_eccentricity_grid, InjectionDesign, LeastSquaresEstimator, LeastSquaresSettings,
-    PosteriorEstimator, Sampling, TrialModel, TrialPeriod,
+use eccaudit_core::audit::{
+    table_design, InjectedAmplitudes, PosteriorInjectionSettings, TableDesignGrid,
 };
-use eccaudit_core::spec::{fit_model, JitterMode, Model, ModelSpec};
+use eccaudit_core::fit::FitOptions;
+use eccaudit_core::inject::{
+    InjectionDesign, LeastSquaresEstimator, LeastSquaresSettings, PosteriorEstimator, TrialPeriod,
+};
+use eccaudit_core::spec::{JitterMode, Model, ModelSpec};
 use eccaudit_core::table::VelocityTable;
 
 /// The model flags every fitting command shares (`--companions --period --trend --jitter
@@ -157,13 +158,9 @@ impl Default for InjectRequest {
 }
 
 impl InjectRequest {
-    /// The design, as `eccaudit inject FILE` builds it: the model fitted to the table (audited
-    /// companion first), its period, and its K unless `k` or `k_over_sigma` is given.
-    pub fn design(
-        &self,
-        table: &VelocityTable,
-        sampling: Sampling,
-    ) -> Result<InjectionDesign, String> {
+    /// The design, as `eccaudit inject FILE` builds it: the core's [`table_design`] (the model
+    /// fitted to the table, its period, and its K unless `k` or `k_over_sigma` is given).
+    pub fn design(&self, table: &VelocityTable) -> Result<InjectionDesign, String> {
         if !self.k.is_empty() && !self.k_over_sigma.is_empty() {
             return Err("give k or k_over_sigma, not both".into());
         }
@@ -174,44 +171,22 @@ impl InjectRequest {
             self.jitter,
             (self.min_period, self.max_period, self.max_fap),
             Some(1),
-        )
-        .validate()
-        .map_err(|e| e.to_string())?;
-        let data = FitData::from_table(table);
-        let base = FitOptions {
-            seed: self.seed,
-            ..FitOptions::default()
-        };
-        let fit = fit_model(&data, &model, &base)
-            .map_err(|e| format!("fit of `{}`: {e}", table.source_name()))?;
-        let trial = trial_model(&data, &fit, 0);
-        let companion = &fit.report.eccentric.companions[0];
-        let mut design = InjectionDesign {
-            sampling,
-            period: companion.period.value,
-            eccentricities: if self.e.is_empty() {
-                default_eccentricity_grid()
-            } else {
-                self.e.clone()
-            },
-            semi_amplitudes: vec![1.0],
-            omegas: self.omega_deg.iter().map(|d| d.to_radians()).collect(),
-            jitter: self.added_noise,
+        );
+        let grid = TableDesignGrid {
+            eccentricities: self.e.clone(),
+            omegas_deg: self.omega_deg.clone(),
+            added_noise: self.added_noise,
             trials_per_cell: self.trials,
             seed: self.seed,
-            model: TrialModel::default(),
+            semi_amplitudes: if !self.k.is_empty() {
+                InjectedAmplitudes::Given(self.k.clone())
+            } else if !self.k_over_sigma.is_empty() {
+                InjectedAmplitudes::OverSigma(self.k_over_sigma.clone())
+            } else {
+                InjectedAmplitudes::Fitted
+            },
         };
-        design.validate().map_err(|e| e.to_string())?;
-        design.model = trial;
-        design.semi_amplitudes = if !self.k.is_empty() {
-            self.k.clone()
-        } else if !self.k_over_sigma.is_empty() {
-            let unit = design.signal_to_noise(1.0);
-            self.k_over_sigma.iter().map(|r| r / unit).collect()
-        } else {
-            vec![companion.semi_amplitude.value]
-        };
-        design.validate().map_err(|e| e.to_string())?;
+        let (_, design) = table_design(table, &model, &grid).map_err(|e| e.to_string())?;
         Ok(design)
     }
 

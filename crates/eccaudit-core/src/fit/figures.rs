@@ -9,11 +9,12 @@ use serde::Serialize;
 use thiserror::Error;
 
 use super::multistart::centred_velocities;
-use super::problem::{decode_companion, EccentricityCoordinates, FitData, ParameterLayout};
 use super::report::Solution;
+use super::FitData;
 use super::FitOptions;
 use crate::kepler::reduce_angle_signed;
 use crate::model::RvModel;
+use crate::model::{decode_companion, EccentricityCoordinates, ParameterLayout};
 use crate::orbit::OrbitalElements;
 use crate::periodogram::{
     periodogram, GridOptions, Periodogram, PeriodogramError, PeriodogramOptions,

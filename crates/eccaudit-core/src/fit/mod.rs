@@ -2,10 +2,12 @@
 //! optional jitter (Baluev 2009 modified likelihood), χ² goodness of fit, covariance, and the Lucy & Sweeney eccentricity test.
 //!
 //! Split, as in [`crate::lsq`]: [`problem`] is the RV residual problem with its analytic
-//! Jacobian; [`multistart`] is the driver (period search → starts → LM → best → polish →
+//! Jacobian (the model velocities and the parameter layout are [`crate::model`]'s); `data.rs`
+//! holds [`FitData`]; [`multistart`] is the driver (period search → starts → LM → best → polish →
 //! jitter → covariance → Lucy–Sweeney → circular refit); [`report`] holds what is returned;
 //! [`lucy_sweeney`] and [`jitter`] are the two statistical pieces.
 
+mod data;
 pub mod figures;
 pub mod goodness;
 pub mod jitter;
@@ -20,13 +22,15 @@ use thiserror::Error;
 use crate::lsq::{LsqError, LsqOptions};
 use crate::periodogram::{FrequencyLimits, PeriodogramError};
 
+pub use crate::model::{EccentricityCoordinates, ParameterLayout, MAX_ECCENTRICITY};
+pub use data::FitData;
 pub use goodness::{chi_squared_p_value, Goodness, EXCESS_SCATTER_P};
 pub use jitter::JitterMethod;
 pub use lucy_sweeney::{
     eccentricity_error, lucy_sweeney, lucy_sweeney_wald, LucySweeney, LUCY_SWEENEY_THRESHOLD,
 };
 pub use multistart::{fit_from_start, fit_orbit, StartPoint};
-pub use problem::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
+pub use problem::RvProblem;
 pub use report::{
     CompanionFit, Estimate, FitReport, InstrumentFit, PeriodSearchSummary, Solution, StartOutcome,
 };
@@ -216,13 +220,14 @@ pub enum FitError {
         /// Bin width [cycles].
         bin: f64,
     },
-    /// The period search failed.
-    #[error("period search for companion {companion}: {source}")]
+    /// The period search failed. The message carries the periodogram's error, so it is not
+    /// also returned as `source()` (an error chain printed in full says it once).
+    #[error("period search for companion {companion}: {error}")]
     PeriodSearch {
         /// 1-based companion number.
         companion: usize,
         /// The periodogram's error.
-        source: PeriodogramError,
+        error: PeriodogramError,
     },
     /// Every start failed before the search began (e.g. non-finite model at all starts).
     #[error("no start could be fitted: {0}")]
@@ -257,6 +262,22 @@ pub fn count_distinct_phases(times: &[f64], period: f64) -> usize {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_period_search_error_says_its_cause_once() {
+        let error = FitError::PeriodSearch {
+            companion: 2,
+            error: PeriodogramError::TooFewEpochs {
+                n_epochs: 3,
+                minimum: 4,
+            },
+        };
+        assert_eq!(
+            error.to_string(),
+            "period search for companion 2: too few epochs for a periodogram: 3 given, at least 4 needed"
+        );
+        assert!(std::error::Error::source(&error).is_none());
+    }
 
     #[test]
     fn distinct_phases() {

@@ -4,17 +4,18 @@
 use nalgebra::{DMatrix as Matrix, DVector};
 
 use super::jitter::{ml_jitter, modified_likelihood_jitter, JitterMethod};
-use super::problem::{
-    convert_coordinates, decode_companion, encode_companion, keplerian_shape,
-    EccentricityCoordinates, ElementsAtEpoch, FitData, ParameterLayout, RvProblem,
-};
 use super::report::{
     build_solution, Adopted, FitReport, PeriodSearchSummary, Solution, SolutionContext,
     StartOutcome,
 };
 use super::{count_distinct_phases, FitError, FitOptions, MIN_DISTINCT_PHASES, PHASE_BIN_CYCLES};
+use super::{FitData, RvProblem};
 use crate::kepler::TWO_PI;
 use crate::lsq::{fit_least_squares_with, LeastSquaresProblem, LmSolver, LsqReport, Termination};
+use crate::model::{
+    convert_coordinates, decode_companion, encode_companion, keplerian_shape,
+    EccentricityCoordinates, ElementsAtEpoch, ParameterLayout,
+};
 use crate::periodogram::{peak_search, GridOptions, PeriodogramOptions};
 use crate::random::stream_rng;
 use rand::RngExt;
@@ -390,169 +391,43 @@ pub fn fit_orbit(data: &FitData, options: &FitOptions) -> Result<FitReport, FitE
     let n_inst = data.n_instruments();
     let max_params = ParameterLayout::new(options.n_companions, n_inst, options.trend).n_params();
     let mut solver = LmSolver::new(max_params, data.n_points());
-    let mut period_search = Vec::new();
-    let mut starts_out: Vec<StartOutcome> = Vec::new();
+    let mut search = Search::default();
     let mut previous: Vec<f64> = Vec::new();
-    let mut warnings = Vec::new();
     let mut last_stage_range = 0..0;
     let mut stage_best: Option<StageBest> = None;
     for c in 0..options.n_companions {
-        let layout = ParameterLayout::new(c + 1, n_inst, options.trend);
-        let candidates = candidate_periods(data, options, c, &previous, &mut period_search)?;
-        let problem = RvProblem::new(data, layout.clone(), EccentricityCoordinates::SqrtE);
-        let stage_start = starts_out.len();
-        let mut best: Option<StageBest> = None;
-        let mut first_error = None;
-        for (p_index, &period) in candidates.iter().enumerate() {
-            for start in start_grid(options, period, (c * 1000 + p_index) as u64) {
-                let outcome = |chi2: f64, p: f64, e: f64, converged: bool| StartOutcome {
-                    companion: c + 1,
-                    start_period: start.period,
-                    start_eccentricity: start.eccentricity,
-                    start_omega_deg: start.omega.to_degrees(),
-                    chi_squared: chi2,
-                    period: p,
-                    eccentricity: e,
-                    converged,
-                    reached_best: false,
-                };
-                let Some(initial) =
-                    linear_start(data, &layout, &previous, start, options.n_phase_scan)
-                else {
-                    starts_out.push(outcome(f64::NAN, f64::NAN, f64::NAN, false));
-                    continue;
-                };
-                match fit_least_squares_with(
-                    &mut solver,
-                    &problem,
-                    &initial,
-                    None,
-                    &options.start_lsq,
-                ) {
-                    Ok(report) => {
-                        let comp = decode_companion(
-                            &layout,
-                            EccentricityCoordinates::SqrtE,
-                            &report.params,
-                            c,
-                        );
-                        starts_out.push(outcome(
-                            report.chi_squared,
-                            comp.period,
-                            comp.eccentricity,
-                            report.converged() || report.termination.at_machine_precision(),
-                        ));
-                        if report.chi_squared.is_finite()
-                            && best
-                                .as_ref()
-                                .is_none_or(|b| report.chi_squared < b.chi_squared)
-                        {
-                            best = Some(StageBest {
-                                params: report.params,
-                                chi_squared: report.chi_squared,
-                            });
-                        }
-                    }
-                    Err(err) => {
-                        first_error.get_or_insert(err);
-                        starts_out.push(outcome(f64::NAN, f64::NAN, f64::NAN, false));
-                    }
-                }
-            }
-        }
-        let Some(best) = best else {
-            return Err(match first_error {
-                Some(err) => FitError::NoStart(err),
-                None => FitError::InvalidOption {
-                    name: "starts",
-                    value: format!("{candidates:?}"),
-                    reason: "no start gave a finite model",
-                },
-            });
-        };
-        for s in &mut starts_out[stage_start..] {
-            s.reached_best = (s.chi_squared - best.chi_squared).abs() <= SAME_MINIMUM;
-        }
-        last_stage_range = stage_start..starts_out.len();
+        let stage_start = search.starts.len();
+        let best = fit_companion(data, options, c, &previous, &mut solver, &mut search)?;
+        last_stage_range = stage_start..search.starts.len();
         previous.clone_from(&best.params);
         stage_best = Some(best);
     }
     let best = stage_best.expect("at least one companion");
     let layout = ParameterLayout::new(options.n_companions, n_inst, options.trend);
+    let refiner = Refiner { data, options };
+    let mut warnings = Vec::new();
 
-    // Polish in (e cos ω, e sin ω).
+    // Polish in (e cos ω, e sin ω), with the jitter when asked for.
     let polish_start = convert_coordinates(
         &layout,
         EccentricityCoordinates::SqrtE,
         EccentricityCoordinates::E,
         &best.params,
     );
-    let singular_tolerance = options.lsq.singular_tolerance;
-    let refine = |solver: &mut LmSolver, layout: &ParameterLayout, start: &[f64]| {
-        refine_with_jitter(solver, data, layout, start, options)
-    };
-    let eccentric_fit = refine(&mut solver, &layout, &polish_start)?;
-    let make = |layout: &ParameterLayout, fit: &Refined| {
-        build_solution(
-            &SolutionContext {
-                data,
-                layout,
-                jitter: fit.jitter.as_deref(),
-                jitter_iterations: fit.jitter.as_ref().map(|_| fit.jitter_iterations),
-                jitter_converged: fit.jitter_converged,
-                jitter_method: options.jitter_method,
-                termination: fit.termination,
-                stellar_mass: options.stellar_mass,
-                lucy_sweeney_threshold: options.lucy_sweeney_threshold,
-                singular_tolerance,
-            },
-            &fit.params,
-        )
-    };
-    let eccentric = make(&layout, &eccentric_fit);
+    let eccentric_fit = refiner.refine(&mut solver, &layout, &polish_start)?;
+    let eccentric = refiner.solution(&layout, &eccentric_fit);
     note_solution(&eccentric, "eccentric solution", &mut warnings);
 
-    // Lucy–Sweeney: refit circular where the eccentricity is not significant.
-    let circular_flags: Vec<bool> = eccentric
-        .companions
-        .iter()
-        .map(|c| c.lucy_sweeney.is_some_and(|ls| !ls.significant))
-        .collect();
-    let circular = if circular_flags.iter().any(|&f| f) {
-        let mut circ_layout = layout.clone();
-        circ_layout.circular = circular_flags;
-        let mut start = vec![0.0; circ_layout.n_params()];
-        for c in 0..layout.n_companions() {
-            let comp = decode_companion(
-                &layout,
-                EccentricityCoordinates::E,
-                &eccentric.parameters,
-                c,
-            );
-            encode_companion(
-                &circ_layout,
-                EccentricityCoordinates::E,
-                &mut start,
-                c,
-                &comp.into(),
-            );
-        }
-        let (o_old, o_new) = (layout.offsets_start(), circ_layout.offsets_start());
-        let tail = layout.n_params() - o_old;
-        start[o_new..o_new + tail].copy_from_slice(&eccentric.parameters[o_old..]);
-        let fit = refine(&mut solver, &circ_layout, &start)?;
-        let solution = make(&circ_layout, &fit);
-        note_solution(&solution, "circular refit", &mut warnings);
-        Some(solution)
-    } else {
-        None
-    };
+    let circular = circular_refit(&refiner, &mut solver, &layout, &eccentric)?;
+    if let Some(solution) = &circular {
+        note_solution(solution, "circular refit", &mut warnings);
+    }
     let adopted = if circular.is_some() {
         Adopted::Circular
     } else {
         Adopted::Eccentric
     };
-    let last = &starts_out[last_stage_range.clone()];
+    let last = &search.starts[last_stage_range.clone()];
     let n_reached_best = last.iter().filter(|s| s.reached_best).count();
     if n_reached_best == 1 && last.len() > 1 {
         warnings.push(
@@ -564,16 +439,186 @@ pub fn fit_orbit(data: &FitData, options: &FitOptions) -> Result<FitReport, FitE
     Ok(FitReport {
         n_points: data.n_points(),
         reference_time: data.reference_time(),
-        period_search,
+        period_search: search.period_search,
         eccentric,
         circular,
         adopted,
-        n_starts: starts_out.len(),
+        n_starts: search.starts.len(),
         n_reached_best,
         n_starts_last_stage: last.len(),
-        starts: starts_out,
+        starts: search.starts,
         warnings,
     })
+}
+
+/// What the search stages record for the report: the period search of each companion and the
+/// outcome of every start.
+#[derive(Default)]
+struct Search {
+    period_search: Vec<PeriodSearchSummary>,
+    starts: Vec<StartOutcome>,
+}
+
+/// Stages 1–3 of [`fit_orbit`] for companion `c` (0-based), the earlier companions starting
+/// at `previous`: the candidate periods, the start grid at each, Levenberg–Marquardt from every
+/// start; returns the least-χ² result. Every start is recorded in `search` (those within
+/// [`SAME_MINIMUM`] of the best marked as having reached it).
+fn fit_companion(
+    data: &FitData,
+    options: &FitOptions,
+    c: usize,
+    previous: &[f64],
+    solver: &mut LmSolver,
+    search: &mut Search,
+) -> Result<StageBest, FitError> {
+    let layout = ParameterLayout::new(c + 1, data.n_instruments(), options.trend);
+    let candidates = candidate_periods(data, options, c, previous, &mut search.period_search)?;
+    let problem = RvProblem::new(data, layout.clone(), EccentricityCoordinates::SqrtE);
+    let starts_out = &mut search.starts;
+    let stage_start = starts_out.len();
+    let mut best: Option<StageBest> = None;
+    let mut first_error = None;
+    for (p_index, &period) in candidates.iter().enumerate() {
+        for start in start_grid(options, period, (c * 1000 + p_index) as u64) {
+            let outcome = |chi2: f64, p: f64, e: f64, converged: bool| StartOutcome {
+                companion: c + 1,
+                start_period: start.period,
+                start_eccentricity: start.eccentricity,
+                start_omega_deg: start.omega.to_degrees(),
+                chi_squared: chi2,
+                period: p,
+                eccentricity: e,
+                converged,
+                reached_best: false,
+            };
+            let Some(initial) = linear_start(data, &layout, previous, start, options.n_phase_scan)
+            else {
+                starts_out.push(outcome(f64::NAN, f64::NAN, f64::NAN, false));
+                continue;
+            };
+            match fit_least_squares_with(solver, &problem, &initial, None, &options.start_lsq) {
+                Ok(report) => {
+                    let comp = decode_companion(
+                        &layout,
+                        EccentricityCoordinates::SqrtE,
+                        &report.params,
+                        c,
+                    );
+                    starts_out.push(outcome(
+                        report.chi_squared,
+                        comp.period,
+                        comp.eccentricity,
+                        report.converged() || report.termination.at_machine_precision(),
+                    ));
+                    if report.chi_squared.is_finite()
+                        && best
+                            .as_ref()
+                            .is_none_or(|b| report.chi_squared < b.chi_squared)
+                    {
+                        best = Some(StageBest {
+                            params: report.params,
+                            chi_squared: report.chi_squared,
+                        });
+                    }
+                }
+                Err(err) => {
+                    first_error.get_or_insert(err);
+                    starts_out.push(outcome(f64::NAN, f64::NAN, f64::NAN, false));
+                }
+            }
+        }
+    }
+    let Some(best) = best else {
+        return Err(match first_error {
+            Some(err) => FitError::NoStart(err),
+            None => FitError::InvalidOption {
+                name: "starts",
+                value: format!("{candidates:?}"),
+                reason: "no start gave a finite model",
+            },
+        });
+    };
+    for s in &mut starts_out[stage_start..] {
+        s.reached_best = (s.chi_squared - best.chi_squared).abs() <= SAME_MINIMUM;
+    }
+    Ok(best)
+}
+
+/// Stages 4–6 of [`fit_orbit`] at a given layout: the refinement in (e cos ω, e sin ω) with the
+/// jitter, and the solution with its covariance and tests.
+struct Refiner<'a> {
+    data: &'a FitData,
+    options: &'a FitOptions,
+}
+
+impl Refiner<'_> {
+    /// Levenberg–Marquardt in E coordinates from `start`, with the jitter alternation when
+    /// asked for ([`refine_with_jitter`]).
+    fn refine(
+        &self,
+        solver: &mut LmSolver,
+        layout: &ParameterLayout,
+        start: &[f64],
+    ) -> Result<Refined, FitError> {
+        refine_with_jitter(solver, self.data, layout, start, self.options)
+    }
+
+    /// The reported solution of a refined fit ([`build_solution`]).
+    fn solution(&self, layout: &ParameterLayout, fit: &Refined) -> Solution {
+        let options = self.options;
+        build_solution(
+            &SolutionContext {
+                data: self.data,
+                layout,
+                jitter: fit.jitter.as_deref(),
+                jitter_iterations: fit.jitter.as_ref().map(|_| fit.jitter_iterations),
+                jitter_converged: fit.jitter_converged,
+                jitter_method: options.jitter_method,
+                termination: fit.termination,
+                stellar_mass: options.stellar_mass,
+                lucy_sweeney_threshold: options.lucy_sweeney_threshold,
+                singular_tolerance: options.lsq.singular_tolerance,
+            },
+            &fit.params,
+        )
+    }
+}
+
+/// The Lucy–Sweeney step of [`fit_orbit`]: the companions whose eccentricity the test does not
+/// find significant are refitted circular, started from the eccentric solution (the other
+/// companions, offsets and trend at their values); None when every eccentricity is significant.
+fn circular_refit(
+    refiner: &Refiner,
+    solver: &mut LmSolver,
+    layout: &ParameterLayout,
+    eccentric: &Solution,
+) -> Result<Option<Solution>, FitError> {
+    let circular_flags: Vec<bool> = eccentric
+        .companions
+        .iter()
+        .map(|c| c.lucy_sweeney.is_some_and(|ls| !ls.significant))
+        .collect();
+    if !circular_flags.iter().any(|&f| f) {
+        return Ok(None);
+    }
+    let mut circ_layout = layout.clone();
+    circ_layout.circular = circular_flags;
+    let mut start = vec![0.0; circ_layout.n_params()];
+    for c in 0..layout.n_companions() {
+        let comp = decode_companion(layout, EccentricityCoordinates::E, &eccentric.parameters, c);
+        encode_companion(
+            &circ_layout,
+            EccentricityCoordinates::E,
+            &mut start,
+            c,
+            &comp.into(),
+        );
+    }
+    let (o_old, o_new) = (layout.offsets_start(), circ_layout.offsets_start());
+    let tail = layout.n_params() - o_old;
+    start[o_new..o_new + tail].copy_from_slice(&eccentric.parameters[o_old..]);
+    let fit = refiner.refine(solver, &circ_layout, &start)?;
+    Ok(Some(refiner.solution(&circ_layout, &fit)))
 }
 
 fn note_solution(solution: &Solution, what: &str, warnings: &mut Vec<String>) {
@@ -660,12 +705,13 @@ fn candidate_periods(
         },
         n_top_peaks: options.n_peaks,
     };
-    let pg = peak_search(data.times(), &values, data.uncertainties(), &pg_options).map_err(
-        |source| FitError::PeriodSearch {
-            companion: c + 1,
-            source,
-        },
-    )?;
+    let pg =
+        peak_search(data.times(), &values, data.uncertainties(), &pg_options).map_err(|error| {
+            FitError::PeriodSearch {
+                companion: c + 1,
+                error,
+            }
+        })?;
     let best = pg.best_peak;
     if best.false_alarm_probability > options.max_false_alarm_probability {
         return Err(FitError::NoSignificantPeriod {

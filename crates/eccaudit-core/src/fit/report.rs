@@ -8,14 +8,14 @@ use serde::Serialize;
 use super::goodness::chi_squared_p_value;
 use super::jitter::JitterMethod;
 use super::lucy_sweeney::{eccentricity_error, lucy_sweeney_wald, LucySweeney};
-use super::problem::{
-    decode_companion, EccentricityCoordinates, FitData, ParameterLayout, RvProblem,
-};
+use super::{FitData, RvProblem};
 use crate::constants::{ASTRONOMICAL_UNIT, JUPITER_MASS_IN_SOLAR_MASSES};
 use crate::kepler::{reduce_angle, reduce_angle_signed, TWO_PI};
 use crate::lsq::{
-    covariance_from_jacobian, CovarianceStatus, DMatrix, LeastSquaresProblem, Termination,
+    covariance_from_jacobian, CovarianceEstimate, CovarianceStatus, DMatrix, LeastSquaresProblem,
+    Termination,
 };
+use crate::model::{decode_companion, EccentricityCoordinates, ParameterLayout};
 use crate::orbit::OrbitalElements;
 
 const DEG: f64 = 180.0 / core::f64::consts::PI;
@@ -244,219 +244,42 @@ pub(crate) struct SolutionContext<'a> {
     pub singular_tolerance: f64,
 }
 
-/// Builds a [`Solution`] from parameters in E coordinates: covariance from the analytic
-/// Jacobian at the optimum (`(JᵀJ)⁻¹`, see [`covariance_from_jacobian`]) in
-/// (P, K, e cos ω, e sin ω, λ, γ…, trend), derived errors by the delta method, and the
-/// Lucy–Sweeney test in the 2-D Wald form ([`lucy_sweeney_wald`]); σ_e from [`eccentricity_error`].
+/// Builds a [`Solution`] from parameters in E coordinates, in named stages: the residuals,
+/// χ² and covariance at the optimum ([`AtOptimum`]: `(JᵀJ)⁻¹` of the analytic Jacobian, see
+/// [`covariance_from_jacobian`], in (P, K, e cos ω, e sin ω, λ, γ…, trend)); each companion's
+/// elements with errors by the delta method, σ_e from
+/// [`eccentricity_error`], the Lucy–Sweeney test in the 2-D Wald form ([`lucy_sweeney_wald`]) ([`companion_fit`]); each instrument's offset, jitter and scatter
+/// ([`instrument_fits`]); then the counts and the χ² test.
 pub(crate) fn build_solution(ctx: &SolutionContext, params_in: &[f64]) -> Solution {
     let layout = ctx.layout;
     let data = ctx.data;
     let mut params = params_in.to_vec();
     normalise_signs(layout, &mut params);
-    let mut problem = RvProblem::new(data, layout.clone(), EccentricityCoordinates::E);
-    if let Some(j) = ctx.jitter {
-        problem.set_jitter(j);
-    }
-    let n = data.n_points();
-    let n_params = layout.n_params();
-    let mut residuals = vec![0.0; n];
-    problem.residuals(&params, &mut residuals);
-    let chi_squared: f64 = residuals.iter().map(|r| r * r).sum();
-    let mut model = vec![0.0; n];
-    problem.model_velocities(&params, &mut model);
-    let raw: Vec<f64> = data
-        .velocities()
-        .iter()
-        .zip(&model)
-        .map(|(v, m)| v - m)
-        .collect();
-    let mut jacobian = DMatrix::zeros(n, n_params);
-    problem.jacobian(&params, &mut jacobian);
-    let estimate = covariance_from_jacobian(&jacobian, ctx.singular_tolerance);
-    let cov = estimate.covariance.clone();
-    let var = |i: usize| cov.as_ref().map(|c| c[i * n_params + i]);
-    let covar = |i: usize, j: usize| cov.as_ref().map(|c| c[i * n_params + j]);
-    let delta = |grad: &[(usize, f64)]| -> Option<f64> {
-        let c = cov.as_ref()?;
-        let mut s = 0.0;
-        for &(i, gi) in grad {
-            for &(j, gj) in grad {
-                s += gi * gj * c[i * n_params + j];
-            }
-        }
-        Some(libm::sqrt(s.max(0.0)))
+    let at = AtOptimum::new(ctx, &params);
+    let errors = Errors {
+        covariance: at.estimate.covariance.as_deref(),
+        n_params: layout.n_params(),
+        params: &params,
     };
-    let est = |i: usize| Estimate {
-        value: params[i],
-        error: var(i).map(|v| libm::sqrt(v.max(0.0))),
-    };
-    let t_ref = data.reference_time();
-    let mut companions = Vec::new();
     let mut names = Vec::new();
-    for c in 0..layout.n_companions() {
-        let start = layout.companion_start(c);
-        let comp = decode_companion(layout, EccentricityCoordinates::E, &params, c);
-        let label = c + 1;
-        names.push(format!("period_{label}"));
-        names.push(format!("semi_amplitude_{label}"));
-        if !layout.circular[c] {
-            names.push(format!("e_cos_omega_{label}"));
-            names.push(format!("e_sin_omega_{label}"));
-        }
-        names.push(format!("mean_longitude_{label}"));
-        let l = layout.lambda_index(c);
-        let period = comp.period;
-        let omega = if layout.circular[c] {
-            0.0
-        } else {
-            comp.omega()
-        };
-        let mean_anomaly = reduce_angle_signed(comp.mean_longitude - omega);
-        let e = comp.eccentricity;
-        let (cw, sw) = (comp.cos_omega, comp.sin_omega);
-        let (eccentricity, omega_est, ecw, esw, lucy, m0_grad) = if layout.circular[c] {
-            let zero = Estimate {
-                value: 0.0,
-                error: None,
-            };
-            (zero, zero, zero, zero, None, vec![(l, 1.0)])
-        } else {
-            let (ix, iy) = (start + 2, start + 3);
-            let sigma_e = match (var(ix), covar(ix, iy), var(iy)) {
-                (Some(sxx), Some(sxy), Some(syy)) => {
-                    Some(eccentricity_error(params[ix], params[iy], sxx, sxy, syy))
-                }
-                _ => None,
-            };
-            let omega_error = if e > 0.0 {
-                delta(&[(ix, -sw / e), (iy, cw / e)])
-            } else {
-                None
-            };
-            // Lucy–Sweeney in the 2-D Wald form, from the full (e cos ω, e sin ω) covariance.
-            let lucy = match (var(ix), covar(ix, iy), var(iy)) {
-                (Some(sxx), Some(sxy), Some(syy)) => Some(lucy_sweeney_wald(
-                    params[ix],
-                    params[iy],
-                    sxx,
-                    sxy,
-                    syy,
-                    ctx.lucy_sweeney_threshold,
-                )),
-                _ => None,
-            };
-            let m0_grad = if e > 0.0 {
-                vec![(l, 1.0), (ix, sw / e), (iy, -cw / e)]
-            } else {
-                vec![(l, 1.0)]
-            };
-            (
-                Estimate {
-                    value: e,
-                    error: sigma_e,
-                },
-                // Reported in [0°, 360°).
-                Estimate {
-                    value: reduce_angle(omega) * DEG,
-                    error: omega_error.map(|v| v * DEG),
-                },
-                est(ix),
-                est(iy),
-                lucy,
-                m0_grad,
-            )
-        };
-        let m0_error = delta(&m0_grad);
-        // T_p = t_ref − M₀ P / 2π.
-        let mut tp_grad: Vec<(usize, f64)> = m0_grad
-            .iter()
-            .map(|&(i, g)| (i, -g * period / TWO_PI))
-            .collect();
-        tp_grad.push((start, -mean_anomaly / TWO_PI));
-        let tp = t_ref - mean_anomaly * period / TWO_PI;
-        let elements = OrbitalElements::new(
-            period,
-            comp.semi_amplitude.abs(),
-            e.min(super::MAX_ECCENTRICITY),
-            omega,
-            tp,
-        );
-        let (mass_function, a_sin_i, m_min, a_rel) = match elements {
-            Ok(el) => {
-                let m_min = ctx
-                    .stellar_mass
-                    .and_then(|m| el.minimum_companion_mass(m).ok());
-                let a_rel = ctx
-                    .stellar_mass
-                    .and_then(|m| el.relative_semi_major_axis_edge_on(m).ok());
-                (
-                    el.mass_function(),
-                    el.star_semi_major_axis_sin_i() / ASTRONOMICAL_UNIT,
-                    m_min,
-                    a_rel.map(|a| a / ASTRONOMICAL_UNIT),
-                )
-            }
-            Err(_) => (f64::NAN, f64::NAN, None, None),
-        };
-        companions.push(CompanionFit {
-            period: est(start),
-            semi_amplitude: est(start + 1),
-            eccentricity,
-            omega_deg: omega_est,
-            e_cos_omega: ecw,
-            e_sin_omega: esw,
-            mean_longitude_deg: Estimate {
-                value: comp.mean_longitude * DEG,
-                error: var(l).map(|v| libm::sqrt(v.max(0.0)) * DEG),
-            },
-            mean_anomaly_deg: Estimate {
-                value: mean_anomaly * DEG,
-                error: m0_error.map(|v| v * DEG),
-            },
-            time_of_periastron: Estimate {
-                value: tp,
-                error: delta(&tp_grad),
-            },
-            held_circular: layout.circular[c],
-            lucy_sweeney: lucy,
-            mass_function,
-            star_a_sin_i_au: a_sin_i,
-            minimum_mass_msun: m_min,
-            minimum_mass_mjup: m_min.map(|m| m / JUPITER_MASS_IN_SOLAR_MASSES),
-            semi_major_axis_au: a_rel,
-        });
-    }
-    let offsets = layout.offsets_start();
-    let mut instruments = Vec::new();
-    for (j, name) in data.instrument_names().iter().enumerate() {
-        names.push(format!("offset_{name}"));
-        let own: Vec<f64> = raw
-            .iter()
-            .zip(data.instruments())
-            .filter(|(_, &i)| i == j)
-            .map(|(r, _)| *r)
-            .collect();
-        instruments.push(InstrumentFit {
-            name: name.clone(),
-            n_points: own.len(),
-            offset: est(offsets + j),
-            jitter: ctx.jitter.map(|s| s[j]),
-            rms: rms(&own),
-        });
-    }
+    let companions = (0..layout.n_companions())
+        .map(|c| companion_fit(ctx, &errors, c, &mut names))
+        .collect();
+    let instruments = instrument_fits(ctx, &errors, &at.raw_residuals, &mut names);
     let trend = layout.trend_index().map(|t| {
         names.push("trend".into());
-        est(t)
+        errors.estimate(t)
     });
     let n_jitter = if ctx.jitter.is_some() {
         data.n_instruments()
     } else {
         0
     };
-    let total_params = n_params + n_jitter;
-    let dof = n.saturating_sub(total_params);
+    let total_params = layout.n_params() + n_jitter;
+    let dof = data.n_points().saturating_sub(total_params);
     let converged = (ctx.termination.converged() || ctx.termination.at_machine_precision())
         && ctx.jitter_converged;
+    let chi_squared = at.chi_squared;
     Solution {
         companions,
         instruments,
@@ -467,15 +290,290 @@ pub(crate) fn build_solution(ctx: &SolutionContext, params_in: &[f64]) -> Soluti
         reduced_chi_squared: (dof > 0).then(|| chi_squared / dof as f64),
         chi_squared_p: chi_squared_p_value(chi_squared, dof),
         jitter_method: ctx.jitter.map(|_| ctx.jitter_method),
-        rms: rms(&raw),
+        rms: rms(&at.raw_residuals),
         converged,
         termination: ctx.termination,
         jitter_iterations: ctx.jitter_iterations,
-        covariance_status: estimate.status,
+        covariance_status: at.estimate.status,
         parameter_names: names,
         parameters: params,
-        covariance: estimate.covariance,
+        covariance: at.estimate.covariance,
     }
+}
+
+/// The fit at its optimum: χ² of the weighted residuals, the raw residuals v − model [m/s] and
+/// the covariance estimate.
+struct AtOptimum {
+    chi_squared: f64,
+    raw_residuals: Vec<f64>,
+    estimate: CovarianceEstimate,
+}
+
+impl AtOptimum {
+    fn new(ctx: &SolutionContext, params: &[f64]) -> Self {
+        let data = ctx.data;
+        let mut problem = RvProblem::new(data, ctx.layout.clone(), EccentricityCoordinates::E);
+        if let Some(j) = ctx.jitter {
+            problem.set_jitter(j);
+        }
+        let n = data.n_points();
+        let mut residuals = vec![0.0; n];
+        problem.residuals(params, &mut residuals);
+        let chi_squared: f64 = residuals.iter().map(|r| r * r).sum();
+        let mut model = vec![0.0; n];
+        problem.model_velocities(params, &mut model);
+        let raw_residuals = data
+            .velocities()
+            .iter()
+            .zip(&model)
+            .map(|(v, m)| v - m)
+            .collect();
+        let mut jacobian = DMatrix::zeros(n, ctx.layout.n_params());
+        problem.jacobian(params, &mut jacobian);
+        Self {
+            chi_squared,
+            raw_residuals,
+            estimate: covariance_from_jacobian(&jacobian, ctx.singular_tolerance),
+        }
+    }
+}
+
+/// Parameter values with their errors from the covariance (row-major, `n_params`²), when
+/// there is one.
+struct Errors<'a> {
+    covariance: Option<&'a [f64]>,
+    n_params: usize,
+    params: &'a [f64],
+}
+
+impl Errors<'_> {
+    fn variance(&self, i: usize) -> Option<f64> {
+        self.covariance.map(|c| c[i * self.n_params + i])
+    }
+
+    fn covariance(&self, i: usize, j: usize) -> Option<f64> {
+        self.covariance.map(|c| c[i * self.n_params + j])
+    }
+
+    /// σ of a derived quantity with gradient `grad` (index, ∂/∂p) by the delta method.
+    fn delta(&self, grad: &[(usize, f64)]) -> Option<f64> {
+        let c = self.covariance?;
+        let mut s = 0.0;
+        for &(i, gi) in grad {
+            for &(j, gj) in grad {
+                s += gi * gj * c[i * self.n_params + j];
+            }
+        }
+        Some(libm::sqrt(s.max(0.0)))
+    }
+
+    /// Parameter `i` with its σ.
+    fn estimate(&self, i: usize) -> Estimate {
+        Estimate {
+            value: self.params[i],
+            error: self.variance(i).map(|v| libm::sqrt(v.max(0.0))),
+        }
+    }
+}
+
+/// Companion `c`'s reported elements (appending its parameter names to `names`): P, K,
+/// e and ω with σ_e from [`eccentricity_error`] and the Lucy–Sweeney test, λ, M₀ and
+/// T_p = t_ref − M₀ P / 2π with errors by the delta method, and the physical quantities.
+fn companion_fit(
+    ctx: &SolutionContext,
+    errors: &Errors,
+    c: usize,
+    names: &mut Vec<String>,
+) -> CompanionFit {
+    let layout = ctx.layout;
+    let params = errors.params;
+    let start = layout.companion_start(c);
+    let comp = decode_companion(layout, EccentricityCoordinates::E, params, c);
+    let label = c + 1;
+    names.push(format!("period_{label}"));
+    names.push(format!("semi_amplitude_{label}"));
+    if !layout.circular[c] {
+        names.push(format!("e_cos_omega_{label}"));
+        names.push(format!("e_sin_omega_{label}"));
+    }
+    names.push(format!("mean_longitude_{label}"));
+    let l = layout.lambda_index(c);
+    let period = comp.period;
+    let omega = if layout.circular[c] {
+        0.0
+    } else {
+        comp.omega()
+    };
+    let mean_anomaly = reduce_angle_signed(comp.mean_longitude - omega);
+    let e = comp.eccentricity;
+    let (cw, sw) = (comp.cos_omega, comp.sin_omega);
+    let (eccentricity, omega_est, ecw, esw, lucy, m0_grad) = if layout.circular[c] {
+        let zero = Estimate {
+            value: 0.0,
+            error: None,
+        };
+        (zero, zero, zero, zero, None, vec![(l, 1.0)])
+    } else {
+        let (ix, iy) = (start + 2, start + 3);
+        let sigma_e = match (
+            errors.variance(ix),
+            errors.covariance(ix, iy),
+            errors.variance(iy),
+        ) {
+            (Some(sxx), Some(sxy), Some(syy)) => {
+                Some(eccentricity_error(params[ix], params[iy], sxx, sxy, syy))
+            }
+            _ => None,
+        };
+        let omega_error = if e > 0.0 {
+            errors.delta(&[(ix, -sw / e), (iy, cw / e)])
+        } else {
+            None
+        };
+        // Lucy–Sweeney in the 2-D Wald form, from the full (e cos ω, e sin ω) covariance.
+        let lucy = match (
+            errors.variance(ix),
+            errors.covariance(ix, iy),
+            errors.variance(iy),
+        ) {
+            (Some(sxx), Some(sxy), Some(syy)) => Some(lucy_sweeney_wald(
+                params[ix],
+                params[iy],
+                sxx,
+                sxy,
+                syy,
+                ctx.lucy_sweeney_threshold,
+            )),
+            _ => None,
+        };
+        let m0_grad = if e > 0.0 {
+            vec![(l, 1.0), (ix, sw / e), (iy, -cw / e)]
+        } else {
+            vec![(l, 1.0)]
+        };
+        (
+            Estimate {
+                value: e,
+                error: sigma_e,
+            },
+            // Reported in [0°, 360°).
+            Estimate {
+                value: reduce_angle(omega) * DEG,
+                error: omega_error.map(|v| v * DEG),
+            },
+            errors.estimate(ix),
+            errors.estimate(iy),
+            lucy,
+            m0_grad,
+        )
+    };
+    let m0_error = errors.delta(&m0_grad);
+    // T_p = t_ref − M₀ P / 2π.
+    let mut tp_grad: Vec<(usize, f64)> = m0_grad
+        .iter()
+        .map(|&(i, g)| (i, -g * period / TWO_PI))
+        .collect();
+    tp_grad.push((start, -mean_anomaly / TWO_PI));
+    let tp = ctx.data.reference_time() - mean_anomaly * period / TWO_PI;
+    let elements = OrbitalElements::new(
+        period,
+        comp.semi_amplitude.abs(),
+        e.min(super::MAX_ECCENTRICITY),
+        omega,
+        tp,
+    );
+    let physical = Physical::of(elements.ok().as_ref(), ctx.stellar_mass);
+    CompanionFit {
+        period: errors.estimate(start),
+        semi_amplitude: errors.estimate(start + 1),
+        eccentricity,
+        omega_deg: omega_est,
+        e_cos_omega: ecw,
+        e_sin_omega: esw,
+        mean_longitude_deg: Estimate {
+            value: comp.mean_longitude * DEG,
+            error: errors.variance(l).map(|v| libm::sqrt(v.max(0.0)) * DEG),
+        },
+        mean_anomaly_deg: Estimate {
+            value: mean_anomaly * DEG,
+            error: m0_error.map(|v| v * DEG),
+        },
+        time_of_periastron: Estimate {
+            value: tp,
+            error: errors.delta(&tp_grad),
+        },
+        held_circular: layout.circular[c],
+        lucy_sweeney: lucy,
+        mass_function: physical.mass_function,
+        star_a_sin_i_au: physical.a_sin_i_au,
+        minimum_mass_msun: physical.minimum_mass_msun,
+        minimum_mass_mjup: physical
+            .minimum_mass_msun
+            .map(|m| m / JUPITER_MASS_IN_SOLAR_MASSES),
+        semi_major_axis_au: physical.semi_major_axis_au,
+    }
+}
+
+/// A companion's physical quantities from its elements (NaN / None when the elements are not
+/// valid; the masses and separation only with a stellar mass [M☉]).
+struct Physical {
+    mass_function: f64,
+    a_sin_i_au: f64,
+    minimum_mass_msun: Option<f64>,
+    semi_major_axis_au: Option<f64>,
+}
+
+impl Physical {
+    fn of(elements: Option<&OrbitalElements>, stellar_mass: Option<f64>) -> Self {
+        match elements {
+            Some(el) => {
+                let m_min = stellar_mass.and_then(|m| el.minimum_companion_mass(m).ok());
+                let a_rel = stellar_mass.and_then(|m| el.relative_semi_major_axis_edge_on(m).ok());
+                Physical {
+                    mass_function: el.mass_function(),
+                    a_sin_i_au: el.star_semi_major_axis_sin_i() / ASTRONOMICAL_UNIT,
+                    minimum_mass_msun: m_min,
+                    semi_major_axis_au: a_rel.map(|a| a / ASTRONOMICAL_UNIT),
+                }
+            }
+            None => Physical {
+                mass_function: f64::NAN,
+                a_sin_i_au: f64::NAN,
+                minimum_mass_msun: None,
+                semi_major_axis_au: None,
+            },
+        }
+    }
+}
+
+/// Each instrument's offset with its σ, fitted jitter and rms of its residuals (appending the
+/// offsets' parameter names to `names`).
+fn instrument_fits(
+    ctx: &SolutionContext,
+    errors: &Errors,
+    raw_residuals: &[f64],
+    names: &mut Vec<String>,
+) -> Vec<InstrumentFit> {
+    let data = ctx.data;
+    let offsets = ctx.layout.offsets_start();
+    let mut instruments = Vec::new();
+    for (j, name) in data.instrument_names().iter().enumerate() {
+        names.push(format!("offset_{name}"));
+        let own: Vec<f64> = raw_residuals
+            .iter()
+            .zip(data.instruments())
+            .filter(|(_, &i)| i == j)
+            .map(|(r, _)| *r)
+            .collect();
+        instruments.push(InstrumentFit {
+            name: name.clone(),
+            n_points: own.len(),
+            offset: errors.estimate(offsets + j),
+            jitter: ctx.jitter.map(|s| s[j]),
+            rms: rms(&own),
+        });
+    }
+    instruments
 }
 
 fn rms(values: &[f64]) -> f64 {

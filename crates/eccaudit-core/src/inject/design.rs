@@ -201,17 +201,7 @@ impl Sampling {
     /// Median stated uncertainty [m/s] (the σ of "K/σ"); the mean of the two middle values for
     /// an even count.
     pub fn median_uncertainty(&self) -> f64 {
-        let mut s = self.uncertainties.clone();
-        s.sort_by(f64::total_cmp);
-        let n = s.len();
-        if n == 0 {
-            return f64::NAN;
-        }
-        if n % 2 == 1 {
-            s[n / 2]
-        } else {
-            0.5 * (s[n / 2 - 1] + s[n / 2])
-        }
+        crate::stats::median(&self.uncertainties)
     }
 }
 

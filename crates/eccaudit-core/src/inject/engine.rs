@@ -10,8 +10,8 @@ use serde::Serialize;
 use super::design::{random_angle, GridCell, InjectionDesign};
 use super::estimators::{EccentricityEstimate, Estimator};
 use super::InjectError;
-use crate::fit::problem::keplerian_shape;
 use crate::fit::FitData;
+use crate::model::keplerian_shape;
 use crate::random::{standard_normal, stream_rng, SimRng};
 
 /// One simulated data set.

@@ -5,6 +5,7 @@ use rand::{RngExt, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 
 use super::*;
+use crate::lanes::{self, Isa, Kernel};
 
 /// Deterministic benchmark workload: `n` pairs (M, e) with M uniform in [0, 2π) and e uniform in
 /// [0, 0.99], drawn from `Xoshiro256PlusPlus::seed_from_u64(seed)`. Identical on native and wasm.
@@ -45,57 +46,48 @@ pub(super) fn eccentric_anomaly_or_nan(mean_anomaly: f64, e: f64) -> f64 {
     }
 }
 
-/// How many independent solves [`solve_all`] interleaves, so that the processor overlaps their
-/// long dependency chains (divisions, square root, sine and cosine): two SSE2 registers of two
-/// lanes each.
-pub(super) const SOLVE_LANES: usize = 4;
+/// How many independent solves [`solve_all`] interleaves without AVX, so that the processor
+/// overlaps their long dependency chains (divisions, square root, sine and cosine): two SSE2
+/// registers of two lanes each.
+pub(super) const PORTABLE_LANES: usize = 4;
 
-/// The lane count of [`solve_all`] on x86-64 processors with AVX2: two 256-bit registers of four.
-#[cfg(target_arch = "x86_64")]
-pub(super) const SOLVE_LANES_AVX2: usize = 8;
+/// The lane count of [`solve_all`] with AVX2 (two 256-bit registers of four) and with AVX-512F
+/// (one 512-bit register; measured no faster with 16).
+pub(super) const WIDE_LANES: usize = 8;
 
 /// Solves Kepler's equation for every (M, e) pair of `inputs` and returns the sum of the
 /// eccentric anomalies (added in input order), a checksum that keeps the optimiser from removing
 /// the work. Pairs with an eccentricity outside [0, 1) contribute NaN (so the checksum becomes
 /// NaN) instead of panicking. Each E is bit for bit the value of [`eccentric_anomaly`].
 ///
-/// On x86-64 processors with AVX2 or AVX-512F the same code runs with wider registers (detected
-/// at run time);
-/// the lanes still perform only correctly rounded IEEE operations without fused multiply–add,
-/// so the bits do not change.
+/// Runs on the widest instruction set the processor offers ([`crate::lanes::dispatch`]); the
+/// lanes perform only correctly rounded IEEE operations without fused multiply–add, so the bits
+/// do not change.
 pub fn solve_all(inputs: &[(f64, f64)]) -> f64 {
-    #[cfg(target_arch = "x86_64")]
-    {
-        if std::is_x86_feature_detected!("avx512f") {
-            // SAFETY: the processor supports AVX-512F, checked just above.
-            return unsafe { solve_all_avx512(inputs) };
-        }
-        if std::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked just above.
-            return unsafe { solve_all_avx2(inputs) };
+    lanes::dispatch(SolveAll { inputs })
+}
+
+/// [`solve_all`] compiled for `isa` (when the processor offers it; for the tests of every path).
+#[cfg(test)]
+pub(super) fn solve_all_on(isa: Isa, inputs: &[(f64, f64)]) -> f64 {
+    lanes::dispatch_on(isa, SolveAll { inputs })
+}
+
+/// [`solve_all_lanes`] as a lane kernel.
+struct SolveAll<'a> {
+    inputs: &'a [(f64, f64)],
+}
+
+impl Kernel for SolveAll<'_> {
+    type Output = f64;
+
+    #[inline(always)]
+    fn run(self, isa: Isa) -> f64 {
+        match isa {
+            Isa::Portable => solve_all_lanes::<PORTABLE_LANES>(self.inputs),
+            Isa::Avx2 | Isa::Avx512 => solve_all_lanes::<WIDE_LANES>(self.inputs),
         }
     }
-    solve_all_lanes::<SOLVE_LANES>(inputs)
-}
-
-/// [`solve_all_lanes`] compiled for AVX-512F: eight lanes in one 512-bit register.
-///
-/// # Safety
-/// The processor must support AVX-512F.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-pub(super) unsafe fn solve_all_avx512(inputs: &[(f64, f64)]) -> f64 {
-    solve_all_lanes::<SOLVE_LANES_AVX2>(inputs)
-}
-
-/// [`solve_all_lanes`] compiled for AVX2.
-///
-/// # Safety
-/// The processor must support AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-pub(super) unsafe fn solve_all_avx2(inputs: &[(f64, f64)]) -> f64 {
-    solve_all_lanes::<SOLVE_LANES_AVX2>(inputs)
 }
 
 /// [`solve_all`] with `N` lanes.

@@ -6,7 +6,7 @@ use super::*;
 pub(super) fn median_positive_spacing(times: &[f64]) -> Option<f64> {
     let mut sorted = times.to_vec();
     sorted.sort_by(f64::total_cmp);
-    let mut spacings: Vec<f64> = sorted
+    let spacings: Vec<f64> = sorted
         .windows(2)
         .map(|pair| pair[1] - pair[0])
         .filter(|&d| d > 0.0)
@@ -14,13 +14,7 @@ pub(super) fn median_positive_spacing(times: &[f64]) -> Option<f64> {
     if spacings.is_empty() {
         return None;
     }
-    spacings.sort_by(f64::total_cmp);
-    let middle = spacings.len() / 2;
-    Some(if spacings.len() % 2 == 1 {
-        spacings[middle]
-    } else {
-        0.5 * (spacings[middle - 1] + spacings[middle])
-    })
+    Some(crate::stats::median(&spacings))
 }
 
 /// Uniform frequency grid for a period search over `times` (days).

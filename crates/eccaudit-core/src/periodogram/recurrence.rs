@@ -3,6 +3,7 @@
 //! [`RECURRENCE_RESTART`] frequencies.
 
 use super::*;
+use crate::lanes::{self, Isa, Kernel};
 
 /// Number of grid frequencies after which [`grid_sums`] recomputes the phases exactly, bounding
 /// the rounding drift of the recurrence to about one ulp per rotation, here 512 / [`GRID_LANES`]
@@ -49,39 +50,54 @@ impl LaneSums {
 /// where the phases are recomputed exactly. Each frequency's sums run over the epochs in order,
 /// as in [`frequency_sums`], with which they agree to ~1e-13 relative.
 ///
-/// On x86-64 processors with AVX2 the same code is compiled for the wider registers (detected at
-/// run time); the operations and their order are the same, so are the bits.
+/// Runs on the widest instruction set the processor offers ([`crate::lanes::dispatch`]); the
+/// operations and their order are the same on every instruction set, so are the bits.
 #[inline]
 pub(super) fn grid_sums(
     epochs: &PreparedEpochs,
     df: f64,
     frequencies: &[f64],
-    mut visit: impl FnMut(&FrequencySums),
+    visit: impl FnMut(&FrequencySums),
 ) {
-    #[cfg(target_arch = "x86_64")]
-    {
-        if std::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked just above.
-            unsafe { grid_sums_avx2(epochs, df, frequencies, &mut visit) };
-            return;
-        }
-    }
-    grid_sums_portable(epochs, df, frequencies, &mut visit);
+    grid_sums_on(Isa::detected(), epochs, df, frequencies, visit);
 }
 
-/// [`grid_sums_portable`] compiled for AVX2.
-///
-/// # Safety
-/// The processor must support AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-pub(super) unsafe fn grid_sums_avx2(
+/// [`grid_sums`] compiled for `isa` (when the processor offers it).
+#[inline]
+pub(super) fn grid_sums_on(
+    isa: Isa,
     epochs: &PreparedEpochs,
     df: f64,
     frequencies: &[f64],
-    visit: &mut impl FnMut(&FrequencySums),
+    visit: impl FnMut(&FrequencySums),
 ) {
-    grid_sums_portable(epochs, df, frequencies, visit);
+    lanes::dispatch_on(
+        isa,
+        GridSums {
+            epochs,
+            df,
+            frequencies,
+            visit,
+        },
+    );
+}
+
+/// [`grid_sums_portable`] as a lane kernel (its lane count, [`GRID_LANES`], is the same on every
+/// instruction set).
+struct GridSums<'a, V> {
+    epochs: &'a PreparedEpochs,
+    df: f64,
+    frequencies: &'a [f64],
+    visit: V,
+}
+
+impl<V: FnMut(&FrequencySums)> Kernel for GridSums<'_, V> {
+    type Output = ();
+
+    #[inline(always)]
+    fn run(mut self, _isa: Isa) {
+        grid_sums_portable(self.epochs, self.df, self.frequencies, &mut self.visit);
+    }
 }
 
 /// The body of [`grid_sums`].

@@ -2,12 +2,13 @@
 
 use serde::Serialize;
 
-use crate::priors::{regularized_incomplete_beta, EccentricityShape};
+use crate::priors::EccentricityShape;
 use crate::random::{standard_normal, stream_rng};
 use crate::sampler::{
     diagnose_ensembles, quantile_sorted, run_until_converged, Chains, ConvergenceThresholds,
     DensityFn, Diagnostics, RunLength, SamplerSettings, Steer,
 };
+use crate::stats::regularized_incomplete_beta;
 
 use super::likelihood::{Bins, PreparedStar};
 use super::samples::{thin_to_ess, EccentricitySamples};

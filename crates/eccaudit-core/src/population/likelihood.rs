@@ -36,10 +36,8 @@ pub fn log_sum_exp(values: impl Iterator<Item = f64>) -> f64 {
     max + libm::log(sum)
 }
 
-/// ln B(a, b) = ln Γ(a) + ln Γ(b) − ln Γ(a + b).
-pub fn ln_beta_function(a: f64, b: f64) -> f64 {
-    libm::lgamma(a) + libm::lgamma(b) - libm::lgamma(a + b)
-}
+/// ln B(a, b) = ln Γ(a) + ln Γ(b) − ln Γ(a + b) (defined in [`crate::stats::ln_beta`]).
+pub use crate::stats::ln_beta as ln_beta_function;
 
 /// Bins of the histogram population on [0, 1).
 #[derive(Debug, Clone, PartialEq)]
@@ -254,7 +252,7 @@ mod tests {
         // Monte-Carlo error of each P_post(bin j) ≤ 0.5/√200000 ≈ 0.0011, so the log
         // agrees within 0.01 (a sum of ten such terms, relative error well below that).
         let bins = Bins::equal(10);
-        let cdf = |a: f64, b: f64, x: f64| crate::priors::regularized_incomplete_beta(a, b, x);
+        let cdf = |a: f64, b: f64, x: f64| crate::stats::regularized_incomplete_beta(a, b, x);
         let masses: Vec<f64> = (0..10)
             .map(|j| cdf(2.0, 5.0, bins.edges[j + 1]) - cdf(2.0, 5.0, bins.edges[j]))
             .collect();

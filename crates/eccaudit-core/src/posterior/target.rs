@@ -7,7 +7,7 @@
 //! (absent under a circular prior), mean longitude λ = M₀ + ω at the reference epoch t_ref [rad];
 //! then one offset γ per instrument [m/s]; then the linear trend [m/s/d] (optional); then one
 //! jitter s per instrument [m/s] (optional). The first part is exactly the layout of
-//! [`crate::fit::RvProblem`] in √e coordinates, whose model evaluation is reused.
+//! [`crate::model::ParameterModel`] in √e coordinates, whose model evaluation is used.
 //!
 //! # Priors
 //!
@@ -23,9 +23,10 @@ use std::cell::{Cell, RefCell};
 
 use serde::{Deserialize, Serialize};
 
-use crate::fit::{EccentricityCoordinates, FitData, ParameterLayout, RvProblem, MAX_ECCENTRICITY};
+use crate::fit::{FitData, RvProblem};
 use crate::kepler::TWO_PI;
 use crate::lsq::LeastSquaresProblem;
+use crate::model::{EccentricityCoordinates, ParameterLayout, ParameterModel, MAX_ECCENTRICITY};
 use crate::priors::{
     EccentricityPrior, EccentricityPriorSettings, OrbitPriorSettings, OrbitPriors,
     PreparedScalarPrior, ScalarPrior,
@@ -162,7 +163,8 @@ struct PreparedPriors {
 /// allocates nothing: the model velocities go to a scratch buffer owned by the target.
 #[derive(Debug)]
 pub struct RvPosterior<'a> {
-    problem: RvProblem<'a>,
+    data: &'a FitData,
+    model: ParameterModel<'a>,
     priors: OrbitPriors,
     prepared: PreparedPriors,
     jitter: bool,
@@ -190,6 +192,9 @@ pub struct RvPosterior<'a> {
     inverse_weight_sums: Vec<f64>,
     /// Under the Jeffreys prior: scratch of [`Self::jeffreys_log_density`].
     jeffreys: Option<RefCell<JeffreysScratch>>,
+    /// The least-squares problem whose analytic Jacobian gives the Fisher information (built
+    /// once; the Jeffreys prior and [`Self::fisher_information`] use it).
+    fisher_problem: RvProblem<'a>,
 }
 
 /// Scratch of the Jeffreys prior: the full orbital vector, the Jacobian and F.
@@ -225,7 +230,13 @@ impl<'a> RvPosterior<'a> {
         settings.trend_prior.validate("trend")?;
         let layout = settings.layout(data.n_instruments());
         let n_orbit_params = layout.n_params();
-        let problem = RvProblem::new(data, layout, EccentricityCoordinates::SqrtE);
+        let model = ParameterModel::new(
+            data.shifted_times(),
+            data.instruments(),
+            layout.clone(),
+            EccentricityCoordinates::SqrtE,
+        );
+        let fisher_problem = RvProblem::new(data, layout, EccentricityCoordinates::SqrtE);
         let variances: Vec<f64> = data.uncertainties().iter().map(|s| s * s).collect();
         let fixed_normalisation = -0.5
             * variances
@@ -247,7 +258,9 @@ impl<'a> RvPosterior<'a> {
         }
         let inverse_weight_sums = weight_sums.iter().map(|s| 1.0 / s).collect();
         Ok(Self {
-            problem,
+            data,
+            model,
+            fisher_problem,
             priors,
             prepared,
             jitter: settings.jitter,
@@ -287,9 +300,9 @@ impl<'a> RvPosterior<'a> {
     /// outside the model's domain.
     pub fn fisher_information(&self, full: &[f64]) -> Option<Vec<f64>> {
         let p = self.n_orbit_params;
-        let mut jacobian = nalgebra::DMatrix::zeros(self.problem.data().n_points(), p);
+        let mut jacobian = nalgebra::DMatrix::zeros(self.data.n_points(), p);
         let mut fisher = vec![0.0; p * p];
-        fisher_into(&self.problem, &full[..p], &mut jacobian, &mut fisher).then_some(fisher)
+        fisher_into(&self.fisher_problem, &full[..p], &mut jacobian, &mut fisher).then_some(fisher)
     }
 
     /// ln of the unnormalised Jeffreys (1946) prior, ½ ln det F(θ), at sampled point `x` (see
@@ -322,7 +335,7 @@ impl<'a> RvPosterior<'a> {
         if self.linear == LinearParameters::Sampled {
             full.copy_from_slice(&x[..self.n_orbit_params]);
         }
-        if !fisher_into(&self.problem, full, jacobian, fisher) {
+        if !fisher_into(&self.fisher_problem, full, jacobian, fisher) {
             return f64::NEG_INFINITY;
         }
         0.5 * ln_det_cholesky(fisher, self.n_orbit_params)
@@ -357,7 +370,7 @@ impl<'a> RvPosterior<'a> {
         lambda_centres: &[f64],
     ) -> Result<Self, PosteriorError> {
         let mut target = Self::new(data, settings, lambda_centres)?;
-        let layout = target.problem.layout().clone();
+        let layout = target.model.layout().clone();
         target.linear = LinearParameters::Marginalised;
         target.n_sampled_orbit = layout.offsets_start();
         let width = |prior: &ScalarPrior| {
@@ -415,9 +428,9 @@ impl<'a> RvPosterior<'a> {
     /// (bᵀN⁻¹b with b = AᵀWr, ln det N) for weights `w` and residuals `r` in the design of
     /// [`Self::marginalised`]; `sums` holds 3 entries per instrument of scratch.
     fn normal_solution(&self, w: &[f64], r: &[f64], sums: &mut [f64]) -> (f64, f64) {
-        let layout = self.problem.layout();
+        let layout = self.model.layout();
         let n_inst = layout.n_instruments;
-        let data = self.problem.data();
+        let data = self.data;
         sums.fill(0.0);
         let (weight, rest) = sums.split_at_mut(n_inst);
         let (rhs, cross) = rest.split_at_mut(n_inst);
@@ -475,7 +488,7 @@ impl<'a> RvPosterior<'a> {
 
     /// The orbital parameter layout.
     pub fn layout(&self) -> &ParameterLayout {
-        self.problem.layout()
+        self.model.layout()
     }
 
     /// Index of the first jitter in the sampled vector, when sampled.
@@ -492,7 +505,7 @@ impl<'a> RvPosterior<'a> {
     /// Jeffreys prior, P and K contribute their bounds only and ½ ln det F is added
     /// ([`Self::jeffreys_log_density`]).
     pub fn log_prior(&self, x: &[f64]) -> f64 {
-        let layout = self.problem.layout();
+        let layout = self.model.layout();
         let prepared = &self.prepared;
         let mut lp = 0.0;
         let jeffreys = self.jeffreys.is_some();
@@ -547,15 +560,15 @@ impl<'a> RvPosterior<'a> {
         let mut full = self.full.borrow_mut();
         full[..self.n_sampled_orbit].copy_from_slice(&x[..self.n_sampled_orbit]);
         let mut model = self.scratch.borrow_mut();
-        if !self.problem.model_velocities_unchecked(&full, &mut model) {
+        if !self.model.velocities_unchecked(&full, &mut model) {
             return f64::NEG_INFINITY;
         }
-        let data = self.problem.data();
+        let data = self.data;
         let mut scratch = self.linear_scratch.borrow_mut();
         let (sums, weights) = &mut *scratch;
-        let n_inst = self.problem.layout().n_instruments;
+        let n_inst = self.model.layout().n_instruments;
         let n_linear = self.n_orbit_params - self.n_sampled_orbit;
-        if self.problem.layout().trend_index().is_none() {
+        if self.model.layout().trend_index().is_none() {
             // Offsets only: N is diagonal, so one pass gives χ² and the per-instrument sums
             // (Σ w, Σ w r) of the closed form (see [`Self::marginalised`]).
             sums[..2 * n_inst].fill(0.0);
@@ -660,10 +673,10 @@ impl<'a> RvPosterior<'a> {
         let mut model = self.scratch.borrow_mut();
         // A non-finite model velocity makes the sum below non-finite (the data are finite),
         // which is caught at the end instead of by a separate pass.
-        if !self.problem.model_velocities_unchecked(x, &mut model) {
+        if !self.model.velocities_unchecked(x, &mut model) {
             return f64::NEG_INFINITY;
         }
-        let data = self.problem.data();
+        let data = self.data;
         if self.jitter {
             let jitters = &x[self.n_orbit_params..];
             let mut sum = 0.0;
@@ -704,7 +717,7 @@ impl LogDensity for RvPosterior<'_> {
     fn dim(&self) -> usize {
         self.n_sampled_orbit
             + if self.jitter {
-                self.problem.layout().n_instruments
+                self.model.layout().n_instruments
             } else {
                 0
             }

@@ -31,10 +31,9 @@ pub use ensemble::{
     run_ensemble, Chains, DensityFn, EnsembleState, LogDensity, Progress, SamplerError,
     SamplerSettings, DEFAULT_DE_FRACTION,
 };
-pub use rank::{
-    effective_sample_size, ess_bulk, ess_tail, quantile_sorted, quantile_type7,
-    rank_normalized_split_r_hat, standard_normal_quantile, RHat,
-};
+pub use rank::{effective_sample_size, ess_bulk, ess_tail, rank_normalized_split_r_hat, RHat};
+// Defined in `crate::stats`; re-exported here for the sampler's users.
+pub use crate::stats::{quantile_sorted, quantile_type7, standard_normal_quantile};
 pub use verdict::{
     diagnose, diagnose_derived, diagnose_ensembles, diagnose_ensembles_at,
     diagnose_ensembles_derived, diagnose_traces, diagnose_with, ConvergenceIssue,

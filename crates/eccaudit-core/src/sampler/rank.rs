@@ -4,6 +4,7 @@ use serde::Serialize;
 
 use super::autocorrelation::{centre, PooledAutocovariance};
 use super::{common_length, mean, sample_variance};
+use crate::stats::{quantile_type7, standard_normal_quantile};
 
 /// R̂ of one parameter: bulk (rank-normalised split chains), tail (the same on
 /// draws folded about the median) and their maximum, the value to report
@@ -185,36 +186,6 @@ pub(super) fn classic_split_r_hat(traces: &[Vec<f64>]) -> RHat {
     }
 }
 
-/// The standard normal quantile Φ⁻¹(p): starting value from Abramowitz &
-/// Stegun (1964) 26.2.23 (|error| < 4.5·10⁻⁴), refined by two Halley steps
-/// on Φ(x) = ½ erfc(−x/√2) with `libm::erfc` (cubic convergence: 4.5·10⁻⁴ →
-/// ~10⁻¹⁰ → machine precision).
-pub fn standard_normal_quantile(p: f64) -> f64 {
-    if !(p > 0.0 && p < 1.0) {
-        return if p == 0.0 {
-            f64::NEG_INFINITY
-        } else if p == 1.0 {
-            f64::INFINITY
-        } else {
-            f64::NAN
-        };
-    }
-    if p > 0.5 {
-        return -standard_normal_quantile(1.0 - p);
-    }
-    let t = libm::sqrt(-2.0 * libm::log(p));
-    let mut x = -(t
-        - (2.515_517 + 0.802_853 * t + 0.010_328 * t * t)
-            / (1.0 + 1.432_788 * t + 0.189_269 * t * t + 0.001_308 * t * t * t));
-    for _ in 0..2 {
-        let cdf = 0.5 * libm::erfc(-x / std::f64::consts::SQRT_2);
-        let pdf = libm::exp(-0.5 * x * x) / libm::sqrt(2.0 * std::f64::consts::PI);
-        let f = cdf - p;
-        x -= f / (pdf * (1.0 + x * f / (2.0 * pdf)));
-    }
-    x
-}
-
 /// Each trace cut into its first and last halves (the middle draw dropped
 /// when the length is odd), Vehtari et al. 2021, §4.1.
 pub(super) fn split_chains(traces: &[Vec<f64>]) -> Vec<Vec<f64>> {
@@ -240,25 +211,6 @@ pub(super) fn split_r_hat_of(chains: &[Vec<f64>]) -> f64 {
     let nf = n as f64;
     let var_plus = (nf - 1.0) / nf * within + between / nf;
     libm::sqrt(var_plus / within)
-}
-
-/// The `prob`-quantile of `len` values in ascending order, value i given by `at(i)`, by linear
-/// interpolation between order statistics (Hyndman & Fan 1996, The American Statistician 50, 361,
-/// definition 7; NumPy's default); NaN for no values. The one implementation of the crate's sample
-/// quantiles.
-pub fn quantile_type7(len: usize, at: impl Fn(usize) -> f64, prob: f64) -> f64 {
-    if len == 0 {
-        return f64::NAN;
-    }
-    let h = (len - 1) as f64 * prob;
-    let lo = libm::floor(h) as usize;
-    let hi = (lo + 1).min(len - 1);
-    at(lo) + (h - lo as f64) * (at(hi) - at(lo))
-}
-
-/// [`quantile_type7`] of a sorted slice.
-pub fn quantile_sorted(sorted: &[f64], prob: f64) -> f64 {
-    quantile_type7(sorted.len(), |i| sorted[i], prob)
 }
 
 /// Pooled draws of several equal-length chains in ascending order, each with its place
@@ -397,38 +349,6 @@ impl NormalScores {
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
-
-    /// Φ⁻¹ against tabulated values (Abramowitz & Stegun 1964, Table 26.5 /
-    /// common practice): Φ⁻¹(0.975) = 1.959963984540054, Φ⁻¹(0.5) = 0,
-    /// Φ⁻¹(1e-10) = −6.361340902404056 (scipy.stats.norm.ppf, scipy 1.17.1).
-    #[test]
-    fn normal_quantile_matches_reference_values() {
-        assert_relative_eq!(
-            standard_normal_quantile(0.975),
-            1.959_963_984_540_054,
-            epsilon = 1e-14
-        );
-        assert!(standard_normal_quantile(0.5).abs() < 1e-15);
-        assert_relative_eq!(
-            standard_normal_quantile(1e-10),
-            -6.361_340_902_404_056,
-            max_relative = 1e-13
-        );
-    }
-
-    proptest::proptest! {
-        /// Φ(Φ⁻¹(p)) = p to a relative 1e-13 across the range used by rank
-        /// normalisation (p ≥ 0.375/(S + 0.25) for S up to 10⁹ draws).
-        #[test]
-        fn normal_quantile_inverts_the_cdf(log10_p in -9.5f64..-0.302) {
-            let p = libm::pow(10.0, log10_p);
-            for q in [p, 1.0 - p] {
-                let x = standard_normal_quantile(q);
-                let back = 0.5 * libm::erfc(-x / std::f64::consts::SQRT_2);
-                proptest::prop_assert!((back - q).abs() <= 1e-13 * q.min(1.0 - q) + 1e-16, "{q}: {back}");
-            }
-        }
-    }
 
     /// Ranking the folded draws by merging the runs below and above the centre gives exactly
     /// the normal scores of ranking them by a sort (ties across the centre included), and the

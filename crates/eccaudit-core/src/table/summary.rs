@@ -5,6 +5,7 @@ use std::fmt;
 use serde::Serialize;
 
 use super::{StatedBy, TimeConvention, VelocityTable, VelocityUnit};
+use crate::stats::median;
 
 /// Statistics of one group of rows (one instrument, or all rows).
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -59,18 +60,6 @@ pub struct TableSummary {
     pub instruments: Vec<GroupSummary>,
     /// Notices from reading the table.
     pub notices: Vec<String>,
-}
-
-/// Median of a non-empty slice (mean of the two middle values for an even count).
-fn median(values: &[f64]) -> f64 {
-    let mut sorted = values.to_vec();
-    sorted.sort_by(f64::total_cmp);
-    let middle = sorted.len() / 2;
-    if sorted.len() % 2 == 1 {
-        sorted[middle]
-    } else {
-        0.5 * (sorted[middle - 1] + sorted[middle])
-    }
 }
 
 /// Statistics of the rows whose indices are given (non-empty).
