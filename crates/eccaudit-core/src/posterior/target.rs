@@ -740,7 +740,8 @@ mod tests {
     use crate::orbit::OrbitalElements;
     use approx::assert_relative_eq;
 
-    fn data() -> FitData {
+    /// 30 uneven epochs, two instruments, uneven σ (also the Jeffreys tests' table).
+    pub(super) fn data() -> FitData {
         let times: Vec<f64> = (0..30)
             .map(|i| 2_459_000.0 + 6.1 * i as f64 + 1.7 * libm::sin(0.9 * i as f64))
             .collect();
@@ -1028,6 +1029,7 @@ fn ln_det_cholesky(m: &mut [f64], p: usize) -> f64 {
 
 #[cfg(test)]
 mod jeffreys_tests {
+    use super::tests::data;
     use super::*;
     use crate::priors::EccentricityShape;
 
@@ -1043,23 +1045,6 @@ mod jeffreys_tests {
             e_max: 0.99,
         };
         s
-    }
-
-    /// 30 uneven epochs, two instruments, uneven σ.
-    fn data() -> FitData {
-        let times: Vec<f64> = (0..30)
-            .map(|i| 2_459_000.0 + 6.1 * i as f64 + 1.7 * libm::sin(0.9 * i as f64))
-            .collect();
-        let velocities: Vec<f64> = (0..30).map(|i| 20.0 * libm::cos(0.5 * i as f64)).collect();
-        let errors: Vec<f64> = (0..30).map(|i| 1.5 + 0.2 * (i % 4) as f64).collect();
-        let instruments: Vec<usize> = (0..30).map(|i| i % 2).collect();
-        FitData::new(
-            &times,
-            &velocities,
-            &errors,
-            &instruments,
-            &["a".into(), "b".into()],
-        )
     }
 
     fn hk(e: f64, w: f64) -> (f64, f64) {
