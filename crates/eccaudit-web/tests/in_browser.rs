@@ -104,7 +104,7 @@ fn fit_returns_the_report_and_its_figures_paint() {
     let settings = js_sys::JSON::parse(r#"{"companions": 1, "jitter": "off"}"#).unwrap();
     let report = dataset.fit(settings).unwrap();
     assert!(dataset.has_fit());
-    // The demo header's truth is P = 112.6 d, e = 0.47; the fit lands near it (cli_fit.rs).
+    // The demo header's truth is P = 112.6 d, e = 0.47; the fit lands near it (tests/cli/fit.rs).
     let period = js_sys::Reflect::get(&report, &"eccentric".into())
         .and_then(|s| js_sys::Reflect::get(&s, &"companions".into()))
         .and_then(|c| js_sys::Reflect::get(&c, &0.into()))

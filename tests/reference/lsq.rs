@@ -202,12 +202,12 @@ fn eckerle4(b: &[f64], x: f64, g: &mut [f64]) -> f64 {
 
 fn dataset(name: &'static str) -> NistDataset {
     let text = match name {
-        "Misra1a" => include_str!("data/nist/Misra1a.dat"),
-        "Thurber" => include_str!("data/nist/Thurber.dat"),
-        "MGH10" => include_str!("data/nist/MGH10.dat"),
-        "BoxBOD" => include_str!("data/nist/BoxBOD.dat"),
-        "Rat43" => include_str!("data/nist/Rat43.dat"),
-        "Eckerle4" => include_str!("data/nist/Eckerle4.dat"),
+        "Misra1a" => include_str!("../data/nist/Misra1a.dat"),
+        "Thurber" => include_str!("../data/nist/Thurber.dat"),
+        "MGH10" => include_str!("../data/nist/MGH10.dat"),
+        "BoxBOD" => include_str!("../data/nist/BoxBOD.dat"),
+        "Rat43" => include_str!("../data/nist/Rat43.dat"),
+        "Eckerle4" => include_str!("../data/nist/Eckerle4.dat"),
         other => panic!("no dataset {other}"),
     };
     parse_nist(name, text)

@@ -158,7 +158,7 @@ fn resume_refuses_other_settings() {
 #[test]
 fn audit_writes_the_statement() {
     // The nearly circular demo table (truth e = 0.03, stated in its header): the formal
-    // Lucy–Sweeney test (AJ 76, 544) does not exclude a circular orbit there (see cli_fit.rs).
+    // Lucy–Sweeney test (AJ 76, 544) does not exclude a circular orbit there (see fit.rs).
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("audit");
     let path = format!("{DEMO}/velka17-nearly-circular.csv");

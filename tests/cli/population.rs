@@ -3,7 +3,7 @@
 use assert_cmd::Command;
 use predicates::prelude::*;
 
-#[path = "../examples/make_survey_tables.rs"]
+#[path = "../../examples/make_survey_tables.rs"]
 #[allow(dead_code)]
 mod survey_tables;
 

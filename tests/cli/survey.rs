@@ -14,7 +14,7 @@ use std::path::{Path, PathBuf};
 use assert_cmd::Command;
 use predicates::prelude::*;
 
-#[path = "../examples/make_survey_tables.rs"]
+#[path = "../../examples/make_survey_tables.rs"]
 #[allow(dead_code)]
 mod survey_tables;
 

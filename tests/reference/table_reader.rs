@@ -1,4 +1,6 @@
-//! Velocity-table reader on the example files in tests/data/tables: good inputs read right, malformed inputs rejected with file, line and column.
+//! Velocity-table reader on the example files in tests/data/tables: good inputs read right,
+//! malformed inputs rejected with file, line and column (one loop over the fixtures of
+//! `malformed/` and their `expected/NAME.message` files, plus typed checks and inline cases).
 
 use approx::assert_relative_eq;
 use eccaudit_core::table::{
@@ -24,7 +26,7 @@ fn read_m_s(name: &str, text: &str) -> Result<VelocityTable, TableError> {
 
 #[test]
 fn csv_with_header_comments_blank_line_and_two_instruments() {
-    let text = include_str!("data/tables/good/two_instruments.csv");
+    let text = include_str!("../data/tables/good/two_instruments.csv");
     let table = read("two_instruments.csv", text).unwrap();
     assert_eq!(table.n_rows(), 5);
     assert_eq!(
@@ -73,7 +75,7 @@ fn csv_with_header_comments_blank_line_and_two_instruments() {
 
 #[test]
 fn tsv_with_units_in_header_is_converted_from_km_s() {
-    let text = include_str!("data/tables/good/kms.tsv");
+    let text = include_str!("../data/tables/good/kms.tsv");
     let table = read("kms.tsv", text).unwrap();
     assert_eq!(
         table.velocity_unit_in_source(),
@@ -95,7 +97,7 @@ fn tsv_with_units_in_header_is_converted_from_km_s() {
 
 #[test]
 fn whitespace_without_header_needs_and_takes_an_explicit_unit() {
-    let text = include_str!("data/tables/good/no_header.txt");
+    let text = include_str!("../data/tables/good/no_header.txt");
     let err = read("no_header.txt", text).unwrap_err();
     assert_eq!(
         err.to_string(),
@@ -142,7 +144,7 @@ fn full_julian_dates_without_convention_are_inferred_as_such() {
 
 #[test]
 fn unsorted_rows_are_sorted_stably_with_a_notice() {
-    let text = include_str!("data/tables/good/unsorted.csv");
+    let text = include_str!("../data/tables/good/unsorted.csv");
     let table = read("unsorted.csv", text).unwrap();
     assert_eq!(table.times(), &[58001.1, 58001.1, 58002.7, 58003.2]);
     // Equal times keep file order: line 3 (A) before line 5 (B).
@@ -205,10 +207,43 @@ fn explicit_delimiter_and_trailing_commas() {
 // Malformed inputs: message text and position
 // ----------------------------------------------------------------------------
 
+/// The malformed fixtures; each `NAME` has its one-line message in `expected/NAME.message`.
+const MALFORMED: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/tables/malformed");
+
+/// The error of reading malformed fixture `name` (its message is checked by
+/// [`every_malformed_fixture_gives_its_expected_message`]).
+fn malformed(name: &str) -> TableError {
+    let text = std::fs::read_to_string(format!("{MALFORMED}/{name}")).unwrap();
+    read(name, &text).unwrap_err()
+}
+
+/// Every file in `tests/data/tables/malformed/` is refused with exactly the message of
+/// `expected/NAME.message` (file, line and column where they apply). To add a malformed case,
+/// add both files. Positions worth knowing: in `bad_yaml.ecsv` the flow mapping opened on
+/// line 5 is never closed, so the YAML scanner stops at `schema:` on line 7, column 3 (after
+/// the `# ` prefix); in `bad_xml.vot`, `<TD>-1426.64</TR>` on line 22 does not match.
+#[test]
+fn every_malformed_fixture_gives_its_expected_message() {
+    let mut names: Vec<String> = std::fs::read_dir(MALFORMED)
+        .unwrap()
+        .map(|entry| entry.unwrap().path())
+        .filter(|path| path.is_file())
+        .map(|path| path.file_name().unwrap().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert!(names.len() >= 12, "{names:?}");
+    for name in names {
+        let expected = std::fs::read_to_string(format!("{MALFORMED}/expected/{name}.message"))
+            .unwrap_or_else(|_| panic!("{name} has no expected/{name}.message"));
+        let message = malformed(&name).to_string();
+        assert_eq!(message, expected.trim_end_matches('\n'), "{name}");
+        assert!(!message.contains('\n'), "{name}: one line");
+    }
+}
+
 #[test]
 fn non_numeric_field() {
-    let text = include_str!("data/tables/malformed/not_a_number.csv");
-    let err = read("not_a_number.csv", text).unwrap_err();
+    let err = malformed("not_a_number.csv");
     assert!(matches!(
         err,
         TableError::NotANumber {
@@ -217,16 +252,11 @@ fn non_numeric_field() {
             ..
         }
     ));
-    assert_eq!(
-        err.to_string(),
-        "not_a_number.csv:5:2: rv [m/s] (column 2) is not a number: `12..5`"
-    );
 }
 
 #[test]
 fn nan_uncertainty() {
-    let text = include_str!("data/tables/malformed/nan.csv");
-    let err = read("nan.csv", text).unwrap_err();
+    let err = malformed("nan.csv");
     assert!(matches!(
         err,
         TableError::NotFinite {
@@ -235,10 +265,6 @@ fn nan_uncertainty() {
             ..
         }
     ));
-    assert_eq!(
-        err.to_string(),
-        "nan.csv:3:3: err (column 3) is `NaN`; only finite numbers are allowed"
-    );
     let err = read("inf.csv", "time,rv [m/s],err\n1,2,3\n2,-inf,3\n3,4,5\n").unwrap_err();
     assert_eq!(
         err.to_string(),
@@ -248,8 +274,7 @@ fn nan_uncertainty() {
 
 #[test]
 fn zero_uncertainty_in_a_reordered_tsv() {
-    let text = include_str!("data/tables/malformed/zero_uncertainty.tsv");
-    let err = read("zero_uncertainty.tsv", text).unwrap_err();
+    let err = malformed("zero_uncertainty.tsv");
     assert!(matches!(
         err,
         TableError::NonPositiveUncertainty {
@@ -258,10 +283,6 @@ fn zero_uncertainty_in_a_reordered_tsv() {
             ..
         }
     ));
-    assert_eq!(
-        err.to_string(),
-        "zero_uncertainty.tsv:5:1: err (column 1) must be greater than zero, found `0.0`"
-    );
     let err = read_m_s("negative.txt", "1 2 3\n2 3 -0.5\n3 4 5\n").unwrap_err();
     assert_eq!(
         err.to_string(),
@@ -271,8 +292,7 @@ fn zero_uncertainty_in_a_reordered_tsv() {
 
 #[test]
 fn wrong_number_of_fields() {
-    let text = include_str!("data/tables/malformed/wrong_field_count.csv");
-    let err = read("wrong_field_count.csv", text).unwrap_err();
+    let err = malformed("wrong_field_count.csv");
     assert!(matches!(
         err,
         TableError::WrongFieldCount {
@@ -282,10 +302,6 @@ fn wrong_number_of_fields() {
             ..
         }
     ));
-    assert_eq!(
-        err.to_string(),
-        "wrong_field_count.csv:3: expected 4 fields (as on line 1), found 5"
-    );
     let err = read_m_s("short.txt", "\n1 2 3\n2 3\n3 4 5\n").unwrap_err();
     assert_eq!(
         err.to_string(),
@@ -301,8 +317,7 @@ fn wrong_number_of_fields() {
 
 #[test]
 fn duplicate_row_names_both_lines() {
-    let text = include_str!("data/tables/malformed/duplicate.csv");
-    let err = read("duplicate.csv", text).unwrap_err();
+    let err = malformed("duplicate.csv");
     assert!(matches!(
         err,
         TableError::DuplicateRow {
@@ -311,30 +326,11 @@ fn duplicate_row_names_both_lines() {
             ..
         }
     ));
-    assert_eq!(
-        err.to_string(),
-        "duplicate.csv:6: duplicate row: time 2.0 for instrument `A` appears on line 3 and line 6"
-    );
-}
-
-#[test]
-fn too_few_rows() {
-    let text = include_str!("data/tables/malformed/too_few.csv");
-    let err = read("too_few.csv", text).unwrap_err();
-    assert_eq!(
-        err.to_string(),
-        "too_few.csv: too few data rows: found 2, need at least 3"
-    );
 }
 
 #[test]
 fn empty_file_and_header_only() {
-    let text = include_str!("data/tables/malformed/empty.csv");
-    let err = read("empty.csv", text).unwrap_err();
-    assert_eq!(
-        err.to_string(),
-        "empty.csv: the table has no data rows (only blank or comment lines)"
-    );
+    let err = malformed("empty.csv");
     let err = read("blank.csv", "").unwrap_err();
     assert!(matches!(err, TableError::Empty { .. }));
     let err = read("header.csv", "# c\ntime,rv [m/s],err\n").unwrap_err();
@@ -346,8 +342,7 @@ fn empty_file_and_header_only() {
 
 #[test]
 fn unknown_header_name_and_unit() {
-    let text = include_str!("data/tables/malformed/unknown_header.csv");
-    let err = read("unknown_header.csv", text).unwrap_err();
+    let err = malformed("unknown_header.csv");
     assert!(matches!(
         err,
         TableError::UnknownHeader {
@@ -356,11 +351,6 @@ fn unknown_header_name_and_unit() {
             ..
         }
     ));
-    assert!(
-        err.to_string()
-            .starts_with("unknown_header.csv:1:4: unknown column name `flux` in the header (column 4); accepted names: time"),
-        "{err}"
-    );
     let err = read("cm.csv", "\ntime,rv [cm/s],err\n1,2,3\n2,3,4\n3,4,5\n").unwrap_err();
     assert_eq!(
         err.to_string(),
@@ -380,19 +370,8 @@ fn unknown_header_name_and_unit() {
 }
 
 #[test]
-fn velocity_unit_not_stated_in_header() {
-    let text = include_str!("data/tables/malformed/no_unit.csv");
-    let err = read("no_unit.csv", text).unwrap_err();
-    assert_eq!(
-        err.to_string(),
-        "no_unit.csv: velocity unit not stated: write it in the header of column 2 \
-         (e.g. `rv [m/s]`) or choose it (command line: --velocity-unit m/s|km/s; page: the Velocity unit menu)"
-    );
-}
-
-#[test]
 fn header_and_explicit_settings_that_disagree() {
-    let text = include_str!("data/tables/good/kms.tsv");
+    let text = include_str!("../data/tables/good/kms.tsv");
     let options = ReadOptions {
         velocity_unit: Some(VelocityUnit::MetresPerSecond),
         ..ReadOptions::new("kms.tsv")

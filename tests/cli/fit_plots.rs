@@ -76,7 +76,7 @@ fn eccentric_demo_writes_periodogram_and_phase_fold() {
 #[test]
 fn circular_adopted_fold_with_two_instruments_says_where_phase_zero_is() {
     // The nearly circular demo with two instruments: its adopted solution is the circular
-    // refit (see cli_fit.rs), so phase 0 is the time of maximum velocity.
+    // refit (see fit.rs), so phase 0 is the time of maximum velocity.
     let dir = tempfile::tempdir().unwrap();
     let path = format!("{DEMO}/velka17-nearly-circular.csv");
     eccaudit()

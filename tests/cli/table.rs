@@ -87,16 +87,32 @@ fn missing_unit_is_one_readable_line() {
         )));
 }
 
+/// Every malformed fixture fails with one line: `eccaudit: error: ` and the message of
+/// `malformed/expected/NAME.message` (the reader's own, checked in the reference tests).
 #[test]
-fn parse_error_names_file_line_and_column() {
-    let path = format!("{DATA}/malformed/not_a_number.csv");
-    eccaudit()
-        .args(["table", &path])
-        .assert()
-        .failure()
-        .stderr(predicate::eq(format!(
-            "eccaudit: error: {path}:5:2: rv [m/s] (column 2) is not a number: `12..5`\n"
-        )));
+fn every_malformed_fixture_fails_with_its_one_line_message() {
+    let dir = format!("{DATA}/malformed");
+    let mut names: Vec<String> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|entry| entry.unwrap().path())
+        .filter(|path| path.is_file())
+        .map(|path| path.file_name().unwrap().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert!(names.len() >= 12, "{names:?}");
+    for name in names {
+        let expected = std::fs::read_to_string(format!("{dir}/expected/{name}.message")).unwrap();
+        eccaudit()
+            .current_dir(&dir)
+            .args(["table", &name])
+            .assert()
+            .failure()
+            .stdout(predicate::str::is_empty())
+            .stderr(predicate::eq(format!(
+                "eccaudit: error: {}\n",
+                expected.trim_end_matches('\n')
+            )));
+    }
 }
 
 #[test]

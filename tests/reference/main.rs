@@ -1,0 +1,17 @@
+//! The reference-value tests (a published source, library or closed form named beside each
+//! check): one binary, one module per subject. Add a test file as `tests/reference/NAME.rs`
+//! (starting with its `//!` line) and declare it here.
+
+mod convergence;
+mod fit;
+mod inject;
+mod kepler;
+mod lsq;
+mod model;
+mod periodogram;
+mod population;
+mod posterior;
+mod priors;
+mod sampler;
+mod table_reader;
+mod tables;
