@@ -1,6 +1,12 @@
 //! The command-line tests: one binary (link once), one module per command or concern.
 //! Add a test file as `tests/cli/NAME.rs` (starting with its `//!` line) and declare it here.
 
+/// The simulated survey tables of `examples/make_survey_tables.rs`, shared by `survey.rs` and
+/// `population.rs`.
+#[path = "../../examples/make_survey_tables.rs"]
+#[allow(dead_code)]
+mod survey_tables;
+
 mod audit_settings;
 mod curve;
 mod errors;

@@ -3,9 +3,7 @@
 use assert_cmd::Command;
 use predicates::prelude::*;
 
-#[path = "../../examples/make_survey_tables.rs"]
-#[allow(dead_code)]
-mod survey_tables;
+use crate::survey_tables;
 
 const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
 

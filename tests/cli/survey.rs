@@ -14,9 +14,7 @@ use std::path::{Path, PathBuf};
 use assert_cmd::Command;
 use predicates::prelude::*;
 
-#[path = "../../examples/make_survey_tables.rs"]
-#[allow(dead_code)]
-mod survey_tables;
+use crate::survey_tables;
 
 fn eccaudit() -> Command {
     let mut cmd = Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests");

@@ -3,7 +3,6 @@
 //! its trials as ECSV too.
 
 use assert_cmd::Command;
-use predicates::prelude::*;
 
 const ROOT: &str = env!("CARGO_MANIFEST_DIR");
 

@@ -330,7 +330,6 @@ fn duplicate_row_names_both_lines() {
 
 #[test]
 fn empty_file_and_header_only() {
-    let err = malformed("empty.csv");
     let err = read("blank.csv", "").unwrap_err();
     assert!(matches!(err, TableError::Empty { .. }));
     let err = read("header.csv", "# c\ntime,rv [m/s],err\n").unwrap_err();

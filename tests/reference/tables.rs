@@ -3,7 +3,7 @@
 //! were made from (their malformed files are fixtures of `table_reader.rs`' one loop).
 
 use eccaudit_core::table::{
-    parse_table, ReadOptions, TableError, TableFormat, TimeScale, VelocityTable, VelocityUnit,
+    parse_table, ReadOptions, TableFormat, TimeScale, VelocityTable, VelocityUnit,
 };
 
 fn read(name: &str, text: &str) -> VelocityTable {
