@@ -510,7 +510,7 @@ fn run_until_converged_refuses_a_bimodal_target_and_accepts_a_gaussian() {
 
 /// Speed: 32 walkers × 2000 steps (+500 burn-in) on a 6-D Gaussian,
 /// plus the diagnostics. Run with
-/// `cargo test --release --test reference_sampler -- --ignored --nocapture`;
+/// `cargo test --release --test reference sampler::six_dimensional_run_is_fast -- --ignored --nocapture`;
 /// asserts under one second (timing, so ignored in debug runs).
 #[test]
 #[ignore = "timing; run in release"]
