@@ -84,8 +84,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             println!("{}", serde_json::to_string(&rate)?);
         } else {
             println!(
-                "eccaudit: ESS(e) {:.0} in {:.3} s = {:.0} per second (tau_e {:.1} steps, {} draws, {} evaluations at {:.0} ns, {:.0} % of the run outside the log-density; median e {:.4}; converged {})",
-                rate.ess_e, rate.seconds, rate.ess_per_second, rate.tau_e_steps, rate.draws,
+                "eccaudit: ESS(e) {:.0} in {:.3} s CPU ({:.3} s wall) = {:.0} per CPU second (tau_e {:.1} steps, {} draws, {} evaluations at {:.0} ns, {:.0} % of the run outside the log-density; median e {:.4}; converged {})",
+                rate.ess_e, rate.cpu_seconds, rate.seconds, rate.ess_per_cpu_second, rate.tau_e_steps, rate.draws,
                 rate.evaluations, rate.log_density_ns, 100.0 * rate.overhead_fraction,
                 rate.median_e, rate.converged
             );
