@@ -6,6 +6,7 @@
 # Usage: bash scripts/bench-emcee.sh [VENV_DIR [ROUNDS]]
 #   VENV_DIR: default a throw-away directory under /tmp (an existing one is reused);
 #   ROUNDS: side-by-side rounds (eccaudit then emcee), default 1.
+#   ECCAUDIT_BIN=PATH: use that eccaudit build instead of building target/release/eccaudit.
 #
 # emcee and numpy are installed from PyPI into a fresh virtual environment (pinned versions
 # below); eccaudit is built with `cargo build --release`. The table is simulated here with a
@@ -26,7 +27,9 @@ ROUNDS="${2:-1}"
 export OMP_NUM_THREADS=1 OPENBLAS_NUM_THREADS=1 MKL_NUM_THREADS=1
 python3 -m venv "$VENV"
 "$VENV/bin/pip" install --quiet "numpy==2.2.6" "emcee==3.1.6"
-cargo build --release --quiet
+# ECCAUDIT_BIN=path uses a given build instead (e.g. to compare two builds in one session).
+BIN="${ECCAUDIT_BIN:-target/release/eccaudit}"
+[ -n "${ECCAUDIT_BIN:-}" ] || cargo build --release --quiet
 TABLE="$VENV/bench-table.csv"
 "$VENV/bin/python" - "$TABLE" <<'PY'
 import sys
@@ -47,7 +50,7 @@ with open(sys.argv[1], "w") as f:
 PY
 for round in $(seq 1 "$ROUNDS"); do
 [ "$ROUNDS" -gt 1 ] && echo "round $round of $ROUNDS"
-OURS=$(target/release/eccaudit bench --ess "$TABLE" --json --repeats 3)
+OURS=$("$BIN" bench --ess "$TABLE" --json --repeats 3)
 "$VENV/bin/python" - "$TABLE" "$OURS" <<'PY'
 import json, sys, time
 import numpy as np

@@ -116,6 +116,42 @@ fn relocation_gap(dim: usize) -> f64 {
     20.0 + 3.0 * libm::sqrt(dim as f64 / 2.0)
 }
 
+/// Stored steps per autocorrelation time below which a run is not thinned further
+/// ([`thinning_halvings`]).
+pub const MIN_STORED_PER_TAU: f64 = 8.0;
+
+/// Fewest stored steps a run keeps after thinning.
+const MIN_STORED_AFTER_THINNING: usize = 64;
+
+/// How many times to halve the stored steps (doubling the thinning) after a check that asks
+/// for more steps, so that the fastest-mixing quantity judged keeps at least
+/// [`MIN_STORED_PER_TAU`] stored steps per autocorrelation time τ (and at least 64 stored
+/// steps remain). Every later check, the summary and the storage then cost a bounded number of
+/// stored steps per τ instead of growing with τ. Thinning a chain whose τ is ≥ 16 stored steps
+/// by 2 costs little: for an AR(1) series (ρ = (τ − 1)/(τ + 1)) the effective sample size falls
+/// by τ / (2 τ₂) with τ₂ = (1 + ρ²)/(1 − ρ²), i.e. by 0.4 % at τ = 16 (computed; Geyer 1992,
+/// Stat. Sci. 7, 473, §3.6 on thinning). Only estimates whose Sokal window was found count.
+pub fn thinning_halvings(diagnostics: &Diagnostics, n_stored_steps: usize) -> usize {
+    let tau_min = diagnostics
+        .parameters
+        .iter()
+        .filter(|p| p.autocorrelation.window_found && p.autocorrelation.tau.is_finite())
+        .map(|p| p.autocorrelation.tau)
+        .fold(f64::INFINITY, f64::min);
+    if !tau_min.is_finite() {
+        return 0;
+    }
+    let mut halvings = 0;
+    let mut tau = tau_min;
+    let mut stored = n_stored_steps;
+    while tau / 2.0 >= MIN_STORED_PER_TAU && stored / 2 >= MIN_STORED_AFTER_THINNING {
+        tau /= 2.0;
+        stored /= 2;
+        halvings += 1;
+    }
+    halvings
+}
+
 /// Runs `starts.len()` independent ensembles (walker positions of ensemble m in `starts[m]`,
 /// random stream m of `sampler.seed`) through `sampler.n_burn` burn-in steps, moves walkers
 /// stranded far below the others at the end of burn-in, then samples `sampler.n_steps` steps
@@ -143,6 +179,19 @@ pub fn run_until_converged<T: LogDensity + ?Sized>(
         })
         .collect::<Result<Vec<_>, _>>()?;
     let per_step = (sampler.n_walkers * states.len()) as u64;
+    // Storage for every step the run may store, reserved once: at most the steps the budget
+    // affords after burn-in, and never more than `max_stored_steps` plus one chunk (storage is
+    // halved beyond it), so no reallocation and copy happens while the run grows.
+    let stored_bound = if length.until_converged {
+        let affordable = (length.max_evaluations / per_step.max(1)) as usize;
+        (affordable.saturating_sub(sampler.n_burn) / sampler.thin.max(1))
+            .min(length.max_stored_steps.max(2) + RUN_CHUNK)
+    } else {
+        sampler.n_steps / sampler.thin.max(1)
+    };
+    for state in &mut states {
+        state.reserve_stored_steps(stored_bound);
+    }
     let mut evaluations = per_step;
     let mut checks = 0usize;
     let mut last_times = f64::NAN;
@@ -229,6 +278,11 @@ pub fn run_until_converged<T: LogDensity + ?Sized>(
             let affordable = (budget.saturating_sub(evaluations) / per_step.max(1)) as usize;
             let extra = extra.min(affordable);
             if extra >= RUN_CHUNK {
+                for _ in 0..thinning_halvings(&diagnostics, states[0].chains().n_stored_steps) {
+                    for state in &mut states {
+                        state.halve_storage();
+                    }
+                }
                 for state in &mut states {
                     state.extend(extra);
                 }
@@ -273,5 +327,73 @@ pub fn run_until_converged<T: LogDensity + ?Sized>(
             relocated,
             checks,
         });
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::ensemble::DensityFn;
+    use super::super::verdict::{diagnose_ensembles_at, ConvergenceThresholds, DiagnosisDepth};
+    use super::*;
+    use crate::random::{standard_normal, stream_rng};
+
+    /// A slowly mixing run (stretch move only, scale a = 1.2, on a 2-D unit Gaussian: τ of
+    /// tens of steps) is thinned at its checks, keeps ≥ 64 stored steps, converges, and its
+    /// thinned draws still give the target's moments: |mean| within 4 Monte-Carlo standard
+    /// errors (σ/√ESS with ESS = N/τ of the final check) and the variance within 4 standard
+    /// errors (√(2/ESS) relative, Gaussian draws; common practice).
+    #[test]
+    fn slow_chains_are_thinned_and_keep_the_moments() {
+        let target = DensityFn {
+            dim: 2,
+            log_density: |x: &[f64]| -0.5 * (x[0] * x[0] + x[1] * x[1]),
+        };
+        let sampler = SamplerSettings {
+            n_walkers: 8,
+            n_steps: 600,
+            n_burn: 100,
+            stretch_a: 1.2,
+            de_fraction: 0.0,
+            seed: 3,
+            ..SamplerSettings::default()
+        };
+        let starts: Vec<Vec<f64>> = (0..4)
+            .map(|m| {
+                let mut rng = stream_rng(3, 50 + m);
+                (0..16).map(|_| standard_normal(&mut rng)).collect()
+            })
+            .collect();
+        let thresholds = ConvergenceThresholds::default();
+        let run = run_until_converged(
+            &target,
+            &starts,
+            &sampler,
+            &RunLength {
+                max_evaluations: 4_000_000,
+                ..RunLength::default()
+            },
+            &mut |e: &[&Chains]| {
+                diagnose_ensembles_at(e, &thresholds, DiagnosisDepth::Quick, true, &[])
+            },
+            &mut |_| Steer::Continue,
+        )
+        .unwrap();
+        assert!(run.diagnostics.converged, "{}", run.diagnostics.verdict());
+        let chains = run.merged();
+        assert!(chains.thin >= 2, "thin {}", chains.thin);
+        assert!(chains.n_stored_steps >= MIN_STORED_AFTER_THINNING);
+        for param in 0..2 {
+            let d = &run.diagnostics.parameters[param];
+            let values = chains.flat_parameter(param);
+            let n = values.len() as f64;
+            let ess = n / d.autocorrelation.tau;
+            let mean = values.iter().sum::<f64>() / n;
+            let var = values.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>() / (n - 1.0);
+            assert!(mean.abs() < 4.0 / ess.sqrt(), "mean {mean}, ESS {ess}");
+            assert!(
+                (var - 1.0).abs() < 4.0 * (2.0 / ess).sqrt(),
+                "var {var}, ESS {ess}"
+            );
+        }
     }
 }

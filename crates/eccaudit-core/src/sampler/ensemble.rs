@@ -480,9 +480,21 @@ impl EnsembleState {
     /// way; the chains continue exactly as if the longer run had been planned from the start).
     pub fn extend(&mut self, extra: usize) {
         self.settings.n_steps += extra;
-        self.chains
+    }
+
+    /// Reserves room for `stored_steps` stored steps in all (one allocation up front instead of
+    /// growth by reallocation and copies during the run; the caller bounds the count).
+    pub fn reserve_stored_steps(&mut self, stored_steps: usize) {
+        let (w, dim) = (self.settings.n_walkers, self.dim);
+        let chains = &mut self.chains;
+        let samples = stored_steps * w * dim;
+        chains
             .samples
-            .reserve(extra / self.settings.thin * self.settings.n_walkers * self.dim);
+            .reserve_exact(samples.saturating_sub(chains.samples.len()));
+        let densities = stored_steps * w;
+        chains
+            .log_densities
+            .reserve_exact(densities.saturating_sub(chains.log_densities.len()));
     }
 
     /// Keeps every second stored step and doubles the thinning, so that a long run holds at most
