@@ -94,6 +94,12 @@ pub struct RunArgs {
     /// Most log-density evaluations of each posterior run (its per-trial budget).
     #[arg(long, default_value_t = eccaudit_core::posterior::FAST_MAX_EVALUATIONS)]
     pub posterior_max_evaluations: u64,
+    /// `audit` and `survey`: base simulations per injected e that also run the posterior
+    /// estimators (the first ones of each e; the others run least squares only). Posterior
+    /// runs are the expensive part of an audit; their Monte-Carlo errors are printed.
+    /// Default 8; `inject` runs the posterior in every trial.
+    #[arg(long, value_name = "N", default_value_t = eccaudit_core::audit::DEFAULT_POSTERIOR_TRIALS_PER_CELL)]
+    pub posterior_trials: usize,
     /// Hide the progress bar (it is hidden anyway when standard error is not a terminal).
     #[arg(long)]
     pub quiet: bool,
@@ -258,6 +264,7 @@ pub fn posterior_settings(run: &RunArgs) -> PosteriorInjectionSettings {
         n_steps: run.posterior_steps,
         n_burn: run.posterior_burn,
         max_evaluations: run.posterior_max_evaluations,
+        trials_per_cell: Some(run.posterior_trials),
     }
 }
 
