@@ -21,8 +21,9 @@ use crate::fit::{
     EccentricityCoordinates, FitData, FitError, FitOptions, FitReport, ParameterLayout, RvProblem,
 };
 use crate::inject::adaptive::{
-    kind_of_trial, ExtraKind, ExtraState, BELT_MIN_ALL, BELT_MIN_LEAST_SQUARES, BELT_TARGET_ERROR,
-    BIAS_TARGET_ERROR, DECISION_CAP, DECISION_FAR, DECISION_TARGET_ERROR,
+    kind_of_trial, ExtraKind, ExtraState, BELT_MAX_LEAST_SQUARES, BELT_MIN_ALL,
+    BELT_MIN_LEAST_SQUARES, BELT_TARGET_ERROR, BIAS_TARGET_ERROR, DECISION_CAP, DECISION_FAR,
+    DECISION_TARGET_ERROR,
 };
 use crate::inject::statement::{
     cells_in_use, choose, decision_statistic, estimates_by_cell, interval_errors, output_belt,
@@ -899,7 +900,8 @@ impl AuditPlan {
     /// on ([`cells_in_use`]), enough in the cell nearest its value for a bias standard error of
     /// [`BIAS_TARGET_ERROR`], then more in the two cells bracketing an end of its interval
     /// while that end's bootstrap standard error ([`interval_errors`], as the statement
-    /// computes it) exceeds [`BELT_TARGET_ERROR`]. A posterior output: every-estimator trials,
+    /// computes it) exceeds [`BELT_TARGET_ERROR`] (up to [`BELT_MAX_LEAST_SQUARES`] per cell).
+    /// A posterior output: every-estimator trials,
     /// at least [`BELT_MIN_ALL`] in the cells its interval rests on and the bias target at the
     /// nearest. Each within its kind's cap. Only base trials and complete batches are looked
     /// at, so the sequence of batches does not depend on how trials were split or on an
@@ -1025,7 +1027,12 @@ impl AuditPlan {
         wanted.dedup();
         for j in wanted {
             if let Some(batch) = state.next(design, cells[j].index, ExtraKind::LeastSquares) {
-                return Some(batch);
+                // Batches double: take one only while it keeps the cell within the cap.
+                if per_cell[j].len() as u64 + (batch.end - batch.start)
+                    <= BELT_MAX_LEAST_SQUARES as u64
+                {
+                    return Some(batch);
+                }
             }
         }
         None

@@ -26,6 +26,10 @@ pub const DECISION_CAP: u64 = 10_000;
 pub const DECISION_FAR: [f64; 2] = [0.01, 0.2];
 /// Target bootstrap standard error of each end of the quoted least-squares interval.
 pub const BELT_TARGET_ERROR: f64 = 0.005;
+/// Most simulations the interval rule adds up to in one cell (base + extra): past this the
+/// interval's ends are quoted with the bootstrap errors they have (a coarse grid can keep them
+/// above [`BELT_TARGET_ERROR`]).
+pub const BELT_MAX_LEAST_SQUARES: usize = 4000;
 /// Target Monte-Carlo standard error of the quoted bias.
 pub const BIAS_TARGET_ERROR: f64 = 0.005;
 /// Fewest simulations of the recommended estimator in each cell its interval rests on, when it

@@ -923,8 +923,11 @@ fn methods(
         text.push_str(&format!(
             "The circular decision is the Monte-Carlo p = (k+1)/(n+1) of {} against the circular \
              simulations; circular trials were added in batches while the Wilson 95% interval of \
-             p contained 0.05 or its standard error exceeded {}, up to {}. ",
+             p contained 0.05 or, unless that interval lay wholly below {} or above {}, its \
+             standard error exceeded {}, up to {}. ",
             d.statistic,
+            grid_value(crate::inject::adaptive::DECISION_FAR[0]),
+            grid_value(crate::inject::adaptive::DECISION_FAR[1]),
             grid_value(crate::inject::adaptive::DECISION_TARGET_ERROR),
             s.max_circular_trials
         ));
