@@ -89,6 +89,8 @@ export function wireAudit({ currentTable, el, currentModel }) {
   form.elements.posterior_walkers.value = String(defaults.injection.posterior.n_walkers);
   form.elements.posterior_steps.value = String(defaults.injection.posterior.n_steps);
   form.elements.posterior_burn.value = String(defaults.injection.posterior.n_burn);
+  form.elements.posterior_trials.value = defaults.injection.posterior.trials_per_cell === null ? "" : String(defaults.injection.posterior.trials_per_cell);
+  form.elements.posterior_max_evaluations.value = String(defaults.injection.posterior.max_evaluations);
 
   let job = null;      // the run in progress: {run, workers, ...}
   let shown = null;    // the result on the page: {run, report, settingsJson, tableName}
@@ -134,6 +136,10 @@ export function wireAudit({ currentTable, el, currentModel }) {
     settings.injection.posterior.n_walkers = number("posterior_walkers", "posterior walkers", even);
     settings.injection.posterior.n_steps = number("posterior_steps", "posterior steps", positiveWhole);
     settings.injection.posterior.n_burn = number("posterior_burn", "posterior burn-in", whole);
+    // Empty = the posterior runs in every base simulation (null in the replay file).
+    const posteriorTrials = String(data.get("posterior_trials") ?? "").trim();
+    settings.injection.posterior.trials_per_cell = posteriorTrials === "" ? null : number("posterior_trials", "posterior trials per e", whole);
+    settings.injection.posterior.max_evaluations = number("posterior_max_evaluations", "posterior evaluations per trial", positiveWhole);
     return auditSettingsFor(table.text, table.name, table.velocityUnit, table.timeConvention, JSON.stringify(settings));
   }
 

@@ -12,17 +12,16 @@ use std::sync::Mutex;
 use super::input::{read_table, TableArgs};
 use super::model_args::ModelArgs;
 use anyhow::{bail, Context};
-use eccaudit_core::audit::{trial_model, PosteriorInjectionSettings};
-use eccaudit_core::fit::{FitData, FitOptions};
+use eccaudit_core::audit::{
+    table_design, InjectedAmplitudes, PosteriorInjectionSettings, TableDesignGrid,
+};
 use eccaudit_core::inject::trials_ecsv;
 use eccaudit_core::inject::{
     default_eccentricity_grid, run_trial, settings_fingerprint, summarise, trial_file, Estimator,
     InjectionDesign, InjectionSummary, LeastSquaresEstimator, LeastSquaresSettings, Sampling,
     Schedule, Spacing, TrialModel, TrialPeriod, TrialRecord,
 };
-use eccaudit_core::spec::{fit_model, ModelFit, ModelSpec};
 use eccaudit_core::survey::Shard;
-use eccaudit_core::table::VelocityTable;
 use eccaudit_plot::plotters::prelude::{IntoDrawingArea, SVGBackend};
 use eccaudit_plot::{bias_figure, distribution_figure, draw_bias_curve, draw_distributions};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
@@ -94,6 +93,12 @@ pub struct RunArgs {
     /// Most log-density evaluations of each posterior run (its per-trial budget).
     #[arg(long, default_value_t = eccaudit_core::posterior::FAST_MAX_EVALUATIONS)]
     pub posterior_max_evaluations: u64,
+    /// `audit` and `survey`: base simulations per injected e that also run the posterior
+    /// estimators (the first ones of each e; the others run least squares only). Posterior
+    /// runs are the expensive part of an audit; their Monte-Carlo errors are printed.
+    /// Default 8; `inject` runs the posterior in every trial.
+    #[arg(long, value_name = "N", default_value_t = eccaudit_core::audit::DEFAULT_POSTERIOR_TRIALS_PER_CELL)]
+    pub posterior_trials: usize,
     /// Hide the progress bar (it is hidden anyway when standard error is not a terminal).
     #[arg(long)]
     pub quiet: bool,
@@ -208,25 +213,6 @@ pub struct Args {
     pub json: bool,
 }
 
-/// The fit of `model` to a table, and the rest of the model of its simulations of companion 1
-/// (background of the other companions, trend and offsets; fitted jitters; the refit's model).
-pub fn fit_table(
-    table: &VelocityTable,
-    model: &ModelSpec,
-    seed: u64,
-) -> anyhow::Result<(ModelFit, TrialModel)> {
-    let model = model.validate()?;
-    let data = FitData::from_table(table);
-    let base = FitOptions {
-        seed,
-        ..FitOptions::default()
-    };
-    let fit = fit_model(&data, &model, &base)
-        .with_context(|| format!("fit of `{}`", table.source_name()))?;
-    let trial = trial_model(&data, &fit, 0);
-    Ok((fit, trial))
-}
-
 /// The least-squares estimator of the run arguments.
 pub fn estimator(run: &RunArgs) -> LeastSquaresEstimator {
     LeastSquaresEstimator {
@@ -258,6 +244,7 @@ pub fn posterior_settings(run: &RunArgs) -> PosteriorInjectionSettings {
         n_steps: run.posterior_steps,
         n_burn: run.posterior_burn,
         max_evaluations: run.posterior_max_evaluations,
+        trials_per_cell: Some(run.posterior_trials),
     }
 }
 
@@ -491,19 +478,29 @@ pub fn write_outputs(
 
 /// Run the injection–recovery grid and report it.
 pub fn run(args: Args) -> anyhow::Result<()> {
-    let (sampling, fitted) = match (&args.file, args.epochs) {
+    let design = match (&args.file, args.epochs) {
         (Some(path), None) => {
+            // The core's design of an injection run on a table (shared with Python).
             let table = read_table(path, &args.table)?;
-            let sampling = Sampling::from_table(&table);
-            let (fit, trial) = fit_table(&table, &args.model.spec(Some(1)), args.run.seed)?;
+            let grid = TableDesignGrid {
+                eccentricities: args.run.eccentricities.clone(),
+                omegas_deg: args.run.omegas_deg.clone(),
+                added_noise: args.run.added_noise,
+                trials_per_cell: args.run.trials.unwrap_or(200),
+                seed: args.run.seed,
+                semi_amplitudes: if !args.semi_amplitudes.is_empty() {
+                    InjectedAmplitudes::Given(args.semi_amplitudes.clone())
+                } else if !args.k_over_sigma.is_empty() {
+                    InjectedAmplitudes::OverSigma(args.k_over_sigma.clone())
+                } else {
+                    InjectedAmplitudes::Fitted
+                },
+            };
+            let (fit, design) = table_design(&table, &args.model.spec(Some(1)), &grid)?;
             for note in &fit.notes {
                 eprintln!("eccaudit: {note}");
             }
-            let c = &fit.report.eccentric.companions[0];
-            (
-                sampling,
-                Some((c.period.value, c.semi_amplitude.value, trial)),
-            )
+            design
         }
         (None, Some(n_epochs)) => {
             let (Some(baseline), Some(uncertainty)) = (args.baseline, args.uncertainty) else {
@@ -520,35 +517,34 @@ pub fn run(args: Args) -> anyhow::Result<()> {
                 },
                 uncertainty,
             };
-            (Sampling::from_schedule(&schedule, args.run.seed)?, None)
+            let sampling = Sampling::from_schedule(&schedule, args.run.seed)?;
+            let Some(&period) = args.model.periods.first() else {
+                bail!("a schedule needs --period");
+            };
+            let mut design = design(sampling, period, vec![1.0], &args.run)?;
+            design.semi_amplitudes = if !args.semi_amplitudes.is_empty() {
+                args.semi_amplitudes.clone()
+            } else if !args.k_over_sigma.is_empty() {
+                let unit = design.signal_to_noise(1.0);
+                args.k_over_sigma.iter().map(|r| r / unit).collect()
+            } else {
+                bail!("a schedule needs --k or --k-over-sigma");
+            };
+            design.validate()?;
+            design
         }
         (Some(_), Some(_)) => bail!("give either a table FILE or a schedule (--epochs), not both"),
         (None, None) => {
             bail!("give a table FILE or a schedule (--epochs, --baseline, --uncertainty)")
         }
     };
-    let period = match (&fitted, args.model.periods.first()) {
-        (Some((p, _, _)), _) => *p,
-        (None, Some(&p)) => p,
-        (None, None) => bail!("a schedule needs --period"),
-    };
-    let mut design = design(sampling, period, vec![1.0], &args.run)?;
-    if let Some((_, _, trial)) = &fitted {
-        design.model = trial.clone();
-    }
-    design.semi_amplitudes = if !args.semi_amplitudes.is_empty() {
-        args.semi_amplitudes.clone()
-    } else if !args.k_over_sigma.is_empty() {
-        let unit = design.signal_to_noise(1.0);
-        args.k_over_sigma.iter().map(|r| r / unit).collect()
-    } else if let Some((_, k, _)) = fitted {
-        vec![k]
-    } else {
-        bail!("a schedule needs --k or --k-over-sigma");
-    };
-    design.validate()?;
     let lsq = estimator(&args.run);
-    let posteriors = posterior_settings(&args.run).estimators_for(args.run.seed, &design)?;
+    // The trial posteriors sample the jitter as `priors` and `audit` do under the jitter mode.
+    let posteriors = posterior_settings(&args.run).estimators_for_mode(
+        args.run.seed,
+        &design,
+        args.model.jitter,
+    )?;
     let estimators: Vec<&dyn Estimator> = std::iter::once(&lsq as &dyn Estimator)
         .chain(posteriors.iter().map(|p| p as &dyn Estimator))
         .collect();

@@ -91,7 +91,7 @@ test("a small audit of Corvin 4 in the page gives exactly the command line's rep
   assert.deepEqual(replay.injection.eccentricities, [0, 0.3]);
   assert.equal(replay.injection.trials_per_cell, 4);
   assert.equal(replay.seed, 5);
-  assert.deepEqual(replay.injection.posterior, { priors: ["uniform"], n_walkers: 12, n_steps: 400, n_burn: 200, max_evaluations: 400000 });
+  assert.deepEqual(replay.injection.posterior, { priors: ["uniform"], n_walkers: 12, n_steps: 400, n_burn: 200, max_evaluations: 400000, trials_per_cell: 8 });
   assert.equal(replay.data.file_name, "corvin4-eccentric.tsv");
   assert.ok(existsSync(CLI), `${CLI} is missing: run cargo build --release first`);
   const out = path.join(TMP, "cli-out");
@@ -194,13 +194,12 @@ function twoCompanionTrendTable() {
   return text;
 }
 
-// Skipped (session 4, issue 11 still open): since the posterior of companion 2 is really sampled
-// (it was refused before) and every trial's posterior runs until its convergence rule holds, this
-// audit takes longer than the 300 s page timeout in headless Chromium (seen in the fresh-clone CI
-// on ca404ad). It needs a page control for the per-trial evaluation budget, as the command line's
-// --posterior-max-evaluations, so that the test can bound it; until then it is not run.
+// Since the posterior of companion 2 is really sampled and every trial's posterior runs until its
+// convergence rule holds or its budget runs out, the default budget made this audit exceed the
+// 300 s page timeout (session 4). The page's budget controls bound it: the posterior runs in 1 of
+// the 3 simulations per e, each with at most 30,000 evaluations; both reach the replay file.
 test("two companions + trend + fitted jitter: the page's audit of companion 2 is the command line's", {
-  skip: "too slow since trial posteriors of companion 2 run until converged; needs a page budget control (issue 11)",
+  timeout: 300_000,
 }, async () => {
   const { page } = app;
   const file = path.join(TMP, "two-companions-trend.csv");
@@ -219,6 +218,8 @@ test("two companions + trend + fitted jitter: the page's audit of companion 2 is
   await page.fill("#audit-settings [name='posterior_burn']", "50");
   // At most 400 circular simulations (default 10000), carried by the replay file.
   await page.fill("#audit-settings [name='max_circular']", "400");
+  await page.fill("#audit-settings [name='posterior_trials']", "1");
+  await page.fill("#audit-settings [name='posterior_max_evaluations']", "30000");
   await runToEnd();
   const settings = await saveDownload("#download-settings", "two-settings.json");
   const replay = JSON.parse(readFileSync(settings.file, "utf8"));
@@ -227,6 +228,8 @@ test("two companions + trend + fitted jitter: the page's audit of companion 2 is
   assert.equal(replay.model.jitter, "fit");
   assert.equal(replay.model.audit_companion, 2);
   assert.equal(replay.injection.max_circular_trials, 400);
+  assert.equal(replay.injection.posterior.trials_per_cell, 1);
+  assert.equal(replay.injection.posterior.max_evaluations, 30000);
   const out = path.join(TMP, "cli-two");
   const native = JSON.parse(execFileSync(CLI, [
     "audit", file, "--settings", settings.file, "--json", "--quiet", "--out", out,

@@ -21,12 +21,13 @@ use crate::fit::{
     EccentricityCoordinates, FitData, FitError, FitOptions, FitReport, ParameterLayout, RvProblem,
 };
 use crate::inject::adaptive::{
-    kind_of_trial, ExtraKind, ExtraState, BELT_MIN_ALL, BELT_MIN_LEAST_SQUARES, BIAS_TARGET_ERROR,
-    DECISION_CAP, DECISION_TARGET_ERROR,
+    kind_of_trial, ExtraKind, ExtraState, BELT_MAX_LEAST_SQUARES, BELT_MIN_ALL,
+    BELT_MIN_LEAST_SQUARES, BELT_TARGET_ERROR, BIAS_TARGET_ERROR, DECISION_CAP, DECISION_FAR,
+    DECISION_TARGET_ERROR,
 };
 use crate::inject::statement::{
-    cells_in_use, choose, decision_statistic, estimates_by_cell, output_belt, statement_cells,
-    DECISION_ALPHA,
+    cells_in_use, choose, decision_statistic, estimates_by_cell, interval_errors, output_belt,
+    statement_cells, DECISION_ALPHA,
 };
 use crate::inject::{
     all_outputs, default_eccentricity_grid, eccentricity_statement, run_trials, summarise,
@@ -166,7 +167,17 @@ pub struct PosteriorInjectionSettings {
     /// Most log-density evaluations per run; each run extends itself until its convergence rule
     /// holds or this budget runs out (default [`crate::posterior::FAST_MAX_EVALUATIONS`]).
     pub max_evaluations: u64,
+    /// Base simulations per true eccentricity that also run the posterior estimators (the
+    /// first ones of each cell; the others run least squares only): posterior runs are the
+    /// expensive kind, so the audit runs them at this smaller count (default
+    /// [`DEFAULT_POSTERIOR_TRIALS_PER_CELL`]) and states their Monte-Carlo errors. `None` (JSON
+    /// `null`) = every base simulation, as `inject` does.
+    pub trials_per_cell: Option<usize>,
 }
+
+/// Default base simulations per true eccentricity that run the posterior estimators in an
+/// audit ([`PosteriorInjectionSettings::trials_per_cell`]).
+pub const DEFAULT_POSTERIOR_TRIALS_PER_CELL: usize = 8;
 
 impl Default for PosteriorInjectionSettings {
     /// One prior, uniform on [0, 0.99], with the fast sampler preset of
@@ -181,6 +192,7 @@ impl Default for PosteriorInjectionSettings {
             n_steps: fast.n_steps,
             n_burn: fast.n_burn,
             max_evaluations: crate::posterior::FAST_MAX_EVALUATIONS,
+            trials_per_cell: Some(DEFAULT_POSTERIOR_TRIALS_PER_CELL),
         }
     }
 }
@@ -504,6 +516,8 @@ pub struct AuditPlan {
     estimator: Option<String>,
     /// Most circular simulations of the decision.
     max_circular: u64,
+    /// Base trials per cell that run every estimator (the first ones of each cell).
+    posterior_per_cell: u64,
 }
 
 /// The estimators of a plan, in output order.
@@ -771,6 +785,11 @@ impl AuditPlan {
             fitted,
             estimator: inj.estimator.clone(),
             max_circular: inj.max_circular_trials,
+            posterior_per_cell: inj
+                .posterior
+                .trials_per_cell
+                .map_or(inj.trials_per_cell, |n| n.min(inj.trials_per_cell))
+                as u64,
         })
     }
 
@@ -817,29 +836,50 @@ impl AuditPlan {
         self.design.has_trial(trial)
     }
 
+    /// True when trial `trial` runs every estimator: the first
+    /// [`PosteriorInjectionSettings::trials_per_cell`] base trials of each cell and the extra
+    /// trials of the every-estimator kind; the other trials run least squares only.
+    pub fn runs_every_estimator(&self, trial: u64) -> bool {
+        let base = self.design.n_trials();
+        if trial < base {
+            trial % (self.design.trials_per_cell.max(1) as u64) < self.posterior_per_cell
+        } else {
+            kind_of_trial(&self.design, trial) == Some(ExtraKind::AllEstimators)
+        }
+    }
+
     /// Run the trials with indices in `range` (a range of base trials is clipped to them; an
     /// extra range must lie in one cell's block), calling `observer` after each, in index
-    /// order. Extra trials of the least-squares kind run the least-squares estimator only; the
-    /// other outputs are [`Outcome::Skipped`]. A trial's numbers depend only on its index.
+    /// order. Trials that do not run every estimator ([`AuditPlan::runs_every_estimator`]) run
+    /// the least-squares estimator only; their other outputs are [`Outcome::Skipped`]. A
+    /// trial's numbers depend only on its index (each estimator draws from its own stream).
     pub fn run_trials(
         &self,
         range: Range<u64>,
         observer: &mut dyn FnMut(&TrialRecord),
     ) -> Result<Vec<TrialRecord>, AuditError> {
-        if kind_of_trial(&self.design, range.start) != Some(ExtraKind::LeastSquares) {
-            return Ok(run_trials(
-                &self.design,
-                &self.estimators(),
-                range,
-                observer,
-            )?);
-        }
-        let n_outputs = all_outputs(&self.estimators()).len();
+        let all = self.estimators();
+        let n_outputs = all_outputs(&all).len();
         let lsq: [&dyn Estimator; 1] = [&self.least_squares];
-        let mut records = run_trials(&self.design, &lsq, range, &mut |_| {})?;
-        for record in &mut records {
+        let base = self.design.n_trials();
+        let end = if range.start < base {
+            range.end.min(base)
+        } else {
+            range.end
+        };
+        let mut records = Vec::with_capacity(end.saturating_sub(range.start) as usize);
+        for trial in range.start..end {
+            let every = self.runs_every_estimator(trial);
+            let estimators: &[&dyn Estimator] = if every { &all } else { &lsq };
+            let mut record = run_trials(&self.design, estimators, trial..trial + 1, &mut |_| {})?
+                .pop()
+                .ok_or(InjectError::TrialOutOfRange {
+                    trial,
+                    n_trials: base,
+                })?;
             record.outcomes.resize(n_outputs, Outcome::Skipped);
-            observer(record);
+            observer(&record);
+            records.push(record);
         }
         Ok(records)
     }
@@ -848,16 +888,24 @@ impl AuditPlan {
     /// or None when it needs no more. The drivers (the command line's threads, the page's
     /// workers) loop: run the trials of the batch not yet done, then ask again.
     ///
-    /// The rule, in order: (1) every base trial; (2) the circular decision: least-squares
-    /// trials of the e = 0 cell while the Wilson 95% interval of the Monte-Carlo p contains
-    /// 0.05 or its standard error exceeds [`DECISION_TARGET_ERROR`], until the settings'
-    /// `max_circular_trials` (at most [`DECISION_CAP`]; batches double, so the last may pass it);
-    /// (3) the recommended estimator (chosen from the base trials): in the cells its interval
-    /// rests on ([`cells_in_use`]), at least [`BELT_MIN_LEAST_SQUARES`] (least squares) or
-    /// [`BELT_MIN_ALL`] (a posterior output) simulations, and in the cell nearest its value
-    /// enough for a bias standard error of [`BIAS_TARGET_ERROR`], each within its kind's cap.
-    /// Only base trials and complete batches are looked at, so the sequence of batches does
-    /// not depend on how trials were split or on an interruption.
+    /// The rule, in order: (1) every base trial (the first
+    /// [`PosteriorInjectionSettings::trials_per_cell`] of each cell with every estimator, the
+    /// rest least squares only); (2) the circular decision: least-squares trials of the e = 0
+    /// cell while the Wilson 95% interval of the Monte-Carlo p contains 0.05, or, unless that
+    /// interval lies far from 0.05 (below [`DECISION_FAR`]`[0]` or above `[1]`), while p's
+    /// standard error exceeds [`DECISION_TARGET_ERROR`]; until the settings'
+    /// `max_circular_trials` (at most [`DECISION_CAP`]; batches double, so the last may pass
+    /// it); (3) the quoted estimator (recommended from the base trials, or the user's). Least
+    /// squares: at least [`BELT_MIN_LEAST_SQUARES`] simulations in the cells its interval rests
+    /// on ([`cells_in_use`]), enough in the cell nearest its value for a bias standard error of
+    /// [`BIAS_TARGET_ERROR`], then more in the two cells bracketing an end of its interval
+    /// while that end's bootstrap standard error ([`interval_errors`], as the statement
+    /// computes it) exceeds [`BELT_TARGET_ERROR`] (up to [`BELT_MAX_LEAST_SQUARES`] per cell).
+    /// A posterior output: every-estimator trials,
+    /// at least [`BELT_MIN_ALL`] in the cells its interval rests on and the bias target at the
+    /// nearest. Each within its kind's cap. Only base trials and complete batches are looked
+    /// at, so the sequence of batches does not depend on how trials were split or on an
+    /// interruption.
     pub fn next_batch(&self, records: &[TrialRecord]) -> Option<Range<u64>> {
         let design = &self.design;
         let base = design.n_trials();
@@ -885,8 +933,9 @@ impl AuditPlan {
                     .filter(|r| r.cell == c0.index)
                     .collect();
                 if let Some(p) = stat.p_value(obs, &circular) {
-                    let unresolved =
-                        !p.resolves(DECISION_ALPHA) || p.standard_error > DECISION_TARGET_ERROR;
+                    let far = p.wilson95[1] < DECISION_FAR[0] || p.wilson95[0] > DECISION_FAR[1];
+                    let unresolved = !p.resolves(DECISION_ALPHA)
+                        || (!far && p.standard_error > DECISION_TARGET_ERROR);
                     if unresolved && (p.n as u64) < self.max_circular {
                         if let Some(batch) = state.next(design, c0.index, ExtraKind::LeastSquares) {
                             return Some(batch);
@@ -908,25 +957,80 @@ impl AuditPlan {
         let x0 = self.observed[chosen].as_ref()?.point;
         let per_cell = estimates_by_cell(&cells, &counted, chosen);
         let belt = output_belt(&cells, &per_cell, x0)?;
-        let (used, nearest) = cells_in_use(&cells, &belt.interval(x0), x0);
+        let interval = belt.interval(x0);
+        let (used, nearest) = cells_in_use(&cells, &interval, x0);
         let is_lsq = chosen < self.least_squares.outputs().len();
-        let (kind, minimum) = if is_lsq {
-            (ExtraKind::LeastSquares, BELT_MIN_LEAST_SQUARES)
-        } else {
-            (ExtraKind::AllEstimators, BELT_MIN_ALL)
+        // The bias quoted at the cell nearest the value: enough simulations for a standard
+        // error of BIAS_TARGET_ERROR.
+        let bias_target = |v: &[f64]| -> usize {
+            if v.len() < 2 {
+                return 2;
+            }
+            let mean = v.iter().sum::<f64>() / v.len() as f64;
+            let var = v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (v.len() - 1) as f64;
+            (var / (BIAS_TARGET_ERROR * BIAS_TARGET_ERROR)).ceil() as usize
         };
-        for j in used {
+        if !is_lsq {
+            // A posterior output (the user's choice): every-estimator trials in the cells its
+            // interval rests on.
+            for j in used {
+                let v = &per_cell[j];
+                let mut target = BELT_MIN_ALL;
+                if j == nearest {
+                    target = target.max(bias_target(v));
+                }
+                if v.len() < target {
+                    if let Some(batch) =
+                        state.next(design, cells[j].index, ExtraKind::AllEstimators)
+                    {
+                        return Some(batch);
+                    }
+                }
+            }
+            return None;
+        }
+        // Least squares (cheap): first BELT_MIN_LEAST_SQUARES in the cells the interval rests
+        // on and the bias target at the nearest cell; then, while the bootstrap standard
+        // error of an end of the interval (computed exactly as the statement computes it)
+        // exceeds BELT_TARGET_ERROR, more in the two cells that bracket that end.
+        for &j in &used {
             let v = &per_cell[j];
-            let mut target = minimum;
-            if j == nearest && v.len() > 1 {
-                let mean = v.iter().sum::<f64>() / v.len() as f64;
-                let var =
-                    v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (v.len() - 1) as f64;
-                let needed = (var / (BIAS_TARGET_ERROR * BIAS_TARGET_ERROR)).ceil() as usize;
-                target = target.max(needed);
+            let mut target = BELT_MIN_LEAST_SQUARES;
+            if j == nearest {
+                target = target.max(bias_target(v));
             }
             if v.len() < target {
-                if let Some(batch) = state.next(design, cells[j].index, kind) {
+                if let Some(batch) = state.next(design, cells[j].index, ExtraKind::LeastSquares) {
+                    return Some(batch);
+                }
+            }
+        }
+        let errors = interval_errors(design, &cells, &per_cell, x0)?;
+        let bracket = |end: f64| -> Vec<usize> {
+            let below = (0..cells.len())
+                .rev()
+                .find(|&j| cells[j].eccentricity <= end);
+            let above = (0..cells.len()).find(|&j| cells[j].eccentricity >= end);
+            let mut js: Vec<usize> = below.into_iter().chain(above).collect();
+            js.dedup();
+            js
+        };
+        let mut wanted: Vec<usize> = Vec::new();
+        if !errors.interval.upper_limit && errors.lower_standard_error > BELT_TARGET_ERROR {
+            wanted.extend(bracket(errors.interval.lower));
+        }
+        if !errors.interval.open_above && errors.upper_standard_error > BELT_TARGET_ERROR {
+            wanted.extend(bracket(errors.interval.upper));
+        }
+        // The cell with the fewest simulations first, so the bracketing cells grow together.
+        wanted.sort_by_key(|&j| (per_cell[j].len(), j));
+        wanted.dedup();
+        for j in wanted {
+            if let Some(batch) = state.next(design, cells[j].index, ExtraKind::LeastSquares) {
+                // Batches double: take one only while it keeps the cell within the cap.
+                if per_cell[j].len() as u64 + (batch.end - batch.start)
+                    <= BELT_MAX_LEAST_SQUARES as u64
+                {
                     return Some(batch);
                 }
             }
@@ -1060,6 +1164,7 @@ mod tests {
                     n_steps: 100,
                     n_burn: 50,
                     max_evaluations: 40_000,
+                    trials_per_cell: None,
                 },
                 ..InjectionSettings::default()
             },
@@ -1299,7 +1404,10 @@ mod tests {
         assert!(report.extra_trials > 0);
         let d = report.statement.decision.as_ref().unwrap();
         assert!(
-            (d.resolved && d.p.standard_error <= DECISION_TARGET_ERROR)
+            (d.resolved
+                && (d.p.standard_error <= DECISION_TARGET_ERROR
+                    || d.p.wilson95[1] < DECISION_FAR[0]
+                    || d.p.wilson95[0] > DECISION_FAR[1]))
                 || d.p.n as u64 >= DECISION_CAP,
             "{d:?}"
         );

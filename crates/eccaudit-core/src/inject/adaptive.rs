@@ -20,11 +20,21 @@ use super::engine::TrialRecord;
 pub const DECISION_TARGET_ERROR: f64 = 0.005;
 /// Most circular simulations the decision may use (base + extra).
 pub const DECISION_CAP: u64 = 10_000;
+/// Below this upper end of its Wilson 95% interval, or above this lower end, the decision's
+/// Monte-Carlo p is far from 0.05: the decision is settled and p is quoted with whatever
+/// standard error it has; nearer 0.05 it is resolved to [`DECISION_TARGET_ERROR`].
+pub const DECISION_FAR: [f64; 2] = [0.01, 0.2];
+/// Target bootstrap standard error of each end of the quoted least-squares interval.
+pub const BELT_TARGET_ERROR: f64 = 0.005;
+/// Most simulations the interval rule adds up to in one cell (base + extra): past this the
+/// interval's ends are quoted with the bootstrap errors they have (a coarse grid can keep them
+/// above [`BELT_TARGET_ERROR`]).
+pub const BELT_MAX_LEAST_SQUARES: usize = 4000;
 /// Target Monte-Carlo standard error of the quoted bias.
 pub const BIAS_TARGET_ERROR: f64 = 0.005;
 /// Fewest simulations of the recommended estimator in each cell its interval rests on, when it
 /// is least squares (cheap) or a posterior estimator.
-pub const BELT_MIN_LEAST_SQUARES: usize = 400;
+pub const BELT_MIN_LEAST_SQUARES: usize = 250;
 /// The same for an estimator that needs every estimator run (posterior outputs).
 pub const BELT_MIN_ALL: usize = 100;
 

@@ -326,6 +326,27 @@ pub fn estimates_by_cell(
         .collect()
 }
 
+/// The recommended output's belt interval at `x0` with the bootstrap standard errors of its
+/// ends ([`BOOTSTRAP_RESAMPLES`] resamples on the design's bootstrap stream): what the
+/// statement quotes, and what the audit's adaptive rule drives below its target error.
+pub fn interval_errors(
+    design: &InjectionDesign,
+    cells: &[GridCell],
+    per_cell: &[Vec<f64>],
+    x0: f64,
+) -> Option<BeltEstimate> {
+    let inputs: Vec<BeltCellInput> = cells
+        .iter()
+        .zip(per_cell)
+        .map(|(c, v)| BeltCellInput {
+            e: c.eccentricity,
+            estimates: v,
+        })
+        .collect();
+    let mut rng = stream_rng(design.seed, BOOTSTRAP_STREAM);
+    belt_estimate(&inputs, BELT_LEVEL, x0, BOOTSTRAP_RESAMPLES, &mut rng)
+}
+
 /// The belt of one output over the statement's cells.
 pub fn output_belt(cells: &[GridCell], per_cell: &[Vec<f64>], x0: f64) -> Option<Belt> {
     let inputs: Vec<BeltCellInput> = cells
@@ -384,7 +405,8 @@ fn quotable(info: &OutputInfo, observed: Option<&EccentricityEstimate>) -> Resul
 pub const RECOMMENDATION_RULE: &str = "the estimator with the smallest root-mean-square error \
     averaged over the injected e inside its own calibrated interval, from the base simulations \
     (the Lucy-Sweeney adopted value, a test, and posterior runs that did not converge on the data \
-    are not candidates)";
+    are not candidates, nor are estimators run on fewer than half of the base simulations of an \
+    injected e, such as posterior estimators run at a smaller count per e)";
 
 /// The recommended output (index) by [`RECOMMENDATION_RULE`], from `base_records` (the base
 /// trials only, so adding extra trials never changes the choice).
@@ -407,6 +429,15 @@ pub fn recommend(
             continue;
         };
         let interval = belt.interval(x0);
+        // Estimators run on a smaller share of the base simulations (the audit's posterior
+        // estimators, `injection.posterior.trials_per_cell`) are shown, not recommended.
+        let run_on_fewer = cells.iter().zip(&per_cell).any(|(c, v)| {
+            let n_base = base_records.iter().filter(|r| r.cell == c.index).count();
+            2 * v.len() < n_base
+        });
+        if run_on_fewer {
+            continue;
+        }
         let inside: Vec<f64> = cells
             .iter()
             .zip(&per_cell)
@@ -562,16 +593,7 @@ pub fn eccentricity_statement(
         let belt = output_belt(&cells, &per_cell, x0);
         let interval = value.and(belt.as_ref()).map(|b| b.interval(x0));
         let interval_errors = if recommended == Some(i) {
-            let inputs: Vec<BeltCellInput> = cells
-                .iter()
-                .zip(&per_cell)
-                .map(|(c, v)| BeltCellInput {
-                    e: c.eccentricity,
-                    estimates: v,
-                })
-                .collect();
-            let mut rng = stream_rng(design.seed, BOOTSTRAP_STREAM);
-            belt_estimate(&inputs, BELT_LEVEL, x0, BOOTSTRAP_RESAMPLES, &mut rng)
+            interval_errors(design, &cells, &per_cell, x0)
         } else {
             None
         };
@@ -901,8 +923,11 @@ fn methods(
         text.push_str(&format!(
             "The circular decision is the Monte-Carlo p = (k+1)/(n+1) of {} against the circular \
              simulations; circular trials were added in batches while the Wilson 95% interval of \
-             p contained 0.05 or its standard error exceeded {}, up to {}. ",
+             p contained 0.05 or, unless that interval lay wholly below {} or above {}, its \
+             standard error exceeded {}, up to {}. ",
             d.statistic,
+            grid_value(crate::inject::adaptive::DECISION_FAR[0]),
+            grid_value(crate::inject::adaptive::DECISION_FAR[1]),
             grid_value(crate::inject::adaptive::DECISION_TARGET_ERROR),
             s.max_circular_trials
         ));
