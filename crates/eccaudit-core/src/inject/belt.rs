@@ -6,11 +6,15 @@
 //! ordering of Feldman & Cousins 1998, Phys. Rev. D 57, 3873): for each injected e_j the
 //! density f_j(x) of the estimate x is a Gaussian kernel density estimate reflected at x = 0
 //! (Silverman 1986, Density Estimation, §2.10 and eq. 3.31 for the bandwidth); for each x,
-//! e_best(x) = argmax_j f_j(x) and R_j(x) = f_j(x)/f_best(x) ≤ 1; the acceptance region of e_j
+//! f_best(x) = max_j f_j(x), raised between the modes of neighbouring injected e to their peak
+//! heights interpolated in x (the best intermediate e, so a coarse grid does not distort the
+//! ordering), and R_j(x) = f_j(x)/f_best(x) ≤ 1; the acceptance region of e_j
 //! at level CL is {x : R_j(x) ≥ c_j}, c_j the (1 − CL) quantile of R_j over e_j's own
-//! simulated estimates; the interval for an observed x0 is {e : g(e) = R(x0|e) − c(e) ≥ 0},
-//! g interpolated linearly in e between grid points (so its ends are not quantised to the grid
-//! step). Since R = 1 at e_best(x0) and c ≤ 1, it is never empty.
+//! simulated estimates; its acceptance interval [L_j, U_j] runs from the first to the last x
+//! accepted. The interval for an observed x0 is {e : L(e) ≤ x0 ≤ U(e)} with L and U
+//! interpolated linearly in e between grid points (so its ends are not quantised to the grid
+//! step, and stay right when the grid step is wider than the estimator's scatter); it is never
+//! empty for an x0 inside the belt (the injected e nearest in density otherwise).
 
 use rand::RngExt;
 use serde::Serialize;
@@ -62,11 +66,10 @@ pub struct BeltInterval {
     pub upper_limit: bool,
     /// True when the interval reaches the top of the grid: the true e may lie above it.
     pub open_above: bool,
-    /// True when an end lies next to an injected e whose simulations never reach the observed
-    /// value (R = 0 there), or whose acceptance cut is saturated (c > 0.99: neighbouring
-    /// injected e give estimates that never meet): the grid is too coarse to place that end,
-    /// so it is put, conservatively, at that neighbouring injected e. A finer grid there would
-    /// narrow it.
+    /// True when an end is interpolated across a gap in the belt: the acceptance regions of
+    /// the injected e on either side of it do not meet (the grid step is wider than the
+    /// estimator's scatter there), so no simulation represents the e in between; a finer grid
+    /// there would place that end more reliably.
     pub under_resolved: bool,
 }
 
@@ -164,8 +167,34 @@ impl Belt {
                 f
             })
             .collect();
+        // f_best(x): the density at the true e that best explains x. Over the injected e alone
+        // it drops between the modes of neighbouring injected e when the grid step is wider
+        // than the estimator's scatter, which would rank the x between them as unlikely for
+        // both and pull each acceptance region away from the other. So between the modes of
+        // neighbouring injected e (increasing), the best density is also at least the peak
+        // heights interpolated linearly in x: the density of an intermediate e centred there
+        // (a locally shifted family), the continuous-e ordering of Feldman & Cousins.
+        let peaks: Vec<(f64, f64)> = densities
+            .iter()
+            .map(|f| {
+                let k = (0..GRID_POINTS)
+                    .max_by(|&a, &b| f[a].total_cmp(&f[b]).then(b.cmp(&a)))
+                    .unwrap_or(0);
+                (k as f64 * dx, f[k])
+            })
+            .collect();
         let best: Vec<f64> = (0..GRID_POINTS)
-            .map(|k| densities.iter().map(|f| f[k]).fold(0.0, f64::max))
+            .map(|k| {
+                let x = k as f64 * dx;
+                let mut b = densities.iter().map(|f| f[k]).fold(0.0, f64::max);
+                for w in peaks.windows(2) {
+                    let ((m0, p0), (m1, p1)) = (w[0], w[1]);
+                    if m0 < m1 && m0 <= x && x <= m1 {
+                        b = b.max(p0 + (x - m0) / (m1 - m0) * (p1 - p0));
+                    }
+                }
+                b
+            })
             .collect();
         let ratio: Vec<Vec<f64>> = densities
             .iter()
@@ -229,15 +258,44 @@ impl Belt {
         self.ratio_at(j, x) >= self.cut[j]
     }
 
-    /// g_j(x0) = R_j(x0) − c_j for every injected e.
-    fn margins(&self, x0: f64) -> Vec<f64> {
-        (0..self.e.len())
-            .map(|j| self.ratio_at(j, x0) - self.cut[j])
-            .collect()
+    /// The acceptance region of the j-th injected e as an interval [L_j, U_j] of x: from the
+    /// first to the last x where R_j(x) ≥ c_j (the crossings interpolated between grid points).
+    pub fn acceptance_bounds(&self, j: usize) -> (f64, f64) {
+        let r = &self.ratio[j];
+        let c = self.cut[j];
+        let Some(first) = r.iter().position(|&v| v >= c) else {
+            // Only when the cut lies above every tabulated ratio (rounding): the peak alone.
+            let k = (0..r.len())
+                .max_by(|&a, &b| r[a].total_cmp(&r[b]))
+                .unwrap_or(0);
+            let x = k as f64 * self.dx;
+            return (x, x);
+        };
+        let last = r.iter().rposition(|&v| v >= c).unwrap_or(first);
+        let crossing = |inside: usize, outside: usize| {
+            let t = (c - r[outside]) / (r[inside] - r[outside]).max(f64::MIN_POSITIVE);
+            let (a, b) = (outside as f64 * self.dx, inside as f64 * self.dx);
+            a + t.clamp(0.0, 1.0) * (b - a)
+        };
+        let lower = if first == 0 {
+            0.0
+        } else {
+            crossing(first, first - 1)
+        };
+        let upper = if last + 1 >= r.len() {
+            last as f64 * self.dx
+        } else {
+            crossing(last, last + 1)
+        };
+        (lower, upper)
     }
 
-    /// The interval on the true e for the observed value `x0`: the hull of {e : g(e) ≥ 0} with g
-    /// interpolated linearly between injected values.
+    /// The interval on the true e for the observed value `x0`: {e : L(e) ≤ x0 ≤ U(e)}, with
+    /// the acceptance bounds L, U of the injected e ([`Belt::acceptance_bounds`]) interpolated
+    /// linearly in e between injected values (solved exactly on each segment; the hull of the
+    /// solutions). Interpolating the bounds, not the ordering ratio R, keeps the interval right
+    /// when the grid step is wider than the estimator's scatter: R is relative to the best
+    /// *injected* e and jumps between grid points there.
     pub fn interval(&self, x0: f64) -> BeltInterval {
         let x0 = x0.max(0.0);
         let last = self.e.len() - 1;
@@ -256,7 +314,6 @@ impl Belt {
                 under_resolved: false,
             };
         }
-        let g = self.margins(x0);
         let e_best = (0..=last)
             .max_by(|&a, &b| {
                 self.ratio_at(a, x0)
@@ -264,48 +321,63 @@ impl Belt {
                     .then(b.cmp(&a))
             })
             .map_or(self.e[0], |j| self.e[j]);
-        // R is 1 where one injected e alone has density, and c_j is then 1 too: a tolerance
-        // keeps rounding in the interpolation from rejecting e_best itself.
-        let accepted: Vec<usize> = (0..=last).filter(|&j| g[j] >= -1e-9).collect();
-        let (lo_j, hi_j) = match (accepted.first(), accepted.last()) {
-            (Some(&a), Some(&b)) => (a, b),
-            // Only when interpolation on the x grid pushes R(x0) below c at e_best.
-            _ => {
-                let j = self.e.iter().position(|&e| e == e_best).unwrap_or(0);
-                (j, j)
+        let bounds: Vec<(f64, f64)> = (0..=last).map(|j| self.acceptance_bounds(j)).collect();
+        // Each segment [e_j, e_j+1] (or the single injected e): the t in [0, 1] with
+        // L(t) ≤ x0 ≤ U(t), L and U linear in t.
+        let mut hull: Option<(f64, f64, usize, usize)> = None;
+        let mut extend = |lo: f64, hi: f64, seg: usize| {
+            hull = Some(match hull {
+                None => (lo, hi, seg, seg),
+                Some((a, b, sa, sb)) => {
+                    let (a, sa) = if lo < a { (lo, seg) } else { (a, sa) };
+                    let (b, sb) = if hi > b { (hi, seg) } else { (b, sb) };
+                    (a, b, sa, sb)
+                }
+            });
+        };
+        if last == 0 {
+            let (l, u) = bounds[0];
+            if l <= x0 && x0 <= u {
+                extend(self.e[0], self.e[0], 0);
             }
-        };
-        let mut under_resolved = false;
-        let mut root = |a: usize, b: usize| {
-            // g(a) < 0 ≤ g(b): the zero of the line through them — unless the rejected
-            // neighbour has no density at x0 at all (its acceptance region does not reach
-            // towards x0), where the line says nothing and the end goes to the neighbour.
-            // The same when either cut is saturated (c ≈ 1: that injected e's estimates never
-            // meet its neighbours', so g jumps between grid points instead of varying along them).
-            if self.ratio_at(a, x0) <= 1e-9 || self.cut[a] > 0.99 || self.cut[b] > 0.99 {
-                under_resolved = true;
-                return self.e[a];
+        }
+        for j in 0..last {
+            let ((l0, u0), (l1, u1)) = (bounds[j], bounds[j + 1]);
+            // f(t) = a + t (b − a) ≤ x0 (or ≥ x0 when `below` is false) on [0, 1].
+            let solve = |a: f64, b: f64, below: bool| -> Option<(f64, f64)> {
+                let ok = |v: f64| if below { v <= x0 } else { v >= x0 };
+                if a == b {
+                    return ok(a).then_some((0.0, 1.0));
+                }
+                let t = ((x0 - a) / (b - a)).clamp(0.0, 1.0);
+                match (ok(a), ok(b)) {
+                    (true, true) => Some((0.0, 1.0)),
+                    (true, false) => Some((0.0, t)),
+                    (false, true) => Some((t, 1.0)),
+                    (false, false) => None,
+                }
+            };
+            let (Some(p), Some(q)) = (solve(l0, l1, true), solve(u0, u1, false)) else {
+                continue;
+            };
+            let (t_lo, t_hi) = (p.0.max(q.0), p.1.min(q.1));
+            if t_lo <= t_hi {
+                let span = self.e[j + 1] - self.e[j];
+                extend(self.e[j] + t_lo * span, self.e[j] + t_hi * span, j);
             }
-            let t = -g[a] / (g[b] - g[a]).max(f64::MIN_POSITIVE);
-            self.e[a] + t.clamp(0.0, 1.0) * (self.e[b] - self.e[a])
-        };
-        let lower = if lo_j == 0 {
-            self.e[lo_j]
-        } else {
-            root(lo_j - 1, lo_j)
-        };
-        let upper = if hi_j == last {
-            self.e[hi_j]
-        } else {
-            root(hi_j + 1, hi_j)
-        };
+        }
+        let (lower, upper, seg_lo, seg_hi) = hull.unwrap_or((e_best, e_best, 0, 0));
+        // A gap in the belt next to an end: the neighbouring injected e's acceptance regions do
+        // not meet, so that end is interpolated across e that no simulation represents.
+        let gap = |j: usize| last > 0 && j < last && bounds[j].1 < bounds[j + 1].0;
+        let under_resolved = hull.is_none() || gap(seg_lo) || gap(seg_hi);
         BeltInterval {
             level: self.level,
             lower,
             upper,
             e_best,
-            upper_limit: lo_j == 0 && self.e[0] == 0.0,
-            open_above: hi_j == last,
+            upper_limit: lower <= self.e[0] && self.e[0] == 0.0,
+            open_above: upper >= self.e[last],
             under_resolved,
         }
     }

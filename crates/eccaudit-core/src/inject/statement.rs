@@ -744,7 +744,8 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
         };
     }
     let coarse = if i.under_resolved {
-        " (conservative: the injected grid is too coarse to place its ends more closely)"
+        " (interpolated between injected e whose simulated estimates do not overlap: a finer \
+         grid there would place its ends more reliably)"
     } else {
         ""
     };
