@@ -14,7 +14,11 @@
 //! accepted. The interval for an observed x0 is {e : L(e) ≤ x0 ≤ U(e)} with L and U
 //! interpolated linearly in e between grid points (so its ends are not quantised to the grid
 //! step, and stay right when the grid step is wider than the estimator's scatter); it is never
-//! empty for an x0 inside the belt (the injected e nearest in density otherwise).
+//! empty for an x0 inside the belt (the injected e nearest in density otherwise). The cut c_j
+//! is a conformal rank of leave-one-out ratios, so each acceptance region holds at least CL of
+//! its e's estimates at any number of simulations (Lei, Robins & Wasserman 2013). An end
+//! interpolated across a segment wider than 2.5 times the estimator's scatter is flagged
+//! under-resolved (coverage between such grid points was measured below nominal).
 
 use rand::RngExt;
 use serde::Serialize;
@@ -24,6 +28,10 @@ use crate::sampler::quantile_sorted;
 
 /// Points of the x grid on which the densities are tabulated.
 const GRID_POINTS: usize = 1024;
+/// A grid step wider than this many times the estimator's scatter (at both ends of the
+/// segment) marks an end interpolated across it as under-resolved: linear interpolation of the
+/// acceptance bounds in e loses coverage there (see [`BeltInterval::under_resolved`]).
+pub const COARSE_STEP: f64 = 2.5;
 /// Kernels are summed out to this many bandwidths (e^(−32) ≈ 1e-14 of the peak beyond).
 const KERNEL_REACH: f64 = 8.0;
 
@@ -49,6 +57,8 @@ pub struct Belt {
     cut: Vec<f64>,
     /// Largest simulated estimate of each cell.
     max_estimate: Vec<f64>,
+    /// Spread of each cell's estimates: min(standard deviation, IQR/1.34).
+    spread: Vec<f64>,
 }
 
 /// The interval on the true e for one observed value.
@@ -66,10 +76,11 @@ pub struct BeltInterval {
     pub upper_limit: bool,
     /// True when the interval reaches the top of the grid: the true e may lie above it.
     pub open_above: bool,
-    /// True when an end is interpolated across a gap in the belt: the acceptance regions of
-    /// the injected e on either side of it do not meet (the grid step is wider than the
-    /// estimator's scatter there), so no simulation represents the e in between; a finer grid
-    /// there would place that end more reliably.
+    /// True when an end is interpolated across a segment of the grid too coarse for it: the
+    /// acceptance regions of the injected e on either side do not meet, or the step exceeds
+    /// [`COARSE_STEP`] times the estimator's scatter at both ends of the segment (measured:
+    /// a step of 3.3 σ covered about 92% at a nominal 95% between grid points, 2.5 σ about
+    /// 94%, 1.7 σ 95%); a finer grid there would place that end more reliably.
     pub under_resolved: bool,
 }
 
@@ -89,6 +100,16 @@ pub struct BeltEstimate {
 /// Silverman's rule of thumb h = 0.9 min(s, IQR/1.34) n^(−1/5) (Silverman 1986, eq. 3.31) of
 /// sorted values, with a floor for point masses (all values equal).
 fn bandwidth(sorted: &[f64]) -> f64 {
+    let h = 0.9 * spread(sorted) * libm::pow(sorted.len() as f64, -0.2);
+    if h > 0.0 {
+        h
+    } else {
+        1e-3
+    }
+}
+
+/// min(standard deviation, IQR/1.34) of sorted values (the spread in Silverman's rule).
+fn spread(sorted: &[f64]) -> f64 {
     let n = sorted.len() as f64;
     let mean = sorted.iter().sum::<f64>() / n;
     let sd = if sorted.len() > 1 {
@@ -97,12 +118,10 @@ fn bandwidth(sorted: &[f64]) -> f64 {
         0.0
     };
     let iqr = (quantile_sorted(sorted, 0.75) - quantile_sorted(sorted, 0.25)) / 1.34;
-    let spread = if iqr > 0.0 { sd.min(iqr) } else { sd };
-    let h = 0.9 * spread * libm::pow(n, -0.2);
-    if h > 0.0 {
-        h
+    if iqr > 0.0 {
+        sd.min(iqr)
     } else {
-        1e-3
+        sd
     }
 }
 
@@ -142,11 +161,11 @@ impl Belt {
         // Tabulated reflected KDE of each cell; bandwidths below two grid steps are raised
         // so the linear interpolation between grid points stays accurate.
         let inv_sqrt_2pi = 0.398_942_280_401_432_7;
+        let kernel_widths: Vec<f64> = bandwidths.iter().map(|&h0| h0.max(2.0 * dx)).collect();
         let densities: Vec<Vec<f64>> = usable
             .iter()
-            .zip(&bandwidths)
-            .map(|((_, v), &h0)| {
-                let h = h0.max(2.0 * dx);
+            .zip(&kernel_widths)
+            .map(|((_, v), &h)| {
                 let mut f = vec![0.0; GRID_POINTS];
                 let norm = inv_sqrt_2pi / (h * v.len() as f64);
                 for &xi in v {
@@ -213,14 +232,71 @@ impl Belt {
             ratio,
             cut: Vec::new(),
             max_estimate: usable.iter().map(|(_, v)| v[v.len() - 1]).collect(),
+            spread: usable.iter().map(|(_, v)| spread(v)).collect(),
+        };
+        // The cut c_j: a conformal rank of leave-one-out ratios (Lei, Robins & Wasserman 2013,
+        // JASA 108, 278, conformal density level sets; the rank of Vovk, Gammerman & Shafer
+        // 2005, Algorithmic Learning in a Random World, ch. 2). Each simulated estimate x_i is
+        // ranked by R_j at x_i with its own kernel taken out of f_j (and out of f_best through
+        // f_j): in-sample, a point in the tail carries its own kernel, which inflates R there,
+        // and the plain (1 − CL) quantile of in-sample ratios cut the region too tight (30
+        // simulations per e covered about 91% at a nominal 95%). A fresh estimate's R is then
+        // exchangeable with the n leave-one-out ratios, and c_j = the k-th smallest of them with
+        // k = ⌊(n + 1)(1 − CL)⌋ accepts it with probability ≥ CL at any n (c_j = 0, all x
+        // accepted, when k = 0, i.e. n < 1/(1 − CL) − 1).
+        let grid_value = |f: &[f64], x: f64| -> f64 {
+            let pos = x.max(0.0) / dx;
+            if !pos.is_finite() || pos > (GRID_POINTS - 1) as f64 {
+                return 0.0;
+            }
+            let k = (pos as usize).min(GRID_POINTS - 2);
+            let t = pos - k as f64;
+            f[k] + t * (f[k + 1] - f[k])
+        };
+        let peak_floor = |x: f64| -> f64 {
+            let mut b: f64 = 0.0;
+            for w in peaks.windows(2) {
+                let ((m0, p0), (m1, p1)) = (w[0], w[1]);
+                if m0 < m1 && m0 <= x && x <= m1 {
+                    b = b.max(p0 + (x - m0) / (m1 - m0) * (p1 - p0));
+                }
+            }
+            b
         };
         belt.cut = usable
             .iter()
             .enumerate()
             .map(|(j, (_, v))| {
-                let mut r: Vec<f64> = v.iter().map(|&x| belt.ratio_at(j, x)).collect();
+                let n = v.len() as f64;
+                let h = kernel_widths[j];
+                let mut r: Vec<f64> = v
+                    .iter()
+                    .map(|&x| {
+                        // The point's own kernel at x and its mirror image's (at distance 2x).
+                        let u = 2.0 * x / h;
+                        let own = inv_sqrt_2pi / h * (1.0 + libm::exp(-0.5 * u * u));
+                        let loo = ((n * grid_value(&densities[j], x) - own) / (n - 1.0)).max(0.0);
+                        let others = densities
+                            .iter()
+                            .enumerate()
+                            .filter(|&(k, _)| k != j)
+                            .map(|(_, f)| grid_value(f, x))
+                            .fold(peak_floor(x), f64::max);
+                        let best = others.max(loo);
+                        if best > 0.0 {
+                            loo / best
+                        } else {
+                            0.0
+                        }
+                    })
+                    .collect();
                 r.sort_by(f64::total_cmp);
-                quantile_sorted(&r, 1.0 - level)
+                let k = libm::floor((n + 1.0) * (1.0 - level)) as usize;
+                if k == 0 {
+                    0.0
+                } else {
+                    r[k.min(r.len()) - 1]
+                }
             })
             .collect();
         Some(belt)
@@ -368,9 +444,18 @@ impl Belt {
         }
         let (lower, upper, seg_lo, seg_hi) = hull.unwrap_or((e_best, e_best, 0, 0));
         // A gap in the belt next to an end: the neighbouring injected e's acceptance regions do
-        // not meet, so that end is interpolated across e that no simulation represents.
-        let gap = |j: usize| last > 0 && j < last && bounds[j].1 < bounds[j + 1].0;
-        let under_resolved = hull.is_none() || gap(seg_lo) || gap(seg_hi);
+        // not meet, so that end is interpolated across e that no simulation represents; or the
+        // end lies inside a segment wider than COARSE_STEP times the scatter at both its ends.
+        let gap = |j: usize, end: f64| {
+            last > 0
+                && j < last
+                && (bounds[j].1 < bounds[j + 1].0
+                    || (end > self.e[j]
+                        && end < self.e[j + 1]
+                        && self.e[j + 1] - self.e[j]
+                            > COARSE_STEP * self.spread[j].max(self.spread[j + 1])))
+        };
+        let under_resolved = hull.is_none() || gap(seg_lo, lower) || gap(seg_hi, upper);
         BeltInterval {
             level: self.level,
             lower,
@@ -548,5 +633,167 @@ mod tests {
         assert_eq!(est.resamples, 10);
         assert!(est.lower_standard_error.is_finite() && est.lower_standard_error < 0.03);
         assert!(est.upper_standard_error.is_finite() && est.upper_standard_error < 0.03);
+    }
+
+    /// Coverage on injections independent of the belt at true e between grid points, for a
+    /// grid step of 0.05 and 0.1 with the estimator's scatter σ = 0.03 (1.7 σ and 3.3 σ; the
+    /// second is where interpolating the ordering ratio in e gave intervals a few thousandths
+    /// wide): 300 simulations per grid e, 400 fresh values at each of eight true e. Returns
+    /// (pooled coverage, smallest per-e coverage, share of intervals flagged under-resolved,
+    /// smallest median width).
+    fn coverage_between_grid_points(step: f64) -> (f64, f64, f64, f64) {
+        let sigma = 0.03;
+        let grid: Vec<f64> = (0..=((0.6 / step).round() as usize))
+            .map(|i| i as f64 * step)
+            .collect();
+        let sims: Vec<Vec<f64>> = grid
+            .iter()
+            .enumerate()
+            .map(|(j, &e)| rice(e, sigma, 300, 41, j as u64))
+            .collect();
+        let belt = Belt::new(&inputs(&grid, &sims), 0.95, 0.0).unwrap();
+        let (mut hits_all, mut n_all, mut flagged, mut worst, mut narrowest) = (0, 0, 0, 1.0, 1.0);
+        let truths = [0.02, 0.05, 0.07, 0.12, 0.15, 0.18, 0.25, 0.33];
+        for (i, &truth) in truths.iter().enumerate() {
+            let fresh = rice(truth, sigma, 400, 43, 50 + i as u64);
+            let mut widths = Vec::new();
+            let mut hits = 0;
+            for &x in &fresh {
+                let b = belt.interval(x);
+                widths.push(b.upper - b.lower);
+                flagged += usize::from(b.under_resolved);
+                hits += usize::from(b.lower <= truth && truth <= b.upper);
+            }
+            let share = hits as f64 / fresh.len() as f64;
+            widths.sort_by(f64::total_cmp);
+            worst = f64::min(worst, share);
+            narrowest = f64::min(narrowest, widths[widths.len() / 2]);
+            hits_all += hits;
+            n_all += fresh.len();
+        }
+        let pooled = hits_all as f64 / n_all as f64;
+        (pooled, worst, flagged as f64 / n_all as f64, narrowest)
+    }
+
+    /// A grid step within 2.5 times the scatter covers at its level between grid points and is not
+    /// flagged; a step of 3.3 σ still gives intervals of honest width (no degenerate ones),
+    /// covers ≥ 90% pooled (measured 0.92: linear interpolation of the bounds loses a little
+    /// there), and every interval whose end lies in such a segment says so (`under_resolved`).
+    /// Binomial standard errors (common practice): per e √(0.95·0.05/400) = 0.0109, pooled
+    /// over 3200 values 0.0039; the belt's own Monte-Carlo error (300 per e; conformal cut)
+    /// adds about 0.01. Tolerances: pooled within 3 × 0.0039 + 0.01 of 0.95, each e above
+    /// 0.95 − 3 × 0.0109 − 0.01.
+    #[test]
+    #[allow(clippy::disallowed_macros)] // the test prints the coverage it measured
+    fn intervals_cover_between_grid_points_and_flag_coarse_steps() {
+        let (pooled, worst, flagged, narrowest) = coverage_between_grid_points(0.05);
+        eprintln!(
+            "step 0.05 = 1.7 σ: pooled {pooled:.4}, worst {worst:.4}, flagged {flagged:.3}, \
+             narrowest median width {narrowest:.4}"
+        );
+        assert!(
+            (pooled - 0.95).abs() < 3.0 * 0.0039 + 0.01,
+            "pooled {pooled}"
+        );
+        assert!(worst > 0.95 - 3.0 * 0.0109 - 0.01, "worst {worst}");
+        assert!(flagged < 0.01, "flagged {flagged}");
+        let (pooled, worst, flagged, narrowest) = coverage_between_grid_points(0.1);
+        eprintln!(
+            "step 0.1 = 3.3 σ: pooled {pooled:.4}, worst {worst:.4}, flagged {flagged:.3}, \
+             narrowest median width {narrowest:.4}"
+        );
+        assert!(pooled >= 0.90, "pooled {pooled}");
+        assert!(flagged > 0.9, "flagged {flagged}");
+        // Not the degenerate few-thousandths intervals: at least 2σ wide (the narrowest are
+        // the upper limits near e = 0, about 2.5σ).
+        assert!(narrowest > 2.0 * 0.03, "narrowest median width {narrowest}");
+    }
+
+    /// Few simulations per injected e (30, as in a reduced audit): averaged over 400
+    /// independent belts, each inverted at one fresh value, the interval covers at least its
+    /// nominal 95%. The plain 5% quantile of in-sample ratios covered about 0.91 here (the
+    /// measurement that led to the leave-one-out conformal cut). Binomial standard error
+    /// √(0.95·0.05/400) = 0.0109 (common practice); tolerance three standard errors below 0.95.
+    #[test]
+    #[allow(clippy::disallowed_macros)] // the test prints the coverage it measured
+    fn thirty_simulations_per_e_still_cover() {
+        let sigma = 0.03;
+        let grid: Vec<f64> = (0..=6).map(|i| f64::from(i) / 10.0).collect();
+        for &truth in &[0.15, 0.3] {
+            let reps = 400u64;
+            let mut hits = 0;
+            for b in 0..reps {
+                let sims: Vec<Vec<f64>> = grid
+                    .iter()
+                    .enumerate()
+                    .map(|(j, &e)| rice(e, sigma, 30, 1000 + b, j as u64))
+                    .collect();
+                let belt = Belt::new(&inputs(&grid, &sims), 0.95, 0.0).unwrap();
+                let x = rice(truth, sigma, 1, 77, b)[0];
+                let i = belt.interval(x);
+                assert!(i.lower <= i.upper, "{i:?}");
+                if i.lower <= truth && truth <= i.upper {
+                    hits += 1;
+                }
+            }
+            let share = f64::from(hits) / reps as f64;
+            eprintln!("30 per e, true e {truth}: coverage {share:.4}");
+            assert!(share > 0.95 - 3.0 * 0.0109, "e = {truth}: {share}");
+        }
+    }
+
+    /// The interval is exact per segment: each end e* inside a segment [e_j, e_j+1] satisfies
+    /// L(e*) = x0 or U(e*) = x0 for the acceptance bounds interpolated linearly in e (to
+    /// rounding), and the ends move continuously with x0: over a scan in steps of 0.0005 no end
+    /// jumps by more than 0.02 unless the belt has a gap there (`under_resolved`).
+    #[test]
+    fn ends_solve_the_interpolated_bounds_and_move_continuously() {
+        let sigma = 0.03;
+        let grid: Vec<f64> = (0..=6).map(|i| f64::from(i) / 10.0).collect();
+        let sims: Vec<Vec<f64>> = grid
+            .iter()
+            .enumerate()
+            .map(|(j, &e)| rice(e, sigma, 300, 47, j as u64))
+            .collect();
+        let belt = Belt::new(&inputs(&grid, &sims), 0.95, 0.0).unwrap();
+        let bounds: Vec<(f64, f64)> = (0..grid.len()).map(|j| belt.acceptance_bounds(j)).collect();
+        let interp = |e: f64, upper: bool| -> f64 {
+            let j = ((e / 0.1) as usize).min(grid.len() - 2);
+            let t = (e - grid[j]) / (grid[j + 1] - grid[j]);
+            let (a, b) = if upper {
+                (bounds[j].1, bounds[j + 1].1)
+            } else {
+                (bounds[j].0, bounds[j + 1].0)
+            };
+            a + t * (b - a)
+        };
+        let mut previous: Option<BeltInterval> = None;
+        let mut solved = 0;
+        for k in 0..=1000 {
+            let x0 = f64::from(k) * 0.0005;
+            let b = belt.interval(x0);
+            assert!(
+                b.lower <= b.upper && b.lower <= b.e_best && b.e_best <= b.upper,
+                "{b:?}"
+            );
+            let off_grid = |e: f64| grid.iter().all(|g| (e - g).abs() > 1e-9);
+            if b.lower > 0.0 && off_grid(b.lower) {
+                // The lower end of the set is where U(e) comes down to x0.
+                assert!((interp(b.lower, true) - x0).abs() < 1e-9, "x0 {x0}: {b:?}");
+                solved += 1;
+            }
+            if !b.open_above && off_grid(b.upper) {
+                assert!((interp(b.upper, false) - x0).abs() < 1e-9, "x0 {x0}: {b:?}");
+                solved += 1;
+            }
+            if let Some(p) = previous {
+                if !p.under_resolved && !b.under_resolved {
+                    assert!((b.lower - p.lower).abs() < 0.02, "x0 {x0}: {p:?} -> {b:?}");
+                    assert!((b.upper - p.upper).abs() < 0.02, "x0 {x0}: {p:?} -> {b:?}");
+                }
+            }
+            previous = Some(b);
+        }
+        assert!(solved > 1000, "{solved} ends checked");
     }
 }
