@@ -6,11 +6,19 @@
 //! ordering of Feldman & Cousins 1998, Phys. Rev. D 57, 3873): for each injected e_j the
 //! density f_j(x) of the estimate x is a Gaussian kernel density estimate reflected at x = 0
 //! (Silverman 1986, Density Estimation, §2.10 and eq. 3.31 for the bandwidth); for each x,
-//! e_best(x) = argmax_j f_j(x) and R_j(x) = f_j(x)/f_best(x) ≤ 1; the acceptance region of e_j
+//! f_best(x) = max_j f_j(x), raised between the modes of neighbouring injected e to their peak
+//! heights interpolated in x (the best intermediate e, so a coarse grid does not distort the
+//! ordering), and R_j(x) = f_j(x)/f_best(x) ≤ 1; the acceptance region of e_j
 //! at level CL is {x : R_j(x) ≥ c_j}, c_j the (1 − CL) quantile of R_j over e_j's own
-//! simulated estimates; the interval for an observed x0 is {e : g(e) = R(x0|e) − c(e) ≥ 0},
-//! g interpolated linearly in e between grid points (so its ends are not quantised to the grid
-//! step). Since R = 1 at e_best(x0) and c ≤ 1, it is never empty.
+//! simulated estimates; its acceptance interval [L_j, U_j] runs from the first to the last x
+//! accepted. The interval for an observed x0 is {e : L(e) ≤ x0 ≤ U(e)} with L and U
+//! interpolated linearly in e between grid points (so its ends are not quantised to the grid
+//! step, and stay right when the grid step is wider than the estimator's scatter); it is never
+//! empty for an x0 inside the belt (the injected e nearest in density otherwise). The cut c_j
+//! is a conformal rank of leave-one-out ratios, so each acceptance region holds at least CL of
+//! its e's estimates at any number of simulations (Lei, Robins & Wasserman 2013). An end
+//! interpolated across a segment wider than 2.5 times the estimator's scatter is flagged
+//! under-resolved (coverage between such grid points was measured below nominal).
 
 use rand::RngExt;
 use serde::Serialize;
@@ -20,6 +28,10 @@ use crate::sampler::quantile_sorted;
 
 /// Points of the x grid on which the densities are tabulated.
 const GRID_POINTS: usize = 1024;
+/// A grid step wider than this many times the estimator's scatter (at both ends of the
+/// segment) marks an end interpolated across it as under-resolved: linear interpolation of the
+/// acceptance bounds in e loses coverage there (see [`BeltInterval::under_resolved`]).
+pub const COARSE_STEP: f64 = 2.5;
 /// Kernels are summed out to this many bandwidths (e^(−32) ≈ 1e-14 of the peak beyond).
 const KERNEL_REACH: f64 = 8.0;
 
@@ -45,6 +57,8 @@ pub struct Belt {
     cut: Vec<f64>,
     /// Largest simulated estimate of each cell.
     max_estimate: Vec<f64>,
+    /// Spread of each cell's estimates: min(standard deviation, IQR/1.34).
+    spread: Vec<f64>,
 }
 
 /// The interval on the true e for one observed value.
@@ -62,11 +76,11 @@ pub struct BeltInterval {
     pub upper_limit: bool,
     /// True when the interval reaches the top of the grid: the true e may lie above it.
     pub open_above: bool,
-    /// True when an end lies next to an injected e whose simulations never reach the observed
-    /// value (R = 0 there), or whose acceptance cut is saturated (c > 0.99: neighbouring
-    /// injected e give estimates that never meet): the grid is too coarse to place that end,
-    /// so it is put, conservatively, at that neighbouring injected e. A finer grid there would
-    /// narrow it.
+    /// True when an end is interpolated across a segment of the grid too coarse for it: the
+    /// acceptance regions of the injected e on either side do not meet, or the step exceeds
+    /// [`COARSE_STEP`] times the estimator's scatter at both ends of the segment (measured:
+    /// a step of 3.3 σ covered about 92% at a nominal 95% between grid points, 2.5 σ about
+    /// 94%, 1.7 σ 95%); a finer grid there would place that end more reliably.
     pub under_resolved: bool,
 }
 
@@ -86,6 +100,16 @@ pub struct BeltEstimate {
 /// Silverman's rule of thumb h = 0.9 min(s, IQR/1.34) n^(−1/5) (Silverman 1986, eq. 3.31) of
 /// sorted values, with a floor for point masses (all values equal).
 fn bandwidth(sorted: &[f64]) -> f64 {
+    let h = 0.9 * spread(sorted) * libm::pow(sorted.len() as f64, -0.2);
+    if h > 0.0 {
+        h
+    } else {
+        1e-3
+    }
+}
+
+/// min(standard deviation, IQR/1.34) of sorted values (the spread in Silverman's rule).
+fn spread(sorted: &[f64]) -> f64 {
     let n = sorted.len() as f64;
     let mean = sorted.iter().sum::<f64>() / n;
     let sd = if sorted.len() > 1 {
@@ -94,12 +118,10 @@ fn bandwidth(sorted: &[f64]) -> f64 {
         0.0
     };
     let iqr = (quantile_sorted(sorted, 0.75) - quantile_sorted(sorted, 0.25)) / 1.34;
-    let spread = if iqr > 0.0 { sd.min(iqr) } else { sd };
-    let h = 0.9 * spread * libm::pow(n, -0.2);
-    if h > 0.0 {
-        h
+    if iqr > 0.0 {
+        sd.min(iqr)
     } else {
-        1e-3
+        sd
     }
 }
 
@@ -139,11 +161,11 @@ impl Belt {
         // Tabulated reflected KDE of each cell; bandwidths below two grid steps are raised
         // so the linear interpolation between grid points stays accurate.
         let inv_sqrt_2pi = 0.398_942_280_401_432_7;
+        let kernel_widths: Vec<f64> = bandwidths.iter().map(|&h0| h0.max(2.0 * dx)).collect();
         let densities: Vec<Vec<f64>> = usable
             .iter()
-            .zip(&bandwidths)
-            .map(|((_, v), &h0)| {
-                let h = h0.max(2.0 * dx);
+            .zip(&kernel_widths)
+            .map(|((_, v), &h)| {
                 let mut f = vec![0.0; GRID_POINTS];
                 let norm = inv_sqrt_2pi / (h * v.len() as f64);
                 for &xi in v {
@@ -164,8 +186,34 @@ impl Belt {
                 f
             })
             .collect();
+        // f_best(x): the density at the true e that best explains x. Over the injected e alone
+        // it drops between the modes of neighbouring injected e when the grid step is wider
+        // than the estimator's scatter, which would rank the x between them as unlikely for
+        // both and pull each acceptance region away from the other. So between the modes of
+        // neighbouring injected e (increasing), the best density is also at least the peak
+        // heights interpolated linearly in x: the density of an intermediate e centred there
+        // (a locally shifted family), the continuous-e ordering of Feldman & Cousins.
+        let peaks: Vec<(f64, f64)> = densities
+            .iter()
+            .map(|f| {
+                let k = (0..GRID_POINTS)
+                    .max_by(|&a, &b| f[a].total_cmp(&f[b]).then(b.cmp(&a)))
+                    .unwrap_or(0);
+                (k as f64 * dx, f[k])
+            })
+            .collect();
         let best: Vec<f64> = (0..GRID_POINTS)
-            .map(|k| densities.iter().map(|f| f[k]).fold(0.0, f64::max))
+            .map(|k| {
+                let x = k as f64 * dx;
+                let mut b = densities.iter().map(|f| f[k]).fold(0.0, f64::max);
+                for w in peaks.windows(2) {
+                    let ((m0, p0), (m1, p1)) = (w[0], w[1]);
+                    if m0 < m1 && m0 <= x && x <= m1 {
+                        b = b.max(p0 + (x - m0) / (m1 - m0) * (p1 - p0));
+                    }
+                }
+                b
+            })
             .collect();
         let ratio: Vec<Vec<f64>> = densities
             .iter()
@@ -184,14 +232,71 @@ impl Belt {
             ratio,
             cut: Vec::new(),
             max_estimate: usable.iter().map(|(_, v)| v[v.len() - 1]).collect(),
+            spread: usable.iter().map(|(_, v)| spread(v)).collect(),
+        };
+        // The cut c_j: a conformal rank of leave-one-out ratios (Lei, Robins & Wasserman 2013,
+        // JASA 108, 278, conformal density level sets; the rank of Vovk, Gammerman & Shafer
+        // 2005, Algorithmic Learning in a Random World, ch. 2). Each simulated estimate x_i is
+        // ranked by R_j at x_i with its own kernel taken out of f_j (and out of f_best through
+        // f_j): in-sample, a point in the tail carries its own kernel, which inflates R there,
+        // and the plain (1 − CL) quantile of in-sample ratios cut the region too tight (30
+        // simulations per e covered about 91% at a nominal 95%). A fresh estimate's R is then
+        // exchangeable with the n leave-one-out ratios, and c_j = the k-th smallest of them with
+        // k = ⌊(n + 1)(1 − CL)⌋ accepts it with probability ≥ CL at any n (c_j = 0, all x
+        // accepted, when k = 0, i.e. n < 1/(1 − CL) − 1).
+        let grid_value = |f: &[f64], x: f64| -> f64 {
+            let pos = x.max(0.0) / dx;
+            if !pos.is_finite() || pos > (GRID_POINTS - 1) as f64 {
+                return 0.0;
+            }
+            let k = (pos as usize).min(GRID_POINTS - 2);
+            let t = pos - k as f64;
+            f[k] + t * (f[k + 1] - f[k])
+        };
+        let peak_floor = |x: f64| -> f64 {
+            let mut b: f64 = 0.0;
+            for w in peaks.windows(2) {
+                let ((m0, p0), (m1, p1)) = (w[0], w[1]);
+                if m0 < m1 && m0 <= x && x <= m1 {
+                    b = b.max(p0 + (x - m0) / (m1 - m0) * (p1 - p0));
+                }
+            }
+            b
         };
         belt.cut = usable
             .iter()
             .enumerate()
             .map(|(j, (_, v))| {
-                let mut r: Vec<f64> = v.iter().map(|&x| belt.ratio_at(j, x)).collect();
+                let n = v.len() as f64;
+                let h = kernel_widths[j];
+                let mut r: Vec<f64> = v
+                    .iter()
+                    .map(|&x| {
+                        // The point's own kernel at x and its mirror image's (at distance 2x).
+                        let u = 2.0 * x / h;
+                        let own = inv_sqrt_2pi / h * (1.0 + libm::exp(-0.5 * u * u));
+                        let loo = ((n * grid_value(&densities[j], x) - own) / (n - 1.0)).max(0.0);
+                        let others = densities
+                            .iter()
+                            .enumerate()
+                            .filter(|&(k, _)| k != j)
+                            .map(|(_, f)| grid_value(f, x))
+                            .fold(peak_floor(x), f64::max);
+                        let best = others.max(loo);
+                        if best > 0.0 {
+                            loo / best
+                        } else {
+                            0.0
+                        }
+                    })
+                    .collect();
                 r.sort_by(f64::total_cmp);
-                quantile_sorted(&r, 1.0 - level)
+                let k = libm::floor((n + 1.0) * (1.0 - level)) as usize;
+                if k == 0 {
+                    0.0
+                } else {
+                    r[k.min(r.len()) - 1]
+                }
             })
             .collect();
         Some(belt)
@@ -229,15 +334,44 @@ impl Belt {
         self.ratio_at(j, x) >= self.cut[j]
     }
 
-    /// g_j(x0) = R_j(x0) − c_j for every injected e.
-    fn margins(&self, x0: f64) -> Vec<f64> {
-        (0..self.e.len())
-            .map(|j| self.ratio_at(j, x0) - self.cut[j])
-            .collect()
+    /// The acceptance region of the j-th injected e as an interval [L_j, U_j] of x: from the
+    /// first to the last x where R_j(x) ≥ c_j (the crossings interpolated between grid points).
+    pub fn acceptance_bounds(&self, j: usize) -> (f64, f64) {
+        let r = &self.ratio[j];
+        let c = self.cut[j];
+        let Some(first) = r.iter().position(|&v| v >= c) else {
+            // Only when the cut lies above every tabulated ratio (rounding): the peak alone.
+            let k = (0..r.len())
+                .max_by(|&a, &b| r[a].total_cmp(&r[b]))
+                .unwrap_or(0);
+            let x = k as f64 * self.dx;
+            return (x, x);
+        };
+        let last = r.iter().rposition(|&v| v >= c).unwrap_or(first);
+        let crossing = |inside: usize, outside: usize| {
+            let t = (c - r[outside]) / (r[inside] - r[outside]).max(f64::MIN_POSITIVE);
+            let (a, b) = (outside as f64 * self.dx, inside as f64 * self.dx);
+            a + t.clamp(0.0, 1.0) * (b - a)
+        };
+        let lower = if first == 0 {
+            0.0
+        } else {
+            crossing(first, first - 1)
+        };
+        let upper = if last + 1 >= r.len() {
+            last as f64 * self.dx
+        } else {
+            crossing(last, last + 1)
+        };
+        (lower, upper)
     }
 
-    /// The interval on the true e for the observed value `x0`: the hull of {e : g(e) ≥ 0} with g
-    /// interpolated linearly between injected values.
+    /// The interval on the true e for the observed value `x0`: {e : L(e) ≤ x0 ≤ U(e)}, with
+    /// the acceptance bounds L, U of the injected e ([`Belt::acceptance_bounds`]) interpolated
+    /// linearly in e between injected values (solved exactly on each segment; the hull of the
+    /// solutions). Interpolating the bounds, not the ordering ratio R, keeps the interval right
+    /// when the grid step is wider than the estimator's scatter: R is relative to the best
+    /// *injected* e and jumps between grid points there.
     pub fn interval(&self, x0: f64) -> BeltInterval {
         let x0 = x0.max(0.0);
         let last = self.e.len() - 1;
@@ -256,7 +390,6 @@ impl Belt {
                 under_resolved: false,
             };
         }
-        let g = self.margins(x0);
         let e_best = (0..=last)
             .max_by(|&a, &b| {
                 self.ratio_at(a, x0)
@@ -264,48 +397,72 @@ impl Belt {
                     .then(b.cmp(&a))
             })
             .map_or(self.e[0], |j| self.e[j]);
-        // R is 1 where one injected e alone has density, and c_j is then 1 too: a tolerance
-        // keeps rounding in the interpolation from rejecting e_best itself.
-        let accepted: Vec<usize> = (0..=last).filter(|&j| g[j] >= -1e-9).collect();
-        let (lo_j, hi_j) = match (accepted.first(), accepted.last()) {
-            (Some(&a), Some(&b)) => (a, b),
-            // Only when interpolation on the x grid pushes R(x0) below c at e_best.
-            _ => {
-                let j = self.e.iter().position(|&e| e == e_best).unwrap_or(0);
-                (j, j)
+        let bounds: Vec<(f64, f64)> = (0..=last).map(|j| self.acceptance_bounds(j)).collect();
+        // Each segment [e_j, e_j+1] (or the single injected e): the t in [0, 1] with
+        // L(t) ≤ x0 ≤ U(t), L and U linear in t.
+        let mut hull: Option<(f64, f64, usize, usize)> = None;
+        let mut extend = |lo: f64, hi: f64, seg: usize| {
+            hull = Some(match hull {
+                None => (lo, hi, seg, seg),
+                Some((a, b, sa, sb)) => {
+                    let (a, sa) = if lo < a { (lo, seg) } else { (a, sa) };
+                    let (b, sb) = if hi > b { (hi, seg) } else { (b, sb) };
+                    (a, b, sa, sb)
+                }
+            });
+        };
+        if last == 0 {
+            let (l, u) = bounds[0];
+            if l <= x0 && x0 <= u {
+                extend(self.e[0], self.e[0], 0);
             }
-        };
-        let mut under_resolved = false;
-        let mut root = |a: usize, b: usize| {
-            // g(a) < 0 ≤ g(b): the zero of the line through them — unless the rejected
-            // neighbour has no density at x0 at all (its acceptance region does not reach
-            // towards x0), where the line says nothing and the end goes to the neighbour.
-            // The same when either cut is saturated (c ≈ 1: that injected e's estimates never
-            // meet its neighbours', so g jumps between grid points instead of varying along them).
-            if self.ratio_at(a, x0) <= 1e-9 || self.cut[a] > 0.99 || self.cut[b] > 0.99 {
-                under_resolved = true;
-                return self.e[a];
+        }
+        for j in 0..last {
+            let ((l0, u0), (l1, u1)) = (bounds[j], bounds[j + 1]);
+            // f(t) = a + t (b − a) ≤ x0 (or ≥ x0 when `below` is false) on [0, 1].
+            let solve = |a: f64, b: f64, below: bool| -> Option<(f64, f64)> {
+                let ok = |v: f64| if below { v <= x0 } else { v >= x0 };
+                if a == b {
+                    return ok(a).then_some((0.0, 1.0));
+                }
+                let t = ((x0 - a) / (b - a)).clamp(0.0, 1.0);
+                match (ok(a), ok(b)) {
+                    (true, true) => Some((0.0, 1.0)),
+                    (true, false) => Some((0.0, t)),
+                    (false, true) => Some((t, 1.0)),
+                    (false, false) => None,
+                }
+            };
+            let (Some(p), Some(q)) = (solve(l0, l1, true), solve(u0, u1, false)) else {
+                continue;
+            };
+            let (t_lo, t_hi) = (p.0.max(q.0), p.1.min(q.1));
+            if t_lo <= t_hi {
+                let span = self.e[j + 1] - self.e[j];
+                extend(self.e[j] + t_lo * span, self.e[j] + t_hi * span, j);
             }
-            let t = -g[a] / (g[b] - g[a]).max(f64::MIN_POSITIVE);
-            self.e[a] + t.clamp(0.0, 1.0) * (self.e[b] - self.e[a])
+        }
+        let (lower, upper, seg_lo, seg_hi) = hull.unwrap_or((e_best, e_best, 0, 0));
+        // A gap in the belt next to an end: the neighbouring injected e's acceptance regions do
+        // not meet, so that end is interpolated across e that no simulation represents; or the
+        // end lies inside a segment wider than COARSE_STEP times the scatter at both its ends.
+        let gap = |j: usize, end: f64| {
+            last > 0
+                && j < last
+                && (bounds[j].1 < bounds[j + 1].0
+                    || (end > self.e[j]
+                        && end < self.e[j + 1]
+                        && self.e[j + 1] - self.e[j]
+                            > COARSE_STEP * self.spread[j].max(self.spread[j + 1])))
         };
-        let lower = if lo_j == 0 {
-            self.e[lo_j]
-        } else {
-            root(lo_j - 1, lo_j)
-        };
-        let upper = if hi_j == last {
-            self.e[hi_j]
-        } else {
-            root(hi_j + 1, hi_j)
-        };
+        let under_resolved = hull.is_none() || gap(seg_lo, lower) || gap(seg_hi, upper);
         BeltInterval {
             level: self.level,
             lower,
             upper,
             e_best,
-            upper_limit: lo_j == 0 && self.e[0] == 0.0,
-            open_above: hi_j == last,
+            upper_limit: lower <= self.e[0] && self.e[0] == 0.0,
+            open_above: upper >= self.e[last],
             under_resolved,
         }
     }
@@ -476,5 +633,167 @@ mod tests {
         assert_eq!(est.resamples, 10);
         assert!(est.lower_standard_error.is_finite() && est.lower_standard_error < 0.03);
         assert!(est.upper_standard_error.is_finite() && est.upper_standard_error < 0.03);
+    }
+
+    /// Coverage on injections independent of the belt at true e between grid points, for a
+    /// grid step of 0.05 and 0.1 with the estimator's scatter σ = 0.03 (1.7 σ and 3.3 σ; the
+    /// second is where interpolating the ordering ratio in e gave intervals a few thousandths
+    /// wide): 300 simulations per grid e, 400 fresh values at each of eight true e. Returns
+    /// (pooled coverage, smallest per-e coverage, share of intervals flagged under-resolved,
+    /// smallest median width).
+    fn coverage_between_grid_points(step: f64) -> (f64, f64, f64, f64) {
+        let sigma = 0.03;
+        let grid: Vec<f64> = (0..=((0.6 / step).round() as usize))
+            .map(|i| i as f64 * step)
+            .collect();
+        let sims: Vec<Vec<f64>> = grid
+            .iter()
+            .enumerate()
+            .map(|(j, &e)| rice(e, sigma, 300, 41, j as u64))
+            .collect();
+        let belt = Belt::new(&inputs(&grid, &sims), 0.95, 0.0).unwrap();
+        let (mut hits_all, mut n_all, mut flagged, mut worst, mut narrowest) = (0, 0, 0, 1.0, 1.0);
+        let truths = [0.02, 0.05, 0.07, 0.12, 0.15, 0.18, 0.25, 0.33];
+        for (i, &truth) in truths.iter().enumerate() {
+            let fresh = rice(truth, sigma, 400, 43, 50 + i as u64);
+            let mut widths = Vec::new();
+            let mut hits = 0;
+            for &x in &fresh {
+                let b = belt.interval(x);
+                widths.push(b.upper - b.lower);
+                flagged += usize::from(b.under_resolved);
+                hits += usize::from(b.lower <= truth && truth <= b.upper);
+            }
+            let share = hits as f64 / fresh.len() as f64;
+            widths.sort_by(f64::total_cmp);
+            worst = f64::min(worst, share);
+            narrowest = f64::min(narrowest, widths[widths.len() / 2]);
+            hits_all += hits;
+            n_all += fresh.len();
+        }
+        let pooled = hits_all as f64 / n_all as f64;
+        (pooled, worst, flagged as f64 / n_all as f64, narrowest)
+    }
+
+    /// A grid step within 2.5 times the scatter covers at its level between grid points and is not
+    /// flagged; a step of 3.3 σ still gives intervals of honest width (no degenerate ones),
+    /// covers ≥ 90% pooled (measured 0.92: linear interpolation of the bounds loses a little
+    /// there), and every interval whose end lies in such a segment says so (`under_resolved`).
+    /// Binomial standard errors (common practice): per e √(0.95·0.05/400) = 0.0109, pooled
+    /// over 3200 values 0.0039; the belt's own Monte-Carlo error (300 per e; conformal cut)
+    /// adds about 0.01. Tolerances: pooled within 3 × 0.0039 + 0.01 of 0.95, each e above
+    /// 0.95 − 3 × 0.0109 − 0.01.
+    #[test]
+    #[allow(clippy::disallowed_macros)] // the test prints the coverage it measured
+    fn intervals_cover_between_grid_points_and_flag_coarse_steps() {
+        let (pooled, worst, flagged, narrowest) = coverage_between_grid_points(0.05);
+        eprintln!(
+            "step 0.05 = 1.7 σ: pooled {pooled:.4}, worst {worst:.4}, flagged {flagged:.3}, \
+             narrowest median width {narrowest:.4}"
+        );
+        assert!(
+            (pooled - 0.95).abs() < 3.0 * 0.0039 + 0.01,
+            "pooled {pooled}"
+        );
+        assert!(worst > 0.95 - 3.0 * 0.0109 - 0.01, "worst {worst}");
+        assert!(flagged < 0.01, "flagged {flagged}");
+        let (pooled, worst, flagged, narrowest) = coverage_between_grid_points(0.1);
+        eprintln!(
+            "step 0.1 = 3.3 σ: pooled {pooled:.4}, worst {worst:.4}, flagged {flagged:.3}, \
+             narrowest median width {narrowest:.4}"
+        );
+        assert!(pooled >= 0.90, "pooled {pooled}");
+        assert!(flagged > 0.9, "flagged {flagged}");
+        // Not the degenerate few-thousandths intervals: at least 2σ wide (the narrowest are
+        // the upper limits near e = 0, about 2.5σ).
+        assert!(narrowest > 2.0 * 0.03, "narrowest median width {narrowest}");
+    }
+
+    /// Few simulations per injected e (30, as in a reduced audit): averaged over 400
+    /// independent belts, each inverted at one fresh value, the interval covers at least its
+    /// nominal 95%. The plain 5% quantile of in-sample ratios covered about 0.91 here (the
+    /// measurement that led to the leave-one-out conformal cut). Binomial standard error
+    /// √(0.95·0.05/400) = 0.0109 (common practice); tolerance three standard errors below 0.95.
+    #[test]
+    #[allow(clippy::disallowed_macros)] // the test prints the coverage it measured
+    fn thirty_simulations_per_e_still_cover() {
+        let sigma = 0.03;
+        let grid: Vec<f64> = (0..=6).map(|i| f64::from(i) / 10.0).collect();
+        for &truth in &[0.15, 0.3] {
+            let reps = 400u64;
+            let mut hits = 0;
+            for b in 0..reps {
+                let sims: Vec<Vec<f64>> = grid
+                    .iter()
+                    .enumerate()
+                    .map(|(j, &e)| rice(e, sigma, 30, 1000 + b, j as u64))
+                    .collect();
+                let belt = Belt::new(&inputs(&grid, &sims), 0.95, 0.0).unwrap();
+                let x = rice(truth, sigma, 1, 77, b)[0];
+                let i = belt.interval(x);
+                assert!(i.lower <= i.upper, "{i:?}");
+                if i.lower <= truth && truth <= i.upper {
+                    hits += 1;
+                }
+            }
+            let share = f64::from(hits) / reps as f64;
+            eprintln!("30 per e, true e {truth}: coverage {share:.4}");
+            assert!(share > 0.95 - 3.0 * 0.0109, "e = {truth}: {share}");
+        }
+    }
+
+    /// The interval is exact per segment: each end e* inside a segment [e_j, e_j+1] satisfies
+    /// L(e*) = x0 or U(e*) = x0 for the acceptance bounds interpolated linearly in e (to
+    /// rounding), and the ends move continuously with x0: over a scan in steps of 0.0005 no end
+    /// jumps by more than 0.02 unless the belt has a gap there (`under_resolved`).
+    #[test]
+    fn ends_solve_the_interpolated_bounds_and_move_continuously() {
+        let sigma = 0.03;
+        let grid: Vec<f64> = (0..=6).map(|i| f64::from(i) / 10.0).collect();
+        let sims: Vec<Vec<f64>> = grid
+            .iter()
+            .enumerate()
+            .map(|(j, &e)| rice(e, sigma, 300, 47, j as u64))
+            .collect();
+        let belt = Belt::new(&inputs(&grid, &sims), 0.95, 0.0).unwrap();
+        let bounds: Vec<(f64, f64)> = (0..grid.len()).map(|j| belt.acceptance_bounds(j)).collect();
+        let interp = |e: f64, upper: bool| -> f64 {
+            let j = ((e / 0.1) as usize).min(grid.len() - 2);
+            let t = (e - grid[j]) / (grid[j + 1] - grid[j]);
+            let (a, b) = if upper {
+                (bounds[j].1, bounds[j + 1].1)
+            } else {
+                (bounds[j].0, bounds[j + 1].0)
+            };
+            a + t * (b - a)
+        };
+        let mut previous: Option<BeltInterval> = None;
+        let mut solved = 0;
+        for k in 0..=1000 {
+            let x0 = f64::from(k) * 0.0005;
+            let b = belt.interval(x0);
+            assert!(
+                b.lower <= b.upper && b.lower <= b.e_best && b.e_best <= b.upper,
+                "{b:?}"
+            );
+            let off_grid = |e: f64| grid.iter().all(|g| (e - g).abs() > 1e-9);
+            if b.lower > 0.0 && off_grid(b.lower) {
+                // The lower end of the set is where U(e) comes down to x0.
+                assert!((interp(b.lower, true) - x0).abs() < 1e-9, "x0 {x0}: {b:?}");
+                solved += 1;
+            }
+            if !b.open_above && off_grid(b.upper) {
+                assert!((interp(b.upper, false) - x0).abs() < 1e-9, "x0 {x0}: {b:?}");
+                solved += 1;
+            }
+            if let Some(p) = previous {
+                if !p.under_resolved && !b.under_resolved {
+                    assert!((b.lower - p.lower).abs() < 0.02, "x0 {x0}: {p:?} -> {b:?}");
+                    assert!((b.upper - p.upper).abs() < 0.02, "x0 {x0}: {p:?} -> {b:?}");
+                }
+            }
+            previous = Some(b);
+        }
+        assert!(solved > 1000, "{solved} ends checked");
     }
 }

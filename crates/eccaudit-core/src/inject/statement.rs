@@ -766,7 +766,9 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
         };
     }
     let coarse = if i.under_resolved {
-        " (conservative: the injected grid is too coarse to place its ends more closely)"
+        " (interpolated between injected e spaced wider than 2.5 times the estimator's scatter \
+         or whose simulated estimates do not overlap: a finer grid there would place its ends \
+         more reliably)"
     } else {
         ""
     };
@@ -882,8 +884,10 @@ fn methods(
          adaptive trials) at the fitted P = {:.4} d and K = {:.2} m/s, with random phase{}, the \
          same epochs and uncertainties{jitter}, and each simulation was estimated as the data were. \
          Intervals invert the simulated confidence belt (Neyman 1937) with the likelihood-ratio \
-         ordering of Feldman & Cousins (1998) on reflected kernel density estimates, linear in e \
-         between grid points; their ends' Monte-Carlo errors come from {} bootstrap resamples. ",
+         ordering of Feldman & Cousins (1998) on reflected kernel density estimates, each \
+         acceptance cut a conformal rank of leave-one-out ratios (Lei, Robins & Wasserman 2013), \
+         the acceptance bounds linear in e between grid points; their ends' Monte-Carlo errors \
+         come from {} bootstrap resamples. ",
         s.trials_per_cell,
         s.extra_trials,
         s.fitted.period,
