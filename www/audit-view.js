@@ -213,7 +213,7 @@ export function wireAudit({ currentTable, el, currentModel }) {
     menu.dataset.forRun = String(report.injection.fingerprint);
     const index = names.indexOf(menu.value);
     const head = el("tr", {}, ...["true e", "trials", "bias", "scatter", "RMSE",
-      "68% coverage", "95% coverage", "false-eccentric rate", "failed"].map((h) => el("th", {}, h)));
+      "68% coverage", "95% coverage", "false-eccentric rate", "failed", "not converged"].map((h) => el("th", {}, h)));
     const rows = report.injection.cells.map((cell) => {
       const o = cell.outputs[index];
       return el("tr", {},
@@ -225,7 +225,8 @@ export function wireAudit({ currentTable, el, currentModel }) {
         el("td", {}, rate(o.coverage68)),
         el("td", {}, rate(o.coverage95)),
         el("td", {}, cell.cell.eccentricity === 0 ? rate(o.false_eccentric_rate) : "–"),
-        el("td", {}, o.n_failed > 0 ? rate(o.failed_share) : "0"));
+        el("td", {}, o.n_failed > 0 ? rate(o.failed_share) : "0"),
+        el("td", {}, o.unconverged_share == null ? "–" : o.n_unconverged > 0 ? rate(o.unconverged_share) : "0"));
     });
     $("audit-summary").replaceChildren(el("thead", {}, head), el("tbody", {}, ...rows));
   }

@@ -955,7 +955,8 @@ impl AuditPlan {
             self.estimator.as_deref(),
         )?;
         let x0 = self.observed[chosen].as_ref()?.point;
-        let per_cell = estimates_by_cell(&cells, &counted, chosen);
+        let per_cell =
+            estimates_by_cell(&cells, &counted, chosen, outputs[chosen].converged_index());
         let belt = output_belt(&cells, &per_cell, x0)?;
         let interval = belt.interval(x0);
         let (used, nearest) = cells_in_use(&cells, &interval, x0);

@@ -226,6 +226,9 @@ pub struct EstimatorRow {
     pub false_eccentric_rate: Option<Rate>,
     /// Share of its simulations (all cells) that failed.
     pub failed: Option<Rate>,
+    /// Share of its simulations (all cells) whose run missed its convergence rule, left out of
+    /// its numbers (None for an estimator without such a rule).
+    pub unconverged: Option<Rate>,
 }
 
 /// A Bayes factor quoted, or left out with the reason.
@@ -303,11 +306,16 @@ pub fn statement_cells(design: &InjectionDesign, fitted: &FittedOrbit) -> Vec<Gr
 }
 
 /// Each cell's estimates of output `output` from `records` (sorted by trial index, so the
-/// result does not depend on the order the trials finished in).
+/// result does not depend on the order the trials finished in). `converged` is the output's
+/// convergence flag ([`OutputInfo::converged_index`]): estimates from runs that missed their
+/// convergence rule are left out ([`Outcome::counted`]).
+///
+/// [`Outcome::counted`]: super::engine::Outcome::counted
 pub fn estimates_by_cell(
     cells: &[GridCell],
     records: &[&TrialRecord],
     output: usize,
+    converged: Option<usize>,
 ) -> Vec<Vec<f64>> {
     let mut sorted: Vec<&TrialRecord> = records.to_vec();
     sorted.sort_by_key(|r| r.trial);
@@ -318,7 +326,7 @@ pub fn estimates_by_cell(
             sorted
                 .iter()
                 .filter(|r| r.cell == c.index)
-                .filter_map(|r| r.outcomes.get(output).and_then(|o| o.estimate()))
+                .filter_map(|r| r.outcomes.get(output).and_then(|o| o.counted(converged)))
                 .map(|e| e.point)
                 .filter(|x| x.is_finite())
                 .collect()
@@ -405,8 +413,9 @@ fn quotable(info: &OutputInfo, observed: Option<&EccentricityEstimate>) -> Resul
 pub const RECOMMENDATION_RULE: &str = "the estimator with the smallest root-mean-square error \
     averaged over the injected e inside its own calibrated interval, from the base simulations \
     (the Lucy-Sweeney adopted value, a test, and posterior runs that did not converge on the data \
-    are not candidates, nor are estimators run on fewer than half of the base simulations of an \
-    injected e, such as posterior estimators run at a smaller count per e)";
+    are not candidates, nor are estimators counted on fewer than half of the base simulations of \
+    an injected e: posterior estimators run at a smaller count per e, or whose runs missed their \
+    convergence rule)";
 
 /// The recommended output (index) by [`RECOMMENDATION_RULE`], from `base_records` (the base
 /// trials only, so adding extra trials never changes the choice).
@@ -424,13 +433,14 @@ pub fn recommend(
         let Ok(x0) = quotable(info, observed.get(i).and_then(Option::as_ref)) else {
             continue;
         };
-        let per_cell = estimates_by_cell(cells, base_records, i);
+        let per_cell = estimates_by_cell(cells, base_records, i, info.converged_index());
         let Some(belt) = output_belt(cells, &per_cell, x0) else {
             continue;
         };
         let interval = belt.interval(x0);
-        // Estimators run on a smaller share of the base simulations (the audit's posterior
-        // estimators, `injection.posterior.trials_per_cell`) are shown, not recommended.
+        // Estimators counted on a smaller share of the base simulations (the audit's posterior
+        // estimators, `injection.posterior.trials_per_cell`, or runs that missed their
+        // convergence rule) are shown, not recommended.
         let run_on_fewer = cells.iter().zip(&per_cell).any(|(c, v)| {
             let n_base = base_records.iter().filter(|r| r.cell == c.index).count();
             2 * v.len() < n_base
@@ -584,7 +594,7 @@ pub fn eccentricity_statement(
     let mut rows = Vec::new();
     for (i, (info, obs)) in summary.outputs.iter().zip(observed).enumerate() {
         let Some(obs) = obs else { continue };
-        let per_cell = estimates_by_cell(&cells, &all, i);
+        let per_cell = estimates_by_cell(&cells, &all, i, info.converged_index());
         let (value, value_note) = match quotable(info, Some(obs)) {
             Ok(v) => (Some(v), None),
             Err(why) => (None, Some(why)),
@@ -611,16 +621,18 @@ pub fn eccentricity_statement(
         let (mean, sd) = mean_sd(&per_cell[j]);
         let n_j = per_cell[j].len();
         let stats = cell_summary(&cells[j]).map(|s| &s.outputs[i]);
-        let (failed, tried) = cells
+        let (failed, unconverged, tried) = cells
             .iter()
             .filter_map(&cell_summary)
             .map(|s| {
+                let o = &s.outputs[i];
                 (
-                    s.outputs[i].n_failed,
-                    s.outputs[i].n_failed + s.outputs[i].n_estimates,
+                    o.n_failed,
+                    o.n_unconverged,
+                    o.n_failed + o.n_unconverged + o.n_estimates,
                 )
             })
-            .fold((0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
+            .fold((0, 0, 0), |a, b| (a.0 + b.0, a.1 + b.1, a.2 + b.2));
         rows.push(EstimatorRow {
             name: info.name.clone(),
             label: info.label.clone(),
@@ -639,6 +651,9 @@ pub fn eccentricity_statement(
                 .and_then(&cell_summary)
                 .and_then(|s| s.outputs[i].false_eccentric_rate),
             failed: Rate::of(failed, tried),
+            unconverged: info
+                .converged_index()
+                .and_then(|_| Rate::of(unconverged, tried)),
         });
     }
     let bayes = bayes_notes(&summary.outputs, observed);
@@ -965,6 +980,28 @@ fn methods(
             failures.join("; ")
         ));
     }
+    let unconverged: Vec<String> = s
+        .rows
+        .iter()
+        .filter_map(|r| r.unconverged.filter(|f| f.value > 0.0).map(|f| (r, f)))
+        .map(|(r, f)| {
+            format!(
+                "{} {:.1}% ± {:.1}% of {}",
+                r.name,
+                100.0 * f.value,
+                100.0 * f.standard_error,
+                f.n
+            )
+        })
+        .collect();
+    if !unconverged.is_empty() {
+        text.push_str(&format!(
+            "Simulations whose posterior run missed its convergence rule within the per-trial \
+             budget are left out of that estimator's numbers (which may favour the easier \
+             simulations): {}. ",
+            unconverged.join("; ")
+        ));
+    }
     text.push_str(&format!("Recommended: {}.", s.recommendation_rule));
     for b in &s.bayes {
         text.push(' ');
@@ -1021,7 +1058,7 @@ impl EccentricityStatement {
             .unwrap_or(0)
             .max(9);
         out.push_str(&format!(
-            "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7} {:>13} {:>13} {:>13}\n",
+            "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7} {:>13} {:>13} {:>13} {:>13}\n",
             "estimator",
             "value",
             "95% calibrated",
@@ -1030,7 +1067,8 @@ impl EccentricityStatement {
             "RMSE",
             "coverage95",
             "false-ecc",
-            "failed"
+            "failed",
+            "unconverged"
         ));
         for r in &self.rows {
             let mark = if self.recommended.as_ref() == Some(&r.name) {
@@ -1051,8 +1089,13 @@ impl EccentricityStatement {
                 Some(f) if f.value > 0.0 => rate_text(&Some(f)),
                 _ => "0".into(),
             };
+            let unconverged = match r.unconverged {
+                Some(f) if f.value > 0.0 => rate_text(&Some(f)),
+                Some(_) => "0".into(),
+                None => "-".into(),
+            };
             out.push_str(&format!(
-                "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7.4} {:>13} {:>13} {:>13}\n",
+                "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7.4} {:>13} {:>13} {:>13} {:>13}\n",
                 format!("{}{mark}", r.name),
                 value,
                 interval,
@@ -1061,7 +1104,8 @@ impl EccentricityStatement {
                 r.rmse,
                 rate_text(&r.coverage95),
                 rate_text(&r.false_eccentric_rate),
-                failed
+                failed,
+                unconverged
             ));
         }
         out.push_str("  (* recommended; value '-' : not quoted, see the notes)\n");
