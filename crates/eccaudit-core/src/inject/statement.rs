@@ -753,16 +753,22 @@ fn bayes_notes(
     notes
 }
 
+/// An interval end printed no finer than its Monte-Carlo error supports: three decimals when
+/// its bootstrap standard error is at most 0.005, else two (so no 0.005-level claim rests on
+/// an end that moves by more between resamples), with the error beside it when known.
+fn end_text(value: f64, se: f64) -> String {
+    if se.is_finite() && se <= 0.005 {
+        format!("{value:.3} (±{se:.3})")
+    } else if se.is_finite() {
+        format!("{value:.2} (±{se:.2})")
+    } else {
+        format!("{value:.2}")
+    }
+}
+
 fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
-    let err = |se: f64| {
-        if se.is_finite() {
-            format!(" (±{se:.3})")
-        } else {
-            String::new()
-        }
-    };
-    let (lo_err, hi_err) = errors.map_or((String::new(), String::new()), |e| {
-        (err(e.lower_standard_error), err(e.upper_standard_error))
+    let (lo_se, hi_se) = errors.map_or((f64::NAN, f64::NAN), |e| {
+        (e.lower_standard_error, e.upper_standard_error)
     });
     if i.open_above {
         // The set reaches the top of the simulated grid: only its lower end is bounded here.
@@ -773,9 +779,9 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
             )
         } else {
             format!(
-                "e > {:.3}{lo_err} (open above: it reaches the top of the simulated grid, e = {}; \
-                 extend the grid to bound it)",
-                i.lower,
+                "e > {} (open above: it reaches the top of the simulated grid, e = {}; extend \
+                 the grid to bound it)",
+                end_text(i.lower, lo_se),
                 grid_value(i.upper)
             )
         };
@@ -788,11 +794,12 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
         ""
     };
     if i.upper_limit {
-        format!("e < {:.3}{hi_err}{coarse}", i.upper)
+        format!("e < {}{coarse}", end_text(i.upper, hi_se))
     } else {
         format!(
-            "{:.3}{lo_err} < e < {:.3}{hi_err}{coarse}",
-            i.lower, i.upper
+            "{} < e < {}{coarse}",
+            end_text(i.lower, lo_se),
+            end_text(i.upper, hi_se)
         )
     }
 }
@@ -844,10 +851,14 @@ fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
                  simulations of these {} epochs and uncertainties, is {interval}.",
                 r.label, s.n_epochs
             ));
+            // Three decimals only when the Monte-Carlo error supports them (as the ends).
+            let bias = if r.bias_standard_error <= 0.005 {
+                format!("{:+.3} ± {:.3}", r.bias, r.bias_standard_error)
+            } else {
+                format!("{:+.2} ± {:.2}", r.bias, r.bias_standard_error)
+            };
             out.push(format!(
-                "At this sampling it is biased by {:+.3} ± {:.3} at a true e = {} ({} simulations).",
-                r.bias,
-                r.bias_standard_error,
+                "At this sampling it is biased by {bias} at a true e = {} ({} simulations).",
                 grid_value(r.at_true_e),
                 r.n_at_true_e
             ));
@@ -1214,5 +1225,39 @@ mod tests {
         let notes = bayes_notes(&[info], &[Some(yes)]);
         assert_eq!(notes[0].bf01, Some(0.8));
         assert!(notes[0].text.contains("BF01 = 0.800"), "{}", notes[0].text);
+    }
+
+    /// Interval ends carry three decimals only when their bootstrap error is ≤ 0.005.
+    #[test]
+    fn interval_ends_print_no_finer_than_their_monte_carlo_error() {
+        let interval = BeltInterval {
+            level: 0.95,
+            lower: 0.1234,
+            upper: 0.3456,
+            e_best: 0.2,
+            upper_limit: false,
+            open_above: false,
+            under_resolved: false,
+        };
+        let errors = |lo: f64, hi: f64| BeltEstimate {
+            interval,
+            lower_standard_error: lo,
+            upper_standard_error: hi,
+            resamples: 20,
+        };
+        assert_eq!(
+            interval_text(&interval, Some(&errors(0.004, 0.02))),
+            "0.123 (±0.004) < e < 0.35 (±0.02)"
+        );
+        assert_eq!(interval_text(&interval, None), "0.12 < e < 0.35");
+        let limit = BeltInterval {
+            lower: 0.0,
+            upper_limit: true,
+            ..interval
+        };
+        assert_eq!(
+            interval_text(&limit, Some(&errors(0.0, 0.003))),
+            "e < 0.346 (±0.003)"
+        );
     }
 }
