@@ -117,15 +117,17 @@ export async function openApp() {
 
 /**
  * The page, opened and loaded once for the calling test file (node:test `before`/`after`
- * hooks): the returned object gets the fields of `openApp()` before the first test runs.
+ * hooks): the returned object gets the fields of `openApp()` before the first test runs;
+ * `ready(app)`, when given, runs next in the same hook (e.g. to choose a demo table).
  */
-export function pageForThisFile() {
+export function pageForThisFile(ready = null) {
   const app = {};
   let opened = null;
   before(async () => {
     opened = await openApp();
     Object.assign(app, opened);
     await opened.load();
+    if (ready) await ready(app);
   });
   after(async () => {
     await opened?.close();

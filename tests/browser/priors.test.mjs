@@ -1,7 +1,7 @@
 // The "Eccentricity priors" section in headless Chromium: a short prior set sampled in workers on
 // the demo table Corvin 4, its table and figures, a bad spec named by line, cancellation, and
 // the report equal to `eccaudit priors --json` with the same settings (same inputs, same bits).
-import { test, before } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
 import { existsSync } from "node:fs";
@@ -12,10 +12,9 @@ import { pageForThisFile, ROOT, CLI } from "./harness.mjs";
 const PRIORS = ["uniform:0..0.8", "rayleigh(0.3)"];
 const SAMPLER = { walkers: "16", steps: "300", burn: "100", seed: "3" };
 
-const app = pageForThisFile();
-before(async () => {
-  await app.page.selectOption("#demo-select", "1");
-  await app.page.waitForFunction(() =>
+const app = pageForThisFile(async ({ page }) => {
+  await page.selectOption("#demo-select", "1");
+  await page.waitForFunction(() =>
     document.querySelector("[data-testid='summary-facts']")?.textContent.includes("corvin4-eccentric.tsv"));
 });
 
