@@ -890,6 +890,24 @@ fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
     out
 }
 
+/// "name p% ± se% of n; …" for the rows whose `share` (of simulations left out of their
+/// numbers) is above zero; empty when none is.
+fn shares_left_out(rows: &[EstimatorRow], share: impl Fn(&EstimatorRow) -> Option<Rate>) -> String {
+    rows.iter()
+        .filter_map(|r| share(r).filter(|f| f.value > 0.0).map(|f| (r, f)))
+        .map(|(r, f)| {
+            format!(
+                "{} {:.1}% ± {:.1}% of {}",
+                r.name,
+                100.0 * f.value,
+                100.0 * f.standard_error,
+                f.n
+            )
+        })
+        .collect::<Vec<_>>()
+        .join("; ")
+}
+
 fn methods(
     s: &EccentricityStatement,
     summary: &InjectionSummary,
@@ -971,46 +989,18 @@ fn methods(
             100.0 * ls.false_alarm_rate.standard_error
         ));
     }
-    let failures: Vec<String> = s
-        .rows
-        .iter()
-        .filter_map(|r| r.failed.filter(|f| f.value > 0.0).map(|f| (r, f)))
-        .map(|(r, f)| {
-            format!(
-                "{} {:.1}% ± {:.1}% of {}",
-                r.name,
-                100.0 * f.value,
-                100.0 * f.standard_error,
-                f.n
-            )
-        })
-        .collect();
+    let failures = shares_left_out(&s.rows, |r| r.failed);
     if !failures.is_empty() {
         text.push_str(&format!(
-            "Simulations where an estimator failed are left out of its numbers: {}. ",
-            failures.join("; ")
+            "Simulations where an estimator failed are left out of its numbers: {failures}. "
         ));
     }
-    let unconverged: Vec<String> = s
-        .rows
-        .iter()
-        .filter_map(|r| r.unconverged.filter(|f| f.value > 0.0).map(|f| (r, f)))
-        .map(|(r, f)| {
-            format!(
-                "{} {:.1}% ± {:.1}% of {}",
-                r.name,
-                100.0 * f.value,
-                100.0 * f.standard_error,
-                f.n
-            )
-        })
-        .collect();
+    let unconverged = shares_left_out(&s.rows, |r| r.unconverged);
     if !unconverged.is_empty() {
         text.push_str(&format!(
             "Simulations whose posterior run missed its convergence rule within the per-trial \
              budget are left out of that estimator's numbers (which may favour the easier \
-             simulations): {}. ",
-            unconverged.join("; ")
+             simulations): {unconverged}. "
         ));
     }
     text.push_str(&format!("Recommended: {}.", s.recommendation_rule));
