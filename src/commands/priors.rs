@@ -34,14 +34,14 @@ pub struct Args {
     #[arg(long = "priors", value_name = "SPEC", num_args = 1..)]
     pub priors: Vec<String>,
     /// Walkers per ensemble (raised to 2·parameters + 2 when the model needs more).
-    #[arg(long, default_value_t = 16)]
+    #[arg(long, default_value_t = 64)]
     pub walkers: usize,
     /// Steps after burn-in before the first convergence check (each run then extends itself
     /// until converged, unless --fixed-length).
-    #[arg(long, default_value_t = 1000)]
+    #[arg(long, default_value_t = 300)]
     pub steps: usize,
     /// Burn-in steps.
-    #[arg(long, default_value_t = 200)]
+    #[arg(long, default_value_t = 100)]
     pub burn: usize,
     /// Independent ensembles per prior (the convergence rule compares them; at least 2).
     #[arg(long, default_value_t = 4)]
