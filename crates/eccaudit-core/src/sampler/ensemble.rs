@@ -395,8 +395,8 @@ impl HalfGaussian {
         let walkers = &positions[first * dim..(first + count) * dim];
         self.mean.fill(0.0);
         for x in walkers.chunks_exact(dim) {
-            for i in 0..dim {
-                self.mean[i] += x[i];
+            for (m, v) in self.mean.iter_mut().zip(x) {
+                *m += v;
             }
         }
         for m in &mut self.mean {
@@ -408,8 +408,8 @@ impl HalfGaussian {
         for x in walkers.chunks_exact(dim) {
             for i in 0..dim {
                 let di = x[i] - self.mean[i];
-                for j in 0..=i {
-                    self.factor[i * dim + j] += di * (x[j] - self.mean[j]);
+                for (j, (xj, mj)) in x.iter().zip(&self.mean).enumerate().take(i + 1) {
+                    self.factor[i * dim + j] += di * (xj - mj);
                 }
             }
         }
@@ -443,8 +443,8 @@ impl HalfGaussian {
     fn mahalanobis_squared(&mut self, x: &[f64]) -> f64 {
         let dim = self.mean.len();
         let mut sum = 0.0;
-        for i in 0..dim {
-            let mut v = x[i] - self.mean[i];
+        for (i, (xi, mi)) in x.iter().zip(&self.mean).enumerate() {
+            let mut v = xi - mi;
             for k in 0..i {
                 v -= self.factor[i * dim + k] * self.work[k];
             }
@@ -908,7 +908,7 @@ fn check_settings(dim: usize, settings: &SamplerSettings) -> Result<(), SamplerE
         });
     }
     let g = settings.gaussian_fraction;
-    if !(g >= 0.0 && g <= 1.0 && g + settings.de_fraction <= 1.0) {
+    if !((0.0..=1.0).contains(&g) && g + settings.de_fraction <= 1.0) {
         return Err(SamplerError::MoveFractions {
             gaussian_fraction: g,
             de_fraction: settings.de_fraction,
