@@ -66,7 +66,8 @@ pub struct SamplerSettings {
     pub de_fraction: f64,
     /// Fraction of walker updates made by the ensemble Gaussian independence move (0 = none;
     /// default 0.5); `de_fraction + gaussian_fraction ≤ 1`, the rest are stretch moves. Used
-    /// only when the complementary half has more walkers than parameters. See
+    /// only when the complementary half has at least two walkers per parameter (otherwise its
+    /// share goes to DE and stretch in their ratio). See
     /// [`EnsembleState`]'s step.
     pub gaussian_fraction: f64,
 }
@@ -782,7 +783,10 @@ impl EnsembleState {
         for (active_start, other_start) in [(0, half), (half, 0)] {
             // The complementary half's Gaussian: it depends on those walkers only, which do not
             // move during this half-step, so the independence proposal is a valid MH kernel.
-            let gaussian_fraction = if gaussian_fraction > 0.0 && half > dim {
+            // Only with at least two walkers per parameter in the half: fewer estimate the
+            // covariance too poorly (measured: with 11 walkers for 10 parameters most proposals
+            // were rejected and two-companion trials stopped converging).
+            let gaussian_fraction = if gaussian_fraction > 0.0 && half >= 2 * dim {
                 self.gaussian.fit(&self.positions, dim, other_start, half);
                 if self.gaussian.usable {
                     gaussian_fraction
@@ -791,6 +795,13 @@ impl EnsembleState {
                 }
             } else {
                 0.0
+            };
+            // Without the Gaussian move its share goes to DE and stretch in their ratio (the
+            // defaults then give the DE/stretch halves of the mixture without it).
+            let de_share = if gaussian_fraction == 0.0 && self.settings.gaussian_fraction < 1.0 {
+                de_fraction / (1.0 - self.settings.gaussian_fraction)
+            } else {
+                de_fraction
             };
             for k in active_start..active_start + half {
                 // u32 range sampling is the same on 32- and 64-bit targets. One uniform picks
@@ -801,7 +812,7 @@ impl EnsembleState {
                         if u < gaussian_fraction {
                             (true, false)
                         } else {
-                            (false, half >= 2 && u - gaussian_fraction < de_fraction)
+                            (false, half >= 2 && u - gaussian_fraction < de_share)
                         }
                     } else {
                         (false, false)
