@@ -5,45 +5,18 @@ import { wireSurvey } from "./survey-view.js";
 import { wirePopulation } from "./population-view.js";
 import { initPriorsView } from "./priors-view.js";
 import { addFigureExports, addTableExports, stem } from "./exports.js";
-
-const $ = (id) => document.getElementById(id);
+import { $, el, hideError, messageOf, showError, tick, wireDropZone } from "./dom.js";
+import { fixed, significant, withError } from "./format.js";
 
 const state = {
   dataset: null,      // the loaded table (a wasm handle); kept when a new load fails
   model: null,        // elements of the overlaid curve, or null
   fit: null,          // the last fit report of this table (plain object), or null
-  table: null,        // {text, name, velocityUnit, timeConvention} of the loaded table
+  // The loaded table as {text, name, velocityUnit, timeConvention}: what the views and their
+  // workers read it from, or null.
+  table: null,
   audit: null,        // the injection–recovery view (audit-view.js)
-  source: null,       // text and read options of the loaded table (for workers), or null
 };
-
-// Build DOM nodes from text only: user strings never become HTML.
-function el(tag, attrs = {}, ...children) {
-  const node = document.createElement(tag);
-  for (const [key, value] of Object.entries(attrs)) {
-    if (key === "class") node.className = value;
-    else node.setAttribute(key, value);
-  }
-  for (const child of children) {
-    node.append(child instanceof Node ? child : document.createTextNode(String(child)));
-  }
-  return node;
-}
-
-function showError(box, message) {
-  box.textContent = message;
-  box.hidden = false;
-}
-
-function hideError(box) {
-  box.hidden = true;
-  box.textContent = "";
-}
-
-function messageOf(err) {
-  if (err instanceof Error) return err.message;
-  return String(err);
-}
 
 // Counts finished load attempts (good or bad), so tests can wait for one.
 let loadAttempts = 0;
@@ -52,7 +25,7 @@ async function loadTable(text, sourceName) {
     if (!tryLoadTable(text, sourceName)) return false;
     // Draw in a task of its own, so parsing and drawing a large table do not hold the main
     // thread in one piece.
-    await new Promise((resolve) => setTimeout(resolve, 0));
+    await tick();
     redraw();
     return true;
   } finally {
@@ -73,18 +46,10 @@ function tryLoadTable(text, sourceName) {
   state.dataset = dataset;
   state.table = { text, name: sourceName, velocityUnit: $("velocity-unit").value, timeConvention: $("time-convention").value };
   state.audit?.tableChanged();
-  state.source = {
-    text, sourceName, velocityUnit: $("velocity-unit").value, timeConvention: $("time-convention").value,
-  };
   state.model = null;
   clearFit();
   renderSummary(dataset.summary());
   return true;
-}
-
-function fmt(value, digits = 2) {
-  if (value === null || value === undefined || Number.isNaN(value)) return "–";
-  return Number(value).toFixed(digits);
 }
 
 const STATED_BY = {
@@ -99,7 +64,7 @@ function renderSummary(summary) {
   box.append(
     el("p", { class: "facts", "data-testid": "summary-facts" },
       `${summary.source_name}: ${summary.n_rows} measurements from ${summary.n_instruments} ` +
-      `instrument${summary.n_instruments === 1 ? "" : "s"} over ${fmt(summary.overall.baseline_days, 1)} days ` +
+      `instrument${summary.n_instruments === 1 ? "" : "s"} over ${fixed(summary.overall.baseline_days, 1)} days ` +
       `(time: ${summary.time_convention_label}, ${STATED_BY[summary.time_convention.stated_by]}; ` +
       `velocities read in ${summary.velocity_unit_in_source}, shown in m/s).`),
   );
@@ -109,14 +74,14 @@ function renderSummary(summary) {
   const rows = summary.instruments.map((inst, idx) =>
     el("tr", {},
       el("td", {}, el("span", { class: `swatch swatch-${idx % 7}` }), inst.name),
-      el("td", {}, inst.n_rows), el("td", {}, fmt(inst.first_time, 3)), el("td", {}, fmt(inst.last_time, 3)),
-      el("td", {}, fmt(inst.median_uncertainty_m_s)), el("td", {}, fmt(inst.rms_m_s)),
-      el("td", {}, fmt(inst.weighted_rms_m_s))));
+      el("td", {}, inst.n_rows), el("td", {}, fixed(inst.first_time, 3)), el("td", {}, fixed(inst.last_time, 3)),
+      el("td", {}, fixed(inst.median_uncertainty_m_s)), el("td", {}, fixed(inst.rms_m_s)),
+      el("td", {}, fixed(inst.weighted_rms_m_s))));
   const all = summary.overall;
   rows.push(el("tr", { class: "total" },
-    el("td", {}, "all"), el("td", {}, summary.n_rows), el("td", {}, fmt(all.first_time, 3)),
-    el("td", {}, fmt(all.last_time, 3)), el("td", {}, fmt(all.median_uncertainty_m_s)),
-    el("td", {}, fmt(all.rms_m_s)), el("td", {}, fmt(all.weighted_rms_m_s))));
+    el("td", {}, "all"), el("td", {}, summary.n_rows), el("td", {}, fixed(all.first_time, 3)),
+    el("td", {}, fixed(all.last_time, 3)), el("td", {}, fixed(all.median_uncertainty_m_s)),
+    el("td", {}, fixed(all.rms_m_s)), el("td", {}, fixed(all.weighted_rms_m_s))));
   box.append(el("table", { "data-testid": "summary-table" }, el("thead", {}, head), el("tbody", {}, ...rows)));
   if (summary.notices.length > 0) {
     box.append(el("ul", { class: "notices" }, ...summary.notices.map((n) => el("li", {}, n))));
@@ -160,18 +125,7 @@ function wireLoader() {
     if (file) readFile(file);
     ev.target.value = "";
   });
-  zone.addEventListener("keydown", (ev) => {
-    if (ev.key === "Enter" || ev.key === " ") { ev.preventDefault(); $("file-input").click(); }
-  });
-  for (const name of ["dragenter", "dragover"]) {
-    zone.addEventListener(name, (ev) => { ev.preventDefault(); zone.classList.add("dragging"); });
-  }
-  for (const name of ["dragleave", "drop"]) {
-    zone.addEventListener(name, () => zone.classList.remove("dragging"));
-  }
-  zone.addEventListener("drop", (ev) => {
-    ev.preventDefault();
-    const [file] = ev.dataTransfer.files;
+  wireDropZone(zone, $("file-input"), ([file]) => {
     if (file) readFile(file);
   });
 
@@ -279,16 +233,8 @@ function clearFit() {
   }
 }
 
-// A value with its formal error, the error to two significant digits and the value to match.
-function withError(estimate, fallbackDigits) {
-  if (!estimate || estimate.value === null || estimate.value === undefined) return "–";
-  const { value, error } = estimate;
-  if (error === null || error === undefined || !Number.isFinite(error) || error <= 0) {
-    return fmt(value, fallbackDigits);
-  }
-  const digits = Math.min(8, Math.max(0, 1 - Math.floor(Math.log10(error))));
-  return `${value.toFixed(digits)} ± ${error.toFixed(digits)}`;
-}
+// A fitted value with its formal error: the error to two significant digits, the value to match.
+const estimate = (e, fallbackDigits) => withError(e?.value, e?.error, { fallbackDigits });
 
 function adoptedSolution(report) {
   return report.adopted === "circular" && report.circular ? report.circular : report.eccentric;
@@ -302,8 +248,8 @@ function renderFitStatus(report) {
     `${solution.converged ? "Converged" : "Not converged: the best point found is shown"}. ` +
     `${report.n_reached_best} of ${report.n_starts_last_stage} starts reached the best χ² ` +
     `(${report.n_starts} starts in all). Adopted: ${report.adopted} solution. ` +
-    `χ² = ${fmt(report.goodness.chi_squared, 2)} for ${report.goodness.dof} degrees of freedom ` +
-    `(p = ${report.goodness.p_value === null ? "–" : report.goodness.p_value.toPrecision(3)}). ` +
+    `χ² = ${fixed(report.goodness.chi_squared, 2)} for ${report.goodness.dof} degrees of freedom ` +
+    `(p = ${significant(report.goodness.p_value, 3)}). ` +
     `Jitter: ${report.jitter.reason}.`;
   // The notes (excess scatter, marginal detections) come first.
   $("fit-warnings").replaceChildren(
@@ -319,32 +265,32 @@ function renderElements(report) {
   const row = (label, cells) => el("tr", {}, el("td", {}, label), ...cells.map((c) => el("td", {}, c)));
   const spanRow = (label, text) =>
     el("tr", {}, el("td", {}, label), el("td", { colspan: String(comps.length) }, text));
-  const ecc = (c) => (c.held_circular ? "0 (held circular)" : withError(c.eccentricity, 3));
-  const omega = (c) => (c.held_circular ? "–" : withError(c.omega_deg, 1));
+  const ecc = (c) => (c.held_circular ? "0 (held circular)" : estimate(c.eccentricity, 3));
+  const omega = (c) => (c.held_circular ? "–" : estimate(c.omega_deg, 1));
   const rows = [
-    row("P [d]", comps.map((c) => withError(c.period, 4))),
-    row("K [m/s]", comps.map((c) => withError(c.semi_amplitude, 2))),
+    row("P [d]", comps.map((c) => estimate(c.period, 4))),
+    row("K [m/s]", comps.map((c) => estimate(c.semi_amplitude, 2))),
     row("e", comps.map(ecc)),
     row("ω [°]", comps.map(omega)),
-    row("Tp [d]", comps.map((c) => withError(c.time_of_periastron, 2))),
+    row("Tp [d]", comps.map((c) => estimate(c.time_of_periastron, 2))),
   ];
   rows.push(el("tr", { class: "group" }, el("td", { colspan: String(comps.length + 1) }, "instruments")));
   for (const inst of solution.instruments) {
-    rows.push(spanRow(`γ ${inst.name} [m/s]`, withError(inst.offset, 2)));
+    rows.push(spanRow(`γ ${inst.name} [m/s]`, estimate(inst.offset, 2)));
     if (inst.jitter !== null && inst.jitter !== undefined) {
-      rows.push(spanRow(`jitter ${inst.name} [m/s]`, fmt(inst.jitter, 2)));
+      rows.push(spanRow(`jitter ${inst.name} [m/s]`, fixed(inst.jitter, 2)));
     }
   }
-  if (solution.trend) rows.push(spanRow("trend [m/s/d]", withError(solution.trend, 4)));
+  if (solution.trend) rows.push(spanRow("trend [m/s/d]", estimate(solution.trend, 4)));
   rows.push(el("tr", { class: "group" }, el("td", { colspan: String(comps.length + 1) }, "goodness of fit")));
-  rows.push(spanRow("χ²", `${fmt(solution.chi_squared, 2)} (${solution.dof} degrees of freedom)`));
-  rows.push(spanRow("reduced χ²", fmt(solution.reduced_chi_squared, 3)));
-  rows.push(spanRow("rms [m/s]", fmt(solution.rms, 2)));
+  rows.push(spanRow("χ²", `${fixed(solution.chi_squared, 2)} (${solution.dof} degrees of freedom)`));
+  rows.push(spanRow("reduced χ²", fixed(solution.reduced_chi_squared, 3)));
+  rows.push(spanRow("rms [m/s]", fixed(solution.rms, 2)));
   const head = el("tr", {}, el("th", {}, ""), ...names.map((n) => el("th", {}, n)));
   $("fit-elements").replaceChildren(el("thead", {}, head), el("tbody", {}, ...rows));
   $("fit-solution-note").textContent =
     `${report.adopted === "circular" ? "Circular refit" : "Eccentric solution (minimum χ²)"}; ` +
-    `± are formal 1σ errors from the covariance. Reference epoch ${fmt(report.reference_time, 3)}.`;
+    `± are formal 1σ errors from the covariance. Reference epoch ${fixed(report.reference_time, 3)}.`;
 
   const tests = report.eccentric.companions
     .map((c, idx) => ({ c, idx }))
@@ -354,7 +300,7 @@ function renderElements(report) {
       const decision = ls.significant
         ? "eccentricity significant"
         : "not significant: kept circular";
-      return `companion ${idx + 1}: ê = ${fmt(ls.eccentricity, 3)}, σe = ${fmt(ls.eccentricity_error, 3)}, ` +
+      return `companion ${idx + 1}: ê = ${fixed(ls.eccentricity, 3)}, σe = ${fixed(ls.eccentricity_error, 3)}, ` +
         `p = ${Number(ls.probability).toExponential(2)} (threshold ${ls.threshold}) → ${decision}`;
     });
   $("lucy-sweeney").textContent =
@@ -373,7 +319,7 @@ function renderFit(report) {
   const n = adoptedSolution(report).companions.length;
   const select = $("fold-companion");
   select.replaceChildren(...Array.from({ length: n }, (_, c) =>
-    el("option", { value: String(c) }, `${c + 1}: P = ${fmt(adoptedSolution(report).companions[c].period.value, 2)} d`)));
+    el("option", { value: String(c) }, `${c + 1}: P = ${fixed(adoptedSolution(report).companions[c].period.value, 2)} d`)));
   $("companion-choice").hidden = n < 2;
   renderFitStatus(report);
   renderElements(report);
@@ -389,7 +335,7 @@ async function runFit(form) {
     button.disabled = true;
     button.textContent = "Fitting…";
     // Let the page show the busy button before the (synchronous) fit starts.
-    await new Promise((resolve) => setTimeout(resolve, 0));
+    await tick();
     const report = state.dataset.fit(settings);
     state.fit = report;
     hideError($("fit-error"));
@@ -459,8 +405,8 @@ async function main() {
   wireExports();
   state.audit = wireAudit({ currentTable: () => state.table, el, currentModel: currentModelSpec });
   const population = wirePopulation();
-  wireSurvey({ settingsFor: state.audit.settingsFor, el, population });
-  initPriorsView({ currentTable: () => state.source, currentModel: currentModelSpec });
+  wireSurvey({ settingsFor: state.audit.settingsFor, population });
+  initPriorsView({ currentTable: () => state.table, currentModel: currentModelSpec });
   if (demos.length > 0) {
     select.value = "0";
     await loadTable(demos[0].text, demos[0].file_name);

@@ -6,48 +6,14 @@
 // trial indices from a shared queue until none is left; the main thread's AuditRun summarises
 // the rows and draws. Results depend only on the settings and the table, never on the split.
 import { AuditRun, auditSettingsFor, defaultAuditSettings } from "./pkg/eccaudit_web.js";
-import { addFigureExports, addTableExports } from "./exports.js";
-
-const $ = (id) => document.getElementById(id);
-const messageOf = (err) => (err instanceof Error ? err.message : String(err));
-const tick = () => new Promise((resolve) => setTimeout(resolve, 0));
+import { addFigureExports, addTableExports, downloadText as download, stem } from "./exports.js";
+import { $, messageOf, tick } from "./dom.js";
+import { clockText, fixed, gridValue, rate } from "./format.js";
 
 /** Trials per chunk: a few, so progress moves smoothly and idle workers find work. Extra
  * (adaptive) batches are mostly quick least-squares trials, sent in larger chunks. */
 function chunkSize(nTrials, nWorkers, extra) {
   return Math.max(1, Math.min(extra ? 64 : 4, Math.ceil(nTrials / (nWorkers * (extra ? 8 : 16)))));
-}
-
-/** A grid value as typed (0.15, not 0.15000000000000002): twelve significant digits, as the
- * core's format::grid_value (kept here until the page has a shared format module). */
-const gridValue = (v) => (Number.isFinite(v) ? String(Number(v.toPrecision(12))) : "–");
-
-function clockText(seconds) {
-  if (!Number.isFinite(seconds)) return "–";
-  const s = Math.max(0, Math.round(seconds));
-  const m = Math.floor(s / 60);
-  return m >= 60 ? `${Math.floor(m / 60)} h ${String(m % 60).padStart(2, "0")} min` : `${m}:${String(s % 60).padStart(2, "0")}`;
-}
-
-const fixed = (v, digits) => (v === null || v === undefined || !Number.isFinite(v) ? "–" : v.toFixed(digits));
-const rate = (r) => (r ? `${(100 * r.value).toFixed(1)}% ± ${(100 * r.standard_error).toFixed(1)}` : "–");
-
-/** The stem of a file name ("corvin4-eccentric.tsv" → "corvin4-eccentric"). */
-function stem(name) {
-  const base = name.split(/[\\/]/).pop() || "table";
-  const dot = base.lastIndexOf(".");
-  return dot > 0 ? base.slice(0, dot) : base;
-}
-
-function download(text, fileName, type) {
-  const url = URL.createObjectURL(new Blob([text], { type }));
-  const link = document.createElement("a");
-  link.href = url;
-  link.download = fileName;
-  document.body.append(link);
-  link.click();
-  link.remove();
-  setTimeout(() => URL.revokeObjectURL(url), 10_000);
 }
 
 async function copyText(text) {
@@ -213,7 +179,7 @@ export function wireAudit({ currentTable, el, currentModel }) {
     menu.dataset.forRun = String(report.injection.fingerprint);
     const index = names.indexOf(menu.value);
     const head = el("tr", {}, ...["true e", "trials", "bias", "scatter", "RMSE",
-      "68% coverage", "95% coverage", "false-eccentric rate", "failed"].map((h) => el("th", {}, h)));
+      "68% coverage", "95% coverage", "false-eccentric rate", "failed", "not converged"].map((h) => el("th", {}, h)));
     const rows = report.injection.cells.map((cell) => {
       const o = cell.outputs[index];
       return el("tr", {},
@@ -225,7 +191,8 @@ export function wireAudit({ currentTable, el, currentModel }) {
         el("td", {}, rate(o.coverage68)),
         el("td", {}, rate(o.coverage95)),
         el("td", {}, cell.cell.eccentricity === 0 ? rate(o.false_eccentric_rate) : "–"),
-        el("td", {}, o.n_failed > 0 ? rate(o.failed_share) : "0"));
+        el("td", {}, o.n_failed > 0 ? rate(o.failed_share) : "0"),
+        el("td", {}, o.unconverged_share == null ? "–" : o.n_unconverged > 0 ? rate(o.unconverged_share) : "0"));
     });
     $("audit-summary").replaceChildren(el("thead", {}, head), el("tbody", {}, ...rows));
   }

@@ -8,8 +8,8 @@
 import { drawPopulationBeta, drawPopulationBetaSvg, drawPopulationDensity, drawPopulationDensitySvg,
   populationFigureSize } from "./pkg/eccaudit_web.js";
 import { addFigureExports, downloadText } from "./exports.js";
+import { $, showError as showBox } from "./dom.js";
 
-const $ = (id) => document.getElementById(id);
 /** Most files the page takes (the wasm side checks the same bound). */
 const MAX_FILES = 5000;
 const SAMPLES_FILE = /\.ecsv$/i;
@@ -42,10 +42,7 @@ export function wirePopulation() {
   let result = null;
   const setState = (s) => { document.body.dataset.populationState = s; };
   setState("idle");
-  const showError = (message) => {
-    $("population-error").textContent = message;
-    $("population-error").hidden = !message;
-  };
+  const showError = (message) => showBox("population-error", message);
   const setRunning = (running) => {
     $("population-run").disabled = running || files.length === 0;
     $("population-cancel").disabled = !running;

@@ -4,25 +4,11 @@
 // `eccaudit priors --json`, which is kept in window.eccauditPriorsReport for inspection.
 import { PriorSet, defaultPriorSpecs } from "./pkg/eccaudit_web.js";
 import { addFigureExports, addTableExports, stem } from "./exports.js";
-
-const $ = (id) => document.getElementById(id);
-
-function el(tag, attrs = {}, ...children) {
-  const node = document.createElement(tag);
-  for (const [key, value] of Object.entries(attrs)) {
-    if (key === "class") node.className = value;
-    else node.setAttribute(key, value);
-  }
-  for (const child of children) {
-    node.append(child instanceof Node ? child : document.createTextNode(String(child)));
-  }
-  return node;
-}
-
-const messageOf = (err) => (err instanceof Error ? err.message : String(err));
+import { $, el, hideError as hideBox, messageOf, showError as showBox } from "./dom.js";
+import { duration, fixed as fixedTo, withError as withErrorTo } from "./format.js";
 
 const view = {
-  currentTable: () => null, // { text, sourceName, velocityUnit, timeConvention } of the loaded table
+  currentTable: () => null, // { text, name, velocityUnit, timeConvention } of the loaded table
   currentModel: () => ({}), // the model of the fit form (the core's ModelSpec)
   running: null,            // { workers, cancelled } while a set runs
   shown: null,              // the PriorSet whose results are on the page
@@ -35,17 +21,8 @@ function finishAttempt(outcome) {
   document.body.dataset.priorsAttempts = String(++attempts);
 }
 
-function showError(message) {
-  const box = $("priors-error");
-  box.textContent = message;
-  box.hidden = false;
-}
-
-function hideError() {
-  const box = $("priors-error");
-  box.hidden = true;
-  box.textContent = "";
-}
+const showError = (message) => showBox("priors-error", message);
+const hideError = () => hideBox("priors-error");
 
 // The non-empty lines of the prior list, each with its line number in the text area.
 function priorLines() {
@@ -73,12 +50,6 @@ function readRequest(form, lines) {
     seed: readInteger(form, "seed", "seed"),
     model: view.currentModel(),
   };
-}
-
-function formatDuration(seconds) {
-  if (!Number.isFinite(seconds)) return "…";
-  if (seconds < 60) return `${Math.ceil(seconds)} s`;
-  return `${Math.floor(seconds / 60)} min ${Math.round(seconds % 60)} s`;
 }
 
 function setRunning(running) {
@@ -132,7 +103,7 @@ function runSet(form) {
     const finished = done.filter((d) => d >= stepsPerRun).length;
     const live = detail.filter((d) => d).join("; ");
     eta.textContent = `${finished} of ${nPriors} priors done · ${Math.floor((100 * sum) / total)} % ` +
-      `of the budget · at most ${formatDuration(remaining)} left` + (live ? ` · ${live}` : "");
+      `of the budget · at most ${duration(remaining)} left` + (live ? ` · ${live}` : "");
   };
   updateProgress();
 
@@ -202,10 +173,10 @@ function runSet(form) {
   };
 }
 
-const fixed = (value, digits = 3) =>
-  (value === null || value === undefined || !Number.isFinite(value) ? "–" : value.toFixed(digits));
+// Posterior summaries are shown to three decimals.
+const fixed = (value, digits = 3) => fixedTo(value, digits);
 const interval = ([lo, hi]) => `[${fixed(lo)}, ${fixed(hi)}]`;
-const withError = (value, error) => `${fixed(value)} ± ${fixed(error)}`;
+const withError = (value, error) => withErrorTo(value, error, { digits: 3 });
 
 function bayesFactorText(bf) {
   if (bf.status === "estimated") return withError(bf.bf01, bf.bf01_error);
@@ -321,7 +292,7 @@ function wireExports() {
     return view.shown;
   };
   const chosen = () => Number($("priors-choice").value);
-  const named = (what) => () => `${stem(view.currentTable()?.sourceName)}-${what}`;
+  const named = (what) => () => `${stem(view.currentTable()?.name)}-${what}`;
   addFigureExports($("priors-canvas"), { fileStem: named("posteriors"), svg: (w, h) => set().drawPosteriorsSvg(w, h) });
   addFigureExports($("priors-corner"), {
     fileStem: () => named("corner")() + `-prior-${chosen() + 1}`, svg: (w, h) => set().drawCornerSvg(w, h, chosen()),

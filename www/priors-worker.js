@@ -1,5 +1,5 @@
 // eccaudit prior-set worker: runs ONE prior of a sensitivity set off the main thread.
-// Message in: { requestJson, priorIndex, table: { text, sourceName, velocityUnit, timeConvention } }.
+// Message in: { requestJson, priorIndex, table: { text, name, velocityUnit, timeConvention } }.
 // Messages out: { type: "progress", done, total, steps, tauTimes } (done/total: log-density
 // evaluations against the run's budget; a run that converges stops before it), then { type: "result", part } or
 // { type: "error", message }. The page cancels by terminating the worker.
@@ -12,7 +12,7 @@ self.addEventListener("message", async (event) => {
   let dataset = null;
   try {
     await ready;
-    dataset = Dataset.parse(table.text, table.sourceName, table.velocityUnit, table.timeConvention);
+    dataset = Dataset.parse(table.text, table.name, table.velocityUnit, table.timeConvention);
     const part = dataset.runPriorOfSet(requestJson, priorIndex, (done, total, steps, tauTimes) => {
       self.postMessage({ type: "progress", done, total, steps, tauTimes });
     });

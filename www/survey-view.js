@@ -9,11 +9,9 @@
 import { AuditRun, catalogueCsv, catalogueJson, surveyErrorRows, surveyFolder } from "./pkg/eccaudit_web.js";
 import { downloadText } from "./exports.js";
 import { surveyDraws } from "./population-view.js";
+import { $, el, messageOf, showError as showBox, tick, wireDropZone } from "./dom.js";
+import { fixed, significant, withError } from "./format.js";
 
-const $ = (id) => document.getElementById(id);
-const messageOf = (err) => (err instanceof Error ? err.message : String(err));
-const tick = () => new Promise((resolve) => setTimeout(resolve, 0));
-const fixed = (v, digits) => (v === null || v === undefined || !Number.isFinite(v) ? "–" : v.toFixed(digits));
 /** Most tables one survey takes in the page (a bound on what a dropped folder allocates). */
 const MAX_TABLES = 2000;
 /** Files that look like velocity tables. */
@@ -22,19 +20,16 @@ const TABLE_FILE = /\.(csv|tsv|txt|dat|rdb)$/i;
 /**
  * Wire the "Survey" section. `settingsFor(table)` returns the audit settings (JSON) of the
  * page's injection–recovery form completed for `table` ({text, name, velocityUnit,
- * timeConvention}); `el` builds DOM nodes from text.
+ * timeConvention}).
  */
-export function wireSurvey({ settingsFor, el, population = null }) {
+export function wireSurvey({ settingsFor, population = null }) {
   let tables = [];   // [{name, text}], sorted by name
   let job = null;    // the survey in progress
   let rows = null;   // catalogue rows of the last finished survey
   const setState = (s) => { document.body.dataset.surveyState = s; };
   setState("idle");
 
-  function showError(message) {
-    $("survey-error").textContent = message;
-    $("survey-error").hidden = !message;
-  }
+  const showError = (message) => showBox("survey-error", message);
 
   async function choose(fileList) {
     showError("");
@@ -72,12 +67,12 @@ export function wireSurvey({ settingsFor, el, population = null }) {
       const set = r.e_low95 === null ? (r.e_open_above ? "above the grid" : "–")
         : `${fixed(r.e_low95, 2)}–${fixed(r.e_high95, 2)}${r.e_open_above ? "+" : ""}`;
       const circular = r.circular_excluded === null ? "–"
-        : `${r.circular_excluded ? "yes" : "no"} (${r.circular_p === null ? "–" : r.circular_p.toPrecision(2)})`;
+        : `${r.circular_excluded ? "yes" : "no"} (${significant(r.circular_p, 2)})`;
       return el("tr", { "data-status": r.status },
         el("td", {}, r.table), el("td", {}, r.status), el("td", {}, fixed(r.period, 4)),
         el("td", {}, fixed(r.semi_amplitude, 2)), el("td", {}, fixed(r.lsq_e, 3)), el("td", {}, r.estimator ?? "–"),
         el("td", {}, fixed(r.e, 3)),
-        el("td", {}, r.bias === null ? "–" : `${fixed(r.bias, 3)} ± ${fixed(r.bias_error, 3)}`),
+        el("td", {}, r.bias === null ? "–" : withError(r.bias, r.bias_error, { digits: 3 })),
         el("td", {}, set), el("td", {}, circular),
         el("td", {}, r.error ?? r.flags.join(", ")));
     });
@@ -247,20 +242,7 @@ export function wireSurvey({ settingsFor, el, population = null }) {
     setRunning(false);
   }
 
-  const zone = $("survey-drop");
-  for (const name of ["dragenter", "dragover"]) {
-    zone.addEventListener(name, (ev) => { ev.preventDefault(); zone.classList.add("dragging"); });
-  }
-  for (const name of ["dragleave", "drop"]) {
-    zone.addEventListener(name, () => zone.classList.remove("dragging"));
-  }
-  zone.addEventListener("drop", (ev) => {
-    ev.preventDefault();
-    choose(ev.dataTransfer.files);
-  });
-  zone.addEventListener("keydown", (ev) => {
-    if (ev.key === "Enter" || ev.key === " ") { ev.preventDefault(); $("survey-files").click(); }
-  });
+  wireDropZone($("survey-drop"), $("survey-files"), (files) => choose(files));
   for (const id of ["survey-files", "survey-folder"]) {
     $(id).addEventListener("change", async (ev) => {
       await choose(ev.target.files);

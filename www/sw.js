@@ -12,6 +12,8 @@ const APP_SHELL = [
   "./priors-worker.js",
   "./priors-view.js",
   "./exports.js",
+  "./dom.js",
+  "./format.js",
   "./audit-worker.js",
   "./survey-view.js",
   "./population-view.js",

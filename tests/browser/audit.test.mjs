@@ -1,36 +1,16 @@
 // The whole audit in the page: injection–recovery in Web Workers, the statement, the downloads;
 // the page's numbers equal `eccaudit audit --settings` on the downloaded replay file; Cancel
 // stops the workers and keeps nothing; the page starts offline once loaded (service worker).
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
-import { existsSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
-import { tmpdir } from "node:os";
+import { existsSync, readFileSync, writeFileSync } from "node:fs";
 import path from "node:path";
-import { fileURLToPath } from "node:url";
-import { openApp, ARTIFACTS } from "./harness.mjs";
+import { pageForThisFile, tempDirForThisFile, ROOT, CLI, ARTIFACTS } from "./harness.mjs";
 
-const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
-const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
-const CLI = path.join(TARGET, "release", "eccaudit");
-const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-audit-test-"));
+const TMP = tempDirForThisFile("audit-test");
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-});
-after(async () => {
-  await app?.close();
-  rmSync(TMP, { recursive: true, force: true });
-});
-
-async function selectDemo(index) {
-  const { page } = app;
-  const attempts = await page.evaluate(() => Number(document.body.dataset.loadAttempts ?? 0));
-  await page.selectOption("#demo-select", String(index));
-  await page.waitForFunction((n) => Number(document.body.dataset.loadAttempts) > n, attempts);
-}
+const app = pageForThisFile();
 
 async function setGrid({ e, trials, seed }) {
   const { page } = app;
@@ -46,17 +26,11 @@ async function runToEnd() {
   assert.equal(await page.isHidden("#audit-error"), true, await page.textContent("#audit-error"));
 }
 
-async function saveDownload(buttonId, name) {
-  const { page } = app;
-  const [download] = await Promise.all([page.waitForEvent("download"), page.click(buttonId)]);
-  const file = path.join(TMP, name);
-  await download.saveAs(file);
-  return { file, suggested: download.suggestedFilename() };
-}
+const saveDownload = (buttonId, name) => app.saveDownload(buttonId, path.join(TMP, name));
 
 test("a small audit of Corvin 4 in the page gives exactly the command line's report", async () => {
   const { page } = app;
-  await selectDemo(1);
+  await app.selectDemo(1);
   await setGrid({ e: "0, 0.3", trials: 4, seed: 5 });
   // The form shows the default posterior sampler; a shorter one set here must reach the replay
   // file and the command line.

@@ -1,19 +1,12 @@
 // Exports: every figure as PNG and SVG, every table as CSV and JSON (www/exports.js), and a
 // 100,000-row table loaded through the file input without freezing the page.
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { readFileSync } from "node:fs";
 import path from "node:path";
-import { openApp, DEMO_DIR } from "./harness.mjs";
+import { pageForThisFile, DEMO_DIR } from "./harness.mjs";
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-});
-after(async () => {
-  await app?.close();
-});
+const app = pageForThisFile();
 
 /** Click `selector` and return the downloaded file's suggested name and bytes. */
 async function download(selector) {

@@ -1,30 +1,16 @@
 // The least-squares fit on the page: demo table → Fit → status, elements, periodogram and phase
 // fold; a table too short to fit gives a clear error and leaves the page usable.
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp } from "./harness.mjs";
+import { pageForThisFile } from "./harness.mjs";
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-});
-after(async () => {
-  await app?.close();
-});
+const app = pageForThisFile();
 
 async function pressFit() {
   const { page } = app;
   const attempts = await page.evaluate(() => Number(document.body.dataset.fitAttempts ?? 0));
   await page.click("#fit-button");
   await page.waitForFunction((n) => Number(document.body.dataset.fitAttempts) > n, attempts, { timeout: 60_000 });
-}
-
-async function dropText(text, name) {
-  const { page } = app;
-  const attempts = await page.evaluate(() => Number(document.body.dataset.loadAttempts ?? 0));
-  await page.setInputFiles("#file-input", { name, mimeType: "text/plain", buffer: Buffer.from(text) });
-  await page.waitForFunction((n) => Number(document.body.dataset.loadAttempts) > n, attempts);
 }
 
 /** The elements table as { label: [cells] }. */
@@ -73,7 +59,7 @@ test("a three-row table gives a clear error, keeps the previous fit, and the pag
   const { page } = app;
   const pBefore = (await elementsTable())["P [d]"][0];
   // Loading a new table clears the fit from the page.
-  await dropText("bjd,rv [m/s],err [m/s]\n2459000.1,1.0,1.0\n2459001.2,3.0,1.0\n2459003.3,-2.0,1.0\n", "three.csv");
+  await app.dropText("bjd,rv [m/s],err [m/s]\n2459000.1,1.0,1.0\n2459001.2,3.0,1.0\n2459003.3,-2.0,1.0\n", "three.csv");
   assert.equal(await page.isHidden("#fit-results"), true, "a new table clears the fit");
   await pressFit();
   const message = await page.textContent("#fit-error");
@@ -116,7 +102,7 @@ function twoCompanionTable() {
 
 test("two companions: both periods found, circular adopted, a selector redraws the fold", async () => {
   const { page } = app;
-  await dropText(twoCompanionTable(), "two-companions.csv");
+  await app.dropText(twoCompanionTable(), "two-companions.csv");
   await page.selectOption("select[name=companions]", "2");
   await pressFit();
   assert.equal(await page.isHidden("#fit-error"), true, await page.textContent("#fit-error"));

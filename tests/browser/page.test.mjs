@@ -1,27 +1,11 @@
 // The page in headless Chromium: demo table on open, summary, plot, bad tables, hostile names, no foreign requests.
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { readFile } from "node:fs/promises";
 import path from "node:path";
-import { openApp, DEMO_DIR } from "./harness.mjs";
+import { pageForThisFile, DEMO_DIR } from "./harness.mjs";
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-});
-after(async () => {
-  await app?.close();
-});
-
-async function dropText(text, name) {
-  // The file input is the page's own loading path for a chosen file; reading
-  // it is asynchronous, so wait until the page has finished this attempt.
-  const { page } = app;
-  const attempts = await page.evaluate(() => Number(document.body.dataset.loadAttempts ?? 0));
-  await page.setInputFiles("#file-input", { name, mimeType: "text/plain", buffer: Buffer.from(text) });
-  await page.waitForFunction((n) => Number(document.body.dataset.loadAttempts) > n, attempts);
-}
+const app = pageForThisFile();
 
 test("opens with the first demo table: summary text and a painted plot", async () => {
   const facts = await app.page.textContent("[data-testid='summary-facts']");
@@ -69,11 +53,11 @@ test("a model curve can be drawn over the data and a bad one is refused", async 
 
 test("a malformed table shows file, line and column, and keeps the loaded data", async () => {
   const good = await readFile(path.join(DEMO_DIR, "velka17-nearly-circular.csv"), "utf8");
-  await dropText(good, "velka17.csv");
+  await app.dropText(good, "velka17.csv");
   const lines = good.split("\n");
   const firstData = lines.findIndex((l) => /^\d/.test(l));
   lines[firstData + 2] = lines[firstData + 2].replace(/,([-\d.]+),/, ",12.x,");
-  await dropText(lines.join("\n"), "broken.csv");
+  await app.dropText(lines.join("\n"), "broken.csv");
   const message = await app.page.textContent("#load-error");
   assert.match(message, new RegExp(`broken\\.csv:${firstData + 3}:2: `));
   assert.match(message, /12\.x/);
@@ -86,7 +70,7 @@ test("an instrument name with markup is shown as text and runs nothing", async (
   const hostile = "<img src=x onerror=alert(1)>";
   const text = `bjd,rv [m/s],err [m/s],instrument\n2459000.1,1.0,1.0,"${hostile}"\n` +
     `2459001.2,3.0,1.0,"${hostile}"\n2459002.3,-2.0,1.0,"${hostile}"\n`;
-  await dropText(text, "hostile.csv");
+  await app.dropText(text, "hostile.csv");
   const table = await app.page.textContent("[data-testid='summary-table']");
   assert.ok(table.includes(hostile), "the name appears literally");
   assert.equal(await app.page.$$eval("#summary img", (imgs) => imgs.length), 0, "no element was created");

@@ -5,12 +5,8 @@ import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
 import { existsSync, readFileSync } from "node:fs";
 import path from "node:path";
-import { fileURLToPath } from "node:url";
 import { initSync, Dataset, KeplerBench } from "../../www/pkg/eccaudit_web.js";
-
-const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
-const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
-const CLI = path.join(TARGET, "release", "eccaudit");
+import { ROOT, CLI } from "./harness.mjs";
 
 initSync({ module: readFileSync(path.join(ROOT, "www", "pkg", "eccaudit_web_bg.wasm")) });
 

@@ -4,30 +4,16 @@
 // --out` writes for the same files in the same order and seed (same bits natively and in wasm).
 // And the survey view feeds it: a page survey with "Save posterior draws" gives the population
 // `eccaudit survey --save-samples` + `eccaudit population` give.
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
-import { mkdtempSync, readFileSync, readdirSync, rmSync, writeFileSync } from "node:fs";
-import { tmpdir } from "node:os";
+import { readFileSync, readdirSync, writeFileSync } from "node:fs";
 import path from "node:path";
-import { fileURLToPath } from "node:url";
-import { openApp, DEMO_DIR } from "./harness.mjs";
+import { pageForThisFile, tempDirForThisFile, CLI, MAKE_TABLES, DEMO_DIR } from "./harness.mjs";
 
-const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
-const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
-const CLI = path.join(TARGET, "release", "eccaudit");
-const MAKE_TABLES = path.join(TARGET, "release", "examples", "make_survey_tables");
-const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-population-test-"));
+const TMP = tempDirForThisFile("population-test");
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-});
-after(async () => {
-  await app?.close();
-  rmSync(TMP, { recursive: true, force: true });
-});
+const app = pageForThisFile();
 
 test("saved draws give the command line's population in the page", async () => {
   const { page } = app;
@@ -56,12 +42,7 @@ test("saved draws give the command line's population in the page", async () => {
   assert.ok(await app.paintedPixels("#population-density") > 1000);
   assert.ok(await app.paintedPixels("#population-beta") > 1000);
 
-  const save = async (button, name) => {
-    const [download] = await Promise.all([page.waitForEvent("download"), page.click(button)]);
-    const file = path.join(TMP, name);
-    await download.saveAs(file);
-    return readFileSync(file, "utf8");
-  };
+  const save = async (button, name) => readFileSync((await app.saveDownload(button, path.join(TMP, name))).file, "utf8");
   const csv = await save("#population-download-csv", "page-population.csv");
   const json = await save("#population-download-json", "page-population.json");
   const svg = await save("[data-testid='export-svg-population-beta']", "page-beta.svg");

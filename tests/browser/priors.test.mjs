@@ -1,32 +1,21 @@
 // The "Eccentricity priors" section in headless Chromium: a short prior set sampled in workers on
 // the demo table Corvin 4, its table and figures, a bad spec named by line, cancellation, and
 // the report equal to `eccaudit priors --json` with the same settings (same inputs, same bits).
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
 import { existsSync } from "node:fs";
 import path from "node:path";
-import { fileURLToPath } from "node:url";
-import { openApp } from "./harness.mjs";
-
-const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
-const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
-const CLI = path.join(TARGET, "release", "eccaudit");
+import { pageForThisFile, ROOT, CLI } from "./harness.mjs";
 
 // A short set: two priors, 16 walkers × (100 burn-in + 300 steps), seed 3.
 const PRIORS = ["uniform:0..0.8", "rayleigh(0.3)"];
 const SAMPLER = { walkers: "16", steps: "300", burn: "100", seed: "3" };
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-  await app.page.selectOption("#demo-select", "1");
-  await app.page.waitForFunction(() =>
+const app = pageForThisFile(async ({ page }) => {
+  await page.selectOption("#demo-select", "1");
+  await page.waitForFunction(() =>
     document.querySelector("[data-testid='summary-facts']")?.textContent.includes("corvin4-eccentric.tsv"));
-});
-after(async () => {
-  await app?.close();
 });
 
 async function attempts() {

@@ -2,30 +2,16 @@
 // in the workers; the catalogue lists every table (the bad one with file, line and column), and
 // its CSV and JSON downloads are byte for byte the catalogue `eccaudit survey` writes for a
 // manifest listing the same files in the same order with the same settings.
-import { test, before, after } from "node:test";
+import { test } from "node:test";
 import assert from "node:assert/strict";
 import { execFileSync } from "node:child_process";
-import { mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
-import { tmpdir } from "node:os";
+import { readFileSync, writeFileSync } from "node:fs";
 import path from "node:path";
-import { fileURLToPath } from "node:url";
-import { openApp } from "./harness.mjs";
+import { pageForThisFile, tempDirForThisFile, CLI, MAKE_TABLES } from "./harness.mjs";
 
-const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..", "..");
-const TARGET = process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target");
-const CLI = path.join(TARGET, "release", "eccaudit");
-const MAKE_TABLES = path.join(TARGET, "release", "examples", "make_survey_tables");
-const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-survey-test-"));
+const TMP = tempDirForThisFile("survey-test");
 
-let app;
-before(async () => {
-  app = await openApp();
-  await app.load();
-});
-after(async () => {
-  await app?.close();
-  rmSync(TMP, { recursive: true, force: true });
-});
+const app = pageForThisFile();
 
 test("a survey of four tables in the page gives the command line's catalogue", async () => {
   const { page } = app;
@@ -62,12 +48,7 @@ test("a survey of four tables in the page gives the command line's catalogue", a
   assert.equal(rows[0][1], "bad.csv");
   assert.match(rows[0][2], /bad\.csv:4:2:/);
 
-  const save = async (button, name) => {
-    const [download] = await Promise.all([page.waitForEvent("download"), page.click(button)]);
-    const file = path.join(TMP, name);
-    await download.saveAs(file);
-    return readFileSync(file, "utf8");
-  };
+  const save = async (button, name) => readFileSync((await app.saveDownload(button, path.join(TMP, name))).file, "utf8");
   const csv = await save("#survey-download-csv", "page-catalogue.csv");
   const json = await save("#survey-download-json", "page-catalogue.json");
 

@@ -1,13 +1,7 @@
 //! `eccaudit audit --settings`: a settings file replays an audit exactly, and refuses other data.
 
-use assert_cmd::Command;
+use crate::support::{eccaudit, DEMO};
 use predicates::prelude::*;
-
-const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built")
-}
 
 #[test]
 fn written_settings_replay_to_identical_results() {

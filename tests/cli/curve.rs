@@ -1,13 +1,9 @@
 //! `eccaudit curve` end to end: CSV output and one-line errors.
 
+use crate::support::eccaudit;
 use std::f64::consts::PI;
 
-use assert_cmd::Command;
 use predicates::prelude::*;
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").unwrap()
-}
 
 fn parse_csv(text: &str) -> (String, Vec<(f64, f64)>) {
     let mut lines = text.lines();

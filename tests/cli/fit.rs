@@ -1,21 +1,8 @@
 //! `eccaudit fit FILE`: text table and JSON on the demo tables, and one-line errors for the bad
 //! cases (too few points, no significant period, degenerate sampling, bad options).
 
-use assert_cmd::Command;
+use crate::support::{eccaudit, temp_table, DEMO};
 use predicates::prelude::*;
-use std::io::Write;
-
-const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
-
-fn temp_table(text: &str) -> tempfile::NamedTempFile {
-    let mut file = tempfile::Builder::new().suffix(".csv").tempfile().unwrap();
-    file.write_all(text.as_bytes()).unwrap();
-    file
-}
 
 #[test]
 fn eccentric_demo_as_text() {

@@ -1,14 +1,7 @@
 //! `eccaudit fit FILE --plots DIR`: the SVG figures exist and hold what they should (curves,
 //! false-alarm levels, one phase fold per companion with every epoch drawn twice).
 
-use assert_cmd::Command;
-
-const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
-
+use crate::support::{eccaudit, DEMO};
 /// The text lines of the `<text>` elements plotters writes (the content sits on its own line).
 fn texts(svg: &str) -> Vec<String> {
     let lines: Vec<&str> = svg.lines().collect();

@@ -1,15 +1,9 @@
 //! `eccaudit inject` and `eccaudit audit`: identical results whatever the thread count, an
 //! interrupted run resumed to the same result, settings checked on resume, and the outputs.
 
-use assert_cmd::Command;
+use crate::support::{eccaudit, DEMO};
 use predicates::prelude::*;
 use std::path::Path;
-
-const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
 
 /// A small schedule run: 2 eccentricities × 6 trials.
 fn inject_args(out: &Path) -> Vec<String> {

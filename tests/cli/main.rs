@@ -7,6 +7,9 @@
 #[allow(dead_code)]
 mod survey_tables;
 
+/// What the test modules share: the command under test, temporary tables, simulated tables.
+mod support;
+
 mod audit_settings;
 mod curve;
 mod errors;

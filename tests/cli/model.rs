@@ -2,21 +2,10 @@
 //! refused; excess scatter is reported first and, with `--jitter auto`, fitted and simulated;
 //! several companions are audited one by one.
 
-use assert_cmd::Command;
+use crate::support::{eccaudit, temp_table, two_companion_table};
 use eccaudit_core::orbit::OrbitalElements;
 use eccaudit_core::random::{normal, stream_rng};
 use rand::RngExt;
-use std::io::Write;
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
-
-fn temp_table(text: &str) -> tempfile::NamedTempFile {
-    let mut file = tempfile::Builder::new().suffix(".csv").tempfile().unwrap();
-    file.write_all(text.as_bytes()).unwrap();
-    file
-}
 
 /// A circular orbit (P = 7.3 d, semi-amplitude `k`) at `n` irregular epochs over 200 d, one
 /// instrument with stated σ = 2 m/s and Gaussian noise √(2² + `jitter`²), seeded.
@@ -231,33 +220,9 @@ fn excess_scatter_is_never_silent() {
         .starts_with("uncertainties look underestimated (chi2 p = "));
 }
 
-/// Two companions (P = 9.7 d, K = 25 m/s; P = 61 d, K = 12 m/s), a trend of 0.05 m/s/d and
-/// two instruments, 60 epochs over 300 d, seeded.
-fn two_companion_table() -> tempfile::NamedTempFile {
-    let b = OrbitalElements::new(9.7, 25.0, 0.1, 0.8, 2_460_002.0).unwrap();
-    let c = OrbitalElements::new(61.0, 12.0, 0.3, 2.5, 2_460_030.0).unwrap();
-    let mut rng = stream_rng(5, 0);
-    let mut text = String::from("bjd,rv [m/s],err [m/s],instrument\n");
-    for i in 0..60 {
-        let t = 2_460_000.0 + 300.0 * (i as f64 + 0.7 * rng.random::<f64>()) / 60.0;
-        let (name, offset, sigma) = if i % 3 == 0 {
-            ("Wren", 35.0, 2.5)
-        } else {
-            ("Heron", -20.0, 1.5)
-        };
-        let v = b.radial_velocity(t)
-            + c.radial_velocity(t)
-            + 0.05 * (t - 2_460_150.0)
-            + offset
-            + normal(&mut rng, 0.0, sigma);
-        text.push_str(&format!("{t},{v},{sigma},{name}\n"));
-    }
-    temp_table(&text)
-}
-
 #[test]
 fn two_companions_are_audited_one_by_one() {
-    let table = two_companion_table();
+    let table = two_companion_table(5);
     let path = table.path().to_str().unwrap();
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("two");

@@ -1,15 +1,9 @@
 //! `eccaudit priors --save-samples`, `eccaudit survey --save-samples` and `eccaudit population`: draws saved in the samples format and read back from folders, the text summary, JSON, CSV and SVG outputs, unconverged runs excluded and listed, and one located line for a bad samples file.
 
-use assert_cmd::Command;
+use crate::support::{eccaudit, DEMO};
 use predicates::prelude::*;
 
 use crate::survey_tables;
-
-const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
 
 /// Saved files under `dir` whose run met the convergence rule.
 fn converged_files(dir: &std::path::Path) -> Vec<std::path::PathBuf> {

@@ -1,14 +1,8 @@
 //! `eccaudit priors FILE`: JSON that parses with one run per prior, the text table, SVG figures,
 //! and one readable line for a bad prior spec.
 
-use assert_cmd::Command;
+use crate::support::{eccaudit, two_companion_table, DEMO};
 use predicates::prelude::*;
-
-const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
 
 /// Short runs: these tests check the command, not convergence.
 const SHORT: [&str; 6] = ["--steps", "300", "--burn", "200", "--walkers", "24"];
@@ -82,39 +76,9 @@ fn bad_prior_spec_is_one_line() {
     assert!(stderr.contains("prior spec `beta(2)`: `beta` takes 2 argument(s), 1 given"));
 }
 
-/// Two companions (P = 9.7 d, K = 25 m/s, e = 0.1; P = 61 d, K = 12 m/s, e = 0.3), a trend of
-/// 0.05 m/s/d and two instruments, 60 epochs over 300 d, seeded.
-fn two_companion_table() -> tempfile::NamedTempFile {
-    use eccaudit_core::orbit::OrbitalElements;
-    use eccaudit_core::random::{normal, stream_rng};
-    use rand::RngExt;
-    use std::io::Write;
-    let b = OrbitalElements::new(9.7, 25.0, 0.1, 0.8, 2_460_002.0).unwrap();
-    let c = OrbitalElements::new(61.0, 12.0, 0.3, 2.5, 2_460_030.0).unwrap();
-    let mut rng = stream_rng(13, 0);
-    let mut text = String::from("bjd,rv [m/s],err [m/s],instrument\n");
-    for i in 0..60 {
-        let t = 2_460_000.0 + 300.0 * (i as f64 + 0.7 * rng.random::<f64>()) / 60.0;
-        let (name, offset, sigma) = if i % 3 == 0 {
-            ("Wren", 35.0, 2.5)
-        } else {
-            ("Heron", -20.0, 1.5)
-        };
-        let v = b.radial_velocity(t)
-            + c.radial_velocity(t)
-            + 0.05 * (t - 2_460_150.0)
-            + offset
-            + normal(&mut rng, 0.0, sigma);
-        text.push_str(&format!("{t},{v},{sigma},{name}\n"));
-    }
-    let mut file = tempfile::Builder::new().suffix(".csv").tempfile().unwrap();
-    file.write_all(text.as_bytes()).unwrap();
-    file
-}
-
 #[test]
 fn companion_option_summarises_that_companion() {
-    let table = two_companion_table();
+    let table = two_companion_table(13);
     let path = table.path().to_str().unwrap();
     let model = ["--companions", "2", "--trend", "--jitter", "off"];
     let output = eccaudit()

@@ -1,14 +1,10 @@
 //! `eccaudit table FILE`: summary as text and JSON, one-line errors with file:line:column and a non-zero exit.
 
-use assert_cmd::Command;
+use crate::support::eccaudit;
 use predicates::prelude::*;
 use std::io::Write;
 
 const DATA: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/tables");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
 
 #[test]
 fn text_summary_of_a_good_table() {

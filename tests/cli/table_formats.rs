@@ -2,13 +2,8 @@
 //! CSV they were made from (malformed ones: the fixture loop of `table.rs`), and `inject` writes
 //! its trials as ECSV too.
 
-use assert_cmd::Command;
-
+use crate::support::eccaudit;
 const ROOT: &str = env!("CARGO_MANIFEST_DIR");
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built for tests")
-}
 
 fn fit_json(path: &str) -> serde_json::Value {
     let output = eccaudit()

@@ -1,10 +1,6 @@
 //! Command-line usage mistakes: one readable line on standard error, exit status 2.
 
-use assert_cmd::Command;
-
-fn eccaudit() -> Command {
-    Command::cargo_bin("eccaudit").expect("the eccaudit binary is built")
-}
+use crate::support::eccaudit;
 
 fn check_one_line_usage_error(args: &[&str], expected: &str) {
     let output = eccaudit().args(args).output().unwrap();

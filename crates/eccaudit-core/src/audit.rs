@@ -955,7 +955,8 @@ impl AuditPlan {
             self.estimator.as_deref(),
         )?;
         let x0 = self.observed[chosen].as_ref()?.point;
-        let per_cell = estimates_by_cell(&cells, &counted, chosen);
+        let per_cell =
+            estimates_by_cell(&cells, &counted, chosen, outputs[chosen].converged_index());
         let belt = output_belt(&cells, &per_cell, x0)?;
         let interval = belt.interval(x0);
         let (used, nearest) = cells_in_use(&cells, &interval, x0);
@@ -1073,6 +1074,7 @@ impl AuditPlan {
 mod tests {
     use super::*;
     use crate::table::{parse_table, ReadOptions};
+    use crate::test_support::two_companion_table;
 
     /// SHA-256 test vector "abc" (FIPS 180-2, Appendix B.1).
     #[test]
@@ -1208,35 +1210,6 @@ mod tests {
                 );
             }
         }
-    }
-
-    /// A table with two companions (P = 9.7 d, K = 25 m/s, e = 0.1; P = 61 d, K = 12 m/s,
-    /// e = 0.3), a trend of 0.05 m/s/d, and two instruments (offsets −20 and +35 m/s, σ = 1.5
-    /// and 2.5 m/s) over 300 d, 60 epochs; the noise is √(σ² + `jitter`²), seeded.
-    pub(crate) fn two_companion_table(jitter: f64, seed: u64) -> String {
-        use crate::orbit::OrbitalElements;
-        use crate::random::{normal, stream_rng};
-        use rand::RngExt;
-        let b = OrbitalElements::new(9.7, 25.0, 0.1, 0.8, 2_460_002.0).unwrap();
-        let c = OrbitalElements::new(61.0, 12.0, 0.3, 2.5, 2_460_030.0).unwrap();
-        let mut rng = stream_rng(seed, 0);
-        let mut text = String::from("bjd,rv [m/s],err [m/s],instrument\n");
-        for i in 0..60 {
-            let t = 2_460_000.0 + 300.0 * (i as f64 + 0.7 * rng.random::<f64>()) / 60.0;
-            let (name, offset, sigma) = if i % 3 == 0 {
-                ("Wren", 35.0, 2.5)
-            } else {
-                ("Heron", -20.0, 1.5)
-            };
-            let total = libm::sqrt(sigma * sigma + jitter * jitter);
-            let v = b.radial_velocity(t)
-                + c.radial_velocity(t)
-                + 0.05 * (t - 2_460_150.0)
-                + offset
-                + normal(&mut rng, 0.0, total);
-            text.push_str(&format!("{t},{v},{sigma},{name}\n"));
-        }
-        text
     }
 
     /// The simulations of each audited companion reproduce the fitted model: the background

@@ -27,6 +27,8 @@ pub mod spec;
 pub mod stats;
 pub mod survey;
 pub mod table;
+#[cfg(test)]
+mod test_support;
 
 /// Text from an input (a table cell, a file name, a settings value) as an error message shows
 /// it: control characters (a newline inside a quoted field, a CR, a NUL) escaped as `\n`,

@@ -57,6 +57,48 @@ pub type DrawResult<DB> = Result<
     plotters::drawing::DrawingAreaErrorKind<<DB as plotters::prelude::DrawingBackend>::ErrorType>,
 >;
 
+/// The house grid and axes of every figure's panels: light grid lines in [`MUTED`] at 15 %,
+/// bold ones in [`MUTED`] at opacity `bold`, axes in [`INK`], tick labels in `labels`. The
+/// caller adds its own label counts, formatters and axis names, then draws.
+fn house_mesh<'a, 'b, DB, X, Y, XT, YT>(
+    chart: &'b mut plotters::prelude::ChartContext<'a, DB, plotters::prelude::Cartesian2d<X, Y>>,
+    bold: f64,
+    labels: impl plotters::style::IntoTextStyle<'b>,
+) -> plotters::chart::MeshStyle<'a, 'b, X, Y, DB>
+where
+    DB: plotters::prelude::DrawingBackend,
+    X: plotters::prelude::Ranged<ValueType = XT> + plotters::coord::ranged1d::ValueFormatter<XT>,
+    Y: plotters::prelude::Ranged<ValueType = YT> + plotters::coord::ranged1d::ValueFormatter<YT>,
+{
+    use plotters::style::Color;
+    let mut mesh = chart.configure_mesh();
+    mesh.light_line_style(MUTED.mix(0.15))
+        .bold_line_style(MUTED.mix(bold))
+        .axis_style(INK)
+        .label_style(labels);
+    mesh
+}
+
+/// Tick labels of the small panels (posterior and population figures): 11 px, in [`INK`].
+fn panel_labels() -> plotters::style::TextStyle<'static> {
+    use plotters::style::IntoFont;
+    ("sans-serif", 11).into_font().color(&INK)
+}
+
+/// The top of a density axis: 10 % above the largest finite value of `values`, or 1 when
+/// none is above 0.
+fn density_axis_top<'v>(values: impl Iterator<Item = &'v f64>) -> f64 {
+    let top = values
+        .copied()
+        .filter(|v| v.is_finite())
+        .fold(0.0f64, f64::max);
+    if top > 0.0 {
+        top * 1.1
+    } else {
+        1.0
+    }
+}
+
 /// Measurements `(x, y, σ)` as filled dots with vertical one-sigma error bars, in one colour:
 /// how every figure draws data points (velocities, phase folds, residuals).
 fn draw_measurements<DB: plotters::prelude::DrawingBackend>(

@@ -5,7 +5,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use crate::{DrawResult, INK, MUTED};
+use crate::{house_mesh, DrawResult, INK, MUTED};
 
 /// Colour of the false-alarm levels.
 const LEVEL_COLOUR: RGBColor = RGBColor(0xa0, 0x52, 0x2d);
@@ -110,12 +110,7 @@ pub fn draw_periodogram<DB: DrawingBackend>(
         .x_label_area_size(40)
         .y_label_area_size(70)
         .build_cartesian_2d(period_axis(), 0.0..power_top)?;
-    chart
-        .configure_mesh()
-        .light_line_style(MUTED.mix(0.15))
-        .bold_line_style(MUTED.mix(0.8))
-        .axis_style(INK)
-        .label_style(label_style.clone())
+    house_mesh(&mut chart, 0.8, label_style.clone())
         .x_label_formatter(&|p| period_label(*p))
         .y_label_formatter(&|v| format!("{v:.2}"))
         .x_desc("period [d]")

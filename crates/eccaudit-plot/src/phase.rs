@@ -5,7 +5,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::legend::{draw_legend, LegendMark};
-use crate::{draw_measurements, instrument_colour, padded_range, DrawResult, INK, MUTED};
+use crate::{draw_measurements, house_mesh, instrument_colour, padded_range, DrawResult, INK};
 
 /// One instrument's folded measurements.
 #[derive(Debug, Clone, Default)]
@@ -85,12 +85,7 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
         .x_label_area_size(8)
         .y_label_area_size(Y_LABEL_AREA)
         .build_cartesian_2d(phase_range.clone(), v_lo..v_hi)?;
-    chart
-        .configure_mesh()
-        .light_line_style(MUTED.mix(0.15))
-        .bold_line_style(MUTED.mix(0.8))
-        .axis_style(INK)
-        .label_style(label_style.clone())
+    house_mesh(&mut chart, 0.8, label_style.clone())
         .x_label_formatter(&|_| String::new())
         .y_label_formatter(&|v| tick_label(*v, v_hi - v_lo))
         .y_desc(figure.velocity_label.clone())
@@ -120,12 +115,7 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
         .x_label_area_size(40)
         .y_label_area_size(Y_LABEL_AREA)
         .build_cartesian_2d(phase_range, r_lo..r_hi)?;
-    residual_chart
-        .configure_mesh()
-        .light_line_style(MUTED.mix(0.15))
-        .bold_line_style(MUTED.mix(0.8))
-        .axis_style(INK)
-        .label_style(label_style)
+    house_mesh(&mut residual_chart, 0.8, label_style)
         .y_labels(5)
         .x_label_formatter(&|p| format!("{p:.1}"))
         .y_label_formatter(&|v| tick_label(*v, r_hi - r_lo))

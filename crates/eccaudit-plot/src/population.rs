@@ -4,7 +4,9 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::legend::{draw_legend, LegendMark};
-use crate::{instrument_colour, DrawResult, INK, MUTED};
+use crate::{
+    density_axis_top, house_mesh, instrument_colour, panel_labels, DrawResult, INK, MUTED,
+};
 
 /// The density figure's numbers.
 #[derive(Debug, Clone, Default)]
@@ -41,19 +43,7 @@ pub fn draw_population_density<DB: DrawingBackend>(
     let band_colour = instrument_colour(0);
     let hist_colour = instrument_colour(1);
     let star_colour = MUTED;
-    let top = figure
-        .band95
-        .1
-        .iter()
-        .chain(&figure.histogram_median)
-        .copied()
-        .filter(|v| v.is_finite())
-        .fold(0.0f64, f64::max);
-    let y_max = if top > 0.0 {
-        (top * 1.1).min(30.0)
-    } else {
-        1.0
-    };
+    let y_max = density_axis_top(figure.band95.1.iter().chain(&figure.histogram_median)).min(30.0);
     let mut chart = ChartBuilder::on(area)
         .margin(12)
         .caption(
@@ -63,12 +53,7 @@ pub fn draw_population_density<DB: DrawingBackend>(
         .x_label_area_size(32)
         .y_label_area_size(46)
         .build_cartesian_2d(0.0..1.0, 0.0..y_max)?;
-    chart
-        .configure_mesh()
-        .light_line_style(MUTED.mix(0.15))
-        .bold_line_style(MUTED.mix(0.6))
-        .axis_style(INK)
-        .label_style(("sans-serif", 11).into_font().color(&INK))
+    house_mesh(&mut chart, 0.6, panel_labels())
         .x_desc("e")
         .y_desc("density")
         .draw()?;
@@ -167,12 +152,7 @@ pub fn draw_beta_parameters<DB: DrawingBackend>(
         .x_label_area_size(32)
         .y_label_area_size(46)
         .build_cartesian_2d(0.0..a_max * 1.05 + 1e-9, 0.0..b_max * 1.05 + 1e-9)?;
-    chart
-        .configure_mesh()
-        .light_line_style(MUTED.mix(0.15))
-        .bold_line_style(MUTED.mix(0.6))
-        .axis_style(INK)
-        .label_style(("sans-serif", 11).into_font().color(&INK))
+    house_mesh(&mut chart, 0.6, panel_labels())
         .x_desc("a")
         .y_desc("b")
         .draw()?;

@@ -5,7 +5,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::legend::{draw_legend, LegendMark};
-use crate::{instrument_colour, DrawResult, INK, MUTED};
+use crate::{density_axis_top, house_mesh, instrument_colour, panel_labels, DrawResult, INK};
 
 /// One prior's curves on a common e grid.
 #[derive(Debug, Clone, Default)]
@@ -47,26 +47,14 @@ pub fn draw_eccentricity_posteriors<DB: DrawingBackend>(
     let prior_colour = instrument_colour(6);
     let reference_colour = instrument_colour(1);
     for (panel, cell) in figure.panels.iter().zip(cells.iter()) {
-        let top = panel
-            .posterior
-            .iter()
-            .chain(&panel.prior)
-            .copied()
-            .filter(|v| v.is_finite())
-            .fold(0.0f64, f64::max);
-        let y_max = if top > 0.0 { top * 1.1 } else { 1.0 };
+        let y_max = density_axis_top(panel.posterior.iter().chain(&panel.prior));
         let mut chart = ChartBuilder::on(cell)
             .margin(8)
             .caption(&panel.title, ("sans-serif", 13).into_font().color(&INK))
             .x_label_area_size(28)
             .y_label_area_size(40)
             .build_cartesian_2d(0.0..1.0, 0.0..y_max)?;
-        chart
-            .configure_mesh()
-            .light_line_style(MUTED.mix(0.15))
-            .bold_line_style(MUTED.mix(0.6))
-            .axis_style(INK)
-            .label_style(("sans-serif", 11).into_font().color(&INK))
+        house_mesh(&mut chart, 0.6, panel_labels())
             .x_labels(6)
             .y_labels(4)
             .x_desc("e")

@@ -6,7 +6,8 @@ use plotters::prelude::*;
 
 use crate::legend::{draw_legend, LegendMark};
 use crate::{
-    draw_measurements, instrument_colour, padded_range, time_axis_offset, DrawResult, INK, MUTED,
+    draw_measurements, house_mesh, instrument_colour, padded_range, time_axis_offset, DrawResult,
+    INK,
 };
 
 /// One instrument's measurements.
@@ -74,14 +75,9 @@ pub fn draw_velocities<DB: DrawingBackend>(
         .y_label_area_size(80)
         .build_cartesian_2d((t_lo - t0)..(t_hi - t0), v_lo..v_hi)?;
 
-    chart
-        .configure_mesh()
-        .light_line_style(MUTED.mix(0.15))
+    house_mesh(&mut chart, 0.8, ("sans-serif", 13).into_font().color(&INK))
         .x_label_formatter(&|t| tick_label(*t, t_hi - t_lo))
         .y_label_formatter(&|v| tick_label(*v, v_hi - v_lo))
-        .bold_line_style(MUTED.mix(0.8))
-        .axis_style(INK)
-        .label_style(("sans-serif", 13).into_font().color(&INK))
         .x_desc(x_label)
         .y_desc("radial velocity [m/s]")
         .draw()?;

@@ -50,6 +50,25 @@ impl Outcome {
             Outcome::Failed(_) | Outcome::Skipped => None,
         }
     }
+
+    /// The estimate when it may be counted in a statistic: present and, for an output with a
+    /// convergence flag (`converged`, from [`OutputInfo::converged_index`]), from a run that
+    /// met its convergence rule. A number from a run that did not is never quoted.
+    ///
+    /// [`OutputInfo::converged_index`]: super::estimators::OutputInfo::converged_index
+    pub fn counted(&self, converged: Option<usize>) -> Option<&EccentricityEstimate> {
+        self.estimate().filter(|e| !is_unconverged(e, converged))
+    }
+
+    /// True for an estimate from a run that did not meet its convergence rule.
+    pub fn is_unconverged(&self, converged: Option<usize>) -> bool {
+        self.estimate()
+            .is_some_and(|e| is_unconverged(e, converged))
+    }
+}
+
+fn is_unconverged(e: &EccentricityEstimate, converged: Option<usize>) -> bool {
+    converged.is_some_and(|i| e.extra.get(i).is_some_and(|&flag| flag == 0.0))
 }
 
 /// Everything kept of one trial: the injected orbit and each output's outcome.

@@ -61,6 +61,18 @@ pub enum EstimatorError {
     Other(String),
 }
 
+/// Name of the extra output that records whether a trial's posterior run met its own
+/// convergence rule (1) or not (0).
+pub const CONVERGED_EXTRA: &str = "converged";
+
+impl OutputInfo {
+    /// Index into [`EccentricityEstimate::extra`] of the convergence flag
+    /// ([`CONVERGED_EXTRA`]), for outputs of a run that has a convergence rule.
+    pub fn converged_index(&self) -> Option<usize> {
+        self.extra_names.iter().position(|n| n == CONVERGED_EXTRA)
+    }
+}
+
 // The message above already prints the inner error, so it is not also reported as `source()`
 // (which would make a printed chain say it twice).
 impl From<FitError> for EstimatorError {

@@ -213,39 +213,19 @@ mod tests {
     use crate::audit::{AuditPlan, AuditSettings};
     use crate::fit::FitData;
     use crate::inject::{Estimator, Outcome};
-    use crate::orbit::OrbitalElements;
     use crate::posterior::{prior_sensitivity, SensitivityRequest};
-    use crate::random::{normal, stream_rng};
     use crate::sampler::Steer;
     use crate::spec::{JitterMode, ModelSpec};
     use crate::table::{parse_table, ReadOptions};
-    use rand::RngExt;
+    use crate::test_support::two_companion_table;
 
-    /// Truth of the simulated table: companion 1 P = 9.7 d, K = 25 m/s, e = 0.1; companion 2
-    /// P = 61 d, K = 12 m/s, e = 0.3; a trend of 0.05 m/s/d; two instruments (offsets 35 and
-    /// −20 m/s, σ = 2.5 and 1.5 m/s); 60 epochs over 300 d. Seed fixed.
+    /// Truth of companion 2 (e) in the shared simulated table
+    /// ([`two_companion_table`]: P = 9.7 d and 61 d, a trend, two instruments, 60 epochs).
     const TRUE_E2: f64 = 0.3;
 
+    /// The shared two-companion table with this module's seed (13) and no extra noise.
     fn two_companion_text() -> String {
-        let b = OrbitalElements::new(9.7, 25.0, 0.1, 0.8, 2_460_002.0).unwrap();
-        let c = OrbitalElements::new(61.0, 12.0, TRUE_E2, 2.5, 2_460_030.0).unwrap();
-        let mut rng = stream_rng(13, 0);
-        let mut text = String::from("bjd,rv [m/s],err [m/s],instrument\n");
-        for i in 0..60 {
-            let t = 2_460_000.0 + 300.0 * (i as f64 + 0.7 * rng.random::<f64>()) / 60.0;
-            let (name, offset, sigma) = if i % 3 == 0 {
-                ("Wren", 35.0, 2.5)
-            } else {
-                ("Heron", -20.0, 1.5)
-            };
-            let v = b.radial_velocity(t)
-                + c.radial_velocity(t)
-                + 0.05 * (t - 2_460_150.0)
-                + offset
-                + normal(&mut rng, 0.0, sigma);
-            text.push_str(&format!("{t},{v},{sigma},{name}\n"));
-        }
-        text
+        two_companion_table(0.0, 13)
     }
 
     fn model() -> ModelSpec {

@@ -226,6 +226,9 @@ pub struct EstimatorRow {
     pub false_eccentric_rate: Option<Rate>,
     /// Share of its simulations (all cells) that failed.
     pub failed: Option<Rate>,
+    /// Share of its simulations (all cells) whose run missed its convergence rule, left out of
+    /// its numbers (None for an estimator without such a rule).
+    pub unconverged: Option<Rate>,
 }
 
 /// A Bayes factor quoted, or left out with the reason.
@@ -303,11 +306,16 @@ pub fn statement_cells(design: &InjectionDesign, fitted: &FittedOrbit) -> Vec<Gr
 }
 
 /// Each cell's estimates of output `output` from `records` (sorted by trial index, so the
-/// result does not depend on the order the trials finished in).
+/// result does not depend on the order the trials finished in). `converged` is the output's
+/// convergence flag ([`OutputInfo::converged_index`]): estimates from runs that missed their
+/// convergence rule are left out ([`Outcome::counted`]).
+///
+/// [`Outcome::counted`]: super::engine::Outcome::counted
 pub fn estimates_by_cell(
     cells: &[GridCell],
     records: &[&TrialRecord],
     output: usize,
+    converged: Option<usize>,
 ) -> Vec<Vec<f64>> {
     let mut sorted: Vec<&TrialRecord> = records.to_vec();
     sorted.sort_by_key(|r| r.trial);
@@ -318,7 +326,7 @@ pub fn estimates_by_cell(
             sorted
                 .iter()
                 .filter(|r| r.cell == c.index)
-                .filter_map(|r| r.outcomes.get(output).and_then(|o| o.estimate()))
+                .filter_map(|r| r.outcomes.get(output).and_then(|o| o.counted(converged)))
                 .map(|e| e.point)
                 .filter(|x| x.is_finite())
                 .collect()
@@ -405,8 +413,9 @@ fn quotable(info: &OutputInfo, observed: Option<&EccentricityEstimate>) -> Resul
 pub const RECOMMENDATION_RULE: &str = "the estimator with the smallest root-mean-square error \
     averaged over the injected e inside its own calibrated interval, from the base simulations \
     (the Lucy-Sweeney adopted value, a test, and posterior runs that did not converge on the data \
-    are not candidates, nor are estimators run on fewer than half of the base simulations of an \
-    injected e, such as posterior estimators run at a smaller count per e)";
+    are not candidates, nor are estimators counted on fewer than half of the base simulations of \
+    an injected e: posterior estimators run at a smaller count per e, or whose runs missed their \
+    convergence rule)";
 
 /// The recommended output (index) by [`RECOMMENDATION_RULE`], from `base_records` (the base
 /// trials only, so adding extra trials never changes the choice).
@@ -424,13 +433,14 @@ pub fn recommend(
         let Ok(x0) = quotable(info, observed.get(i).and_then(Option::as_ref)) else {
             continue;
         };
-        let per_cell = estimates_by_cell(cells, base_records, i);
+        let per_cell = estimates_by_cell(cells, base_records, i, info.converged_index());
         let Some(belt) = output_belt(cells, &per_cell, x0) else {
             continue;
         };
         let interval = belt.interval(x0);
-        // Estimators run on a smaller share of the base simulations (the audit's posterior
-        // estimators, `injection.posterior.trials_per_cell`) are shown, not recommended.
+        // Estimators counted on a smaller share of the base simulations (the audit's posterior
+        // estimators, `injection.posterior.trials_per_cell`, or runs that missed their
+        // convergence rule) are shown, not recommended.
         let run_on_fewer = cells.iter().zip(&per_cell).any(|(c, v)| {
             let n_base = base_records.iter().filter(|r| r.cell == c.index).count();
             2 * v.len() < n_base
@@ -584,7 +594,7 @@ pub fn eccentricity_statement(
     let mut rows = Vec::new();
     for (i, (info, obs)) in summary.outputs.iter().zip(observed).enumerate() {
         let Some(obs) = obs else { continue };
-        let per_cell = estimates_by_cell(&cells, &all, i);
+        let per_cell = estimates_by_cell(&cells, &all, i, info.converged_index());
         let (value, value_note) = match quotable(info, Some(obs)) {
             Ok(v) => (Some(v), None),
             Err(why) => (None, Some(why)),
@@ -611,16 +621,18 @@ pub fn eccentricity_statement(
         let (mean, sd) = mean_sd(&per_cell[j]);
         let n_j = per_cell[j].len();
         let stats = cell_summary(&cells[j]).map(|s| &s.outputs[i]);
-        let (failed, tried) = cells
+        let (failed, unconverged, tried) = cells
             .iter()
             .filter_map(&cell_summary)
             .map(|s| {
+                let o = &s.outputs[i];
                 (
-                    s.outputs[i].n_failed,
-                    s.outputs[i].n_failed + s.outputs[i].n_estimates,
+                    o.n_failed,
+                    o.n_unconverged,
+                    o.n_failed + o.n_unconverged + o.n_estimates,
                 )
             })
-            .fold((0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
+            .fold((0, 0, 0), |a, b| (a.0 + b.0, a.1 + b.1, a.2 + b.2));
         rows.push(EstimatorRow {
             name: info.name.clone(),
             label: info.label.clone(),
@@ -639,6 +651,9 @@ pub fn eccentricity_statement(
                 .and_then(&cell_summary)
                 .and_then(|s| s.outputs[i].false_eccentric_rate),
             failed: Rate::of(failed, tried),
+            unconverged: info
+                .converged_index()
+                .and_then(|_| Rate::of(unconverged, tried)),
         });
     }
     let bayes = bayes_notes(&summary.outputs, observed);
@@ -738,16 +753,22 @@ fn bayes_notes(
     notes
 }
 
+/// An interval end printed no finer than its Monte-Carlo error supports: three decimals when
+/// its bootstrap standard error is at most 0.005, else two (so no 0.005-level claim rests on
+/// an end that moves by more between resamples), with the error beside it when known.
+fn end_text(value: f64, se: f64) -> String {
+    if se.is_finite() && se <= 0.005 {
+        format!("{value:.3} (±{se:.3})")
+    } else if se.is_finite() {
+        format!("{value:.2} (±{se:.2})")
+    } else {
+        format!("{value:.2}")
+    }
+}
+
 fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
-    let err = |se: f64| {
-        if se.is_finite() {
-            format!(" (±{se:.3})")
-        } else {
-            String::new()
-        }
-    };
-    let (lo_err, hi_err) = errors.map_or((String::new(), String::new()), |e| {
-        (err(e.lower_standard_error), err(e.upper_standard_error))
+    let (lo_se, hi_se) = errors.map_or((f64::NAN, f64::NAN), |e| {
+        (e.lower_standard_error, e.upper_standard_error)
     });
     if i.open_above {
         // The set reaches the top of the simulated grid: only its lower end is bounded here.
@@ -758,9 +779,9 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
             )
         } else {
             format!(
-                "e > {:.3}{lo_err} (open above: it reaches the top of the simulated grid, e = {}; \
-                 extend the grid to bound it)",
-                i.lower,
+                "e > {} (open above: it reaches the top of the simulated grid, e = {}; extend \
+                 the grid to bound it)",
+                end_text(i.lower, lo_se),
                 grid_value(i.upper)
             )
         };
@@ -773,11 +794,12 @@ fn interval_text(i: &BeltInterval, errors: Option<&BeltEstimate>) -> String {
         ""
     };
     if i.upper_limit {
-        format!("e < {:.3}{hi_err}{coarse}", i.upper)
+        format!("e < {}{coarse}", end_text(i.upper, hi_se))
     } else {
         format!(
-            "{:.3}{lo_err} < e < {:.3}{hi_err}{coarse}",
-            i.lower, i.upper
+            "{} < e < {}{coarse}",
+            end_text(i.lower, lo_se),
+            end_text(i.upper, hi_se)
         )
     }
 }
@@ -829,10 +851,14 @@ fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
                  simulations of these {} epochs and uncertainties, is {interval}.",
                 r.label, s.n_epochs
             ));
+            // Three decimals only when the Monte-Carlo error supports them (as the ends).
+            let bias = if r.bias_standard_error <= 0.005 {
+                format!("{:+.3} ± {:.3}", r.bias, r.bias_standard_error)
+            } else {
+                format!("{:+.2} ± {:.2}", r.bias, r.bias_standard_error)
+            };
             out.push(format!(
-                "At this sampling it is biased by {:+.3} ± {:.3} at a true e = {} ({} simulations).",
-                r.bias,
-                r.bias_standard_error,
+                "At this sampling it is biased by {bias} at a true e = {} ({} simulations).",
                 grid_value(r.at_true_e),
                 r.n_at_true_e
             ));
@@ -862,6 +888,24 @@ fn sentences(s: &EccentricityStatement, context: &AuditContext) -> Vec<String> {
         ));
     }
     out
+}
+
+/// "name p% ± se% of n; …" for the rows whose `share` (of simulations left out of their
+/// numbers) is above zero; empty when none is.
+fn shares_left_out(rows: &[EstimatorRow], share: impl Fn(&EstimatorRow) -> Option<Rate>) -> String {
+    rows.iter()
+        .filter_map(|r| share(r).filter(|f| f.value > 0.0).map(|f| (r, f)))
+        .map(|(r, f)| {
+            format!(
+                "{} {:.1}% ± {:.1}% of {}",
+                r.name,
+                100.0 * f.value,
+                100.0 * f.standard_error,
+                f.n
+            )
+        })
+        .collect::<Vec<_>>()
+        .join("; ")
 }
 
 fn methods(
@@ -945,24 +989,18 @@ fn methods(
             100.0 * ls.false_alarm_rate.standard_error
         ));
     }
-    let failures: Vec<String> = s
-        .rows
-        .iter()
-        .filter_map(|r| r.failed.filter(|f| f.value > 0.0).map(|f| (r, f)))
-        .map(|(r, f)| {
-            format!(
-                "{} {:.1}% ± {:.1}% of {}",
-                r.name,
-                100.0 * f.value,
-                100.0 * f.standard_error,
-                f.n
-            )
-        })
-        .collect();
+    let failures = shares_left_out(&s.rows, |r| r.failed);
     if !failures.is_empty() {
         text.push_str(&format!(
-            "Simulations where an estimator failed are left out of its numbers: {}. ",
-            failures.join("; ")
+            "Simulations where an estimator failed are left out of its numbers: {failures}. "
+        ));
+    }
+    let unconverged = shares_left_out(&s.rows, |r| r.unconverged);
+    if !unconverged.is_empty() {
+        text.push_str(&format!(
+            "Simulations whose posterior run missed its convergence rule within the per-trial \
+             budget are left out of that estimator's numbers (which may favour the easier \
+             simulations): {unconverged}. "
         ));
     }
     text.push_str(&format!("Recommended: {}.", s.recommendation_rule));
@@ -1021,7 +1059,7 @@ impl EccentricityStatement {
             .unwrap_or(0)
             .max(9);
         out.push_str(&format!(
-            "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7} {:>13} {:>13} {:>13}\n",
+            "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7} {:>13} {:>13} {:>13} {:>13}\n",
             "estimator",
             "value",
             "95% calibrated",
@@ -1030,7 +1068,8 @@ impl EccentricityStatement {
             "RMSE",
             "coverage95",
             "false-ecc",
-            "failed"
+            "failed",
+            "unconverged"
         ));
         for r in &self.rows {
             let mark = if self.recommended.as_ref() == Some(&r.name) {
@@ -1051,8 +1090,13 @@ impl EccentricityStatement {
                 Some(f) if f.value > 0.0 => rate_text(&Some(f)),
                 _ => "0".into(),
             };
+            let unconverged = match r.unconverged {
+                Some(f) if f.value > 0.0 => rate_text(&Some(f)),
+                Some(_) => "0".into(),
+                None => "-".into(),
+            };
             out.push_str(&format!(
-                "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7.4} {:>13} {:>13} {:>13}\n",
+                "  {:<width$} {:>7} {:>22} {:>6} {:>16} {:>7.4} {:>13} {:>13} {:>13} {:>13}\n",
                 format!("{}{mark}", r.name),
                 value,
                 interval,
@@ -1061,7 +1105,8 @@ impl EccentricityStatement {
                 r.rmse,
                 rate_text(&r.coverage95),
                 rate_text(&r.false_eccentric_rate),
-                failed
+                failed,
+                unconverged
             ));
         }
         out.push_str("  (* recommended; value '-' : not quoted, see the notes)\n");
@@ -1170,5 +1215,39 @@ mod tests {
         let notes = bayes_notes(&[info], &[Some(yes)]);
         assert_eq!(notes[0].bf01, Some(0.8));
         assert!(notes[0].text.contains("BF01 = 0.800"), "{}", notes[0].text);
+    }
+
+    /// Interval ends carry three decimals only when their bootstrap error is ≤ 0.005.
+    #[test]
+    fn interval_ends_print_no_finer_than_their_monte_carlo_error() {
+        let interval = BeltInterval {
+            level: 0.95,
+            lower: 0.1234,
+            upper: 0.3456,
+            e_best: 0.2,
+            upper_limit: false,
+            open_above: false,
+            under_resolved: false,
+        };
+        let errors = |lo: f64, hi: f64| BeltEstimate {
+            interval,
+            lower_standard_error: lo,
+            upper_standard_error: hi,
+            resamples: 20,
+        };
+        assert_eq!(
+            interval_text(&interval, Some(&errors(0.004, 0.02))),
+            "0.123 (±0.004) < e < 0.35 (±0.02)"
+        );
+        assert_eq!(interval_text(&interval, None), "0.12 < e < 0.35");
+        let limit = BeltInterval {
+            lower: 0.0,
+            upper_limit: true,
+            ..interval
+        };
+        assert_eq!(
+            interval_text(&limit, Some(&errors(0.0, 0.003))),
+            "e < 0.346 (±0.003)"
+        );
     }
 }

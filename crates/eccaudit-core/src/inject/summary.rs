@@ -63,12 +63,19 @@ impl Rate {
 pub struct OutputCellSummary {
     /// Output name.
     pub name: String,
-    /// Trials with an estimate.
+    /// Trials with an estimate that is counted (for a posterior output: from a run that met
+    /// its convergence rule); every statistic below is over these.
     pub n_estimates: usize,
     /// Trials where the estimator failed.
     pub n_failed: usize,
     /// Share of the trials it was run on that failed.
     pub failed_share: Option<Rate>,
+    /// Trials whose run gave an estimate but did not meet its convergence rule: left out of
+    /// every statistic (a number from such a run is not quoted).
+    pub n_unconverged: usize,
+    /// Share of the trials it was run on that did not converge (None for outputs without a
+    /// convergence rule, or run on no trial).
+    pub unconverged_share: Option<Rate>,
     /// Mean estimate.
     pub mean: f64,
     /// Bias: mean estimate − true e.
@@ -145,16 +152,26 @@ fn summarise_output(
     true_e: f64,
     records: &[&TrialRecord],
     index: usize,
+    converged: Option<usize>,
 ) -> OutputCellSummary {
     let estimates: Vec<_> = records
         .iter()
-        .filter_map(|r| r.outcomes.get(index).and_then(|o| o.estimate()))
+        .filter_map(|r| r.outcomes.get(index).and_then(|o| o.counted(converged)))
         .collect();
     let n = estimates.len();
     let n_failed = records
         .iter()
         .filter(|r| matches!(r.outcomes.get(index), Some(Outcome::Failed(_))))
         .count();
+    let n_unconverged = records
+        .iter()
+        .filter(|r| {
+            r.outcomes
+                .get(index)
+                .is_some_and(|o| o.is_unconverged(converged))
+        })
+        .count();
+    let n_run = n + n_failed + n_unconverged;
     let mut points: Vec<f64> = estimates.iter().map(|e| e.point).collect();
     let mean = points.iter().sum::<f64>() / n as f64;
     let scatter = if n > 1 {
@@ -190,7 +207,9 @@ fn summarise_output(
         name: name.to_string(),
         n_estimates: n,
         n_failed,
-        failed_share: Rate::new(n_failed, n + n_failed),
+        failed_share: Rate::new(n_failed, n_run),
+        n_unconverged,
+        unconverged_share: converged.and_then(|_| Rate::new(n_unconverged, n_run)),
         mean,
         bias: mean - true_e,
         bias_standard_error: scatter / libm::sqrt(n as f64),
@@ -243,7 +262,15 @@ pub fn summarise(
                 outputs: outputs
                     .iter()
                     .enumerate()
-                    .map(|(i, o)| summarise_output(&o.name, cell.eccentricity, &in_cell, i))
+                    .map(|(i, o)| {
+                        summarise_output(
+                            &o.name,
+                            cell.eccentricity,
+                            &in_cell,
+                            i,
+                            o.converged_index(),
+                        )
+                    })
                     .collect(),
             }
         })
@@ -264,7 +291,7 @@ impl InjectionSummary {
     pub fn text_table(&self) -> String {
         let mut out = String::new();
         out.push_str(&format!(
-            "{:>6} {:>8} {:>6} {:<13} {:>5} {:>8} {:>7} {:>7} {:>7} {:>7} {:>7} {:>7} {:>7}\n",
+            "{:>6} {:>8} {:>6} {:<13} {:>5} {:>8} {:>7} {:>7} {:>7} {:>7} {:>7} {:>7} {:>7} {:>7}\n",
             "true_e",
             "K",
             "K/sig",
@@ -277,13 +304,14 @@ impl InjectionSummary {
             "cov68",
             "cov95",
             "ecc",
-            "failed"
+            "failed",
+            "unconv"
         ));
         let rate = |r: &Option<Rate>| r.map_or("-".to_string(), |r| format!("{:.3}", r.value));
         for cell in &self.cells {
             for o in &cell.outputs {
                 out.push_str(&format!(
-                    "{:>6.3} {:>8.3} {:>6.2} {:<13} {:>5} {:>+8.4} {:>7.4} {:>7.4} {:>7.4} {:>7} {:>7} {:>7} {:>7}\n",
+                    "{:>6.3} {:>8.3} {:>6.2} {:<13} {:>5} {:>+8.4} {:>7.4} {:>7.4} {:>7.4} {:>7} {:>7} {:>7} {:>7} {:>7}\n",
                     cell.cell.eccentricity,
                     cell.cell.semi_amplitude,
                     cell.signal_to_noise,
@@ -296,7 +324,8 @@ impl InjectionSummary {
                     rate(&o.coverage68),
                     rate(&o.coverage95),
                     rate(&o.eccentric_call_rate),
-                    o.n_failed
+                    o.n_failed,
+                    o.n_unconverged
                 ));
             }
         }
@@ -372,5 +401,62 @@ mod tests {
         assert!(circular.false_eccentric_rate.is_some());
         assert!(a.cells[1].outputs[0].false_eccentric_rate.is_none());
         assert!(a.text_table().lines().count() == 1 + 2 * 2);
+    }
+
+    #[test]
+    fn runs_that_missed_their_convergence_rule_are_left_out_and_counted() {
+        // A posterior-like output (extra = [converged]) in one cell at true e = 0.2: three
+        // converged runs at 0.1, 0.2, 0.3, two unconverged ones at 0.9 and one failure. The
+        // statistics are over the converged three only (house rule: no number from a run
+        // that missed its convergence rule), and the shares say what was left out.
+        let estimate = |point: f64, converged: f64| {
+            Outcome::Estimate(super::super::EccentricityEstimate {
+                point,
+                lower68: 0.0,
+                upper68: 1.0,
+                lower95: 0.0,
+                upper95: 1.0,
+                calls_eccentric: None,
+                extra: vec![converged],
+            })
+        };
+        let outcomes = [
+            estimate(0.1, 1.0),
+            estimate(0.9, 0.0),
+            estimate(0.2, 1.0),
+            Outcome::Failed("sampler failed".into()),
+            estimate(0.9, 0.0),
+            estimate(0.3, 1.0),
+        ];
+        let records: Vec<TrialRecord> = outcomes
+            .into_iter()
+            .enumerate()
+            .map(|(k, o)| TrialRecord {
+                trial: k as u64,
+                cell: 0,
+                eccentricity: 0.2,
+                semi_amplitude: 10.0,
+                omega: 0.0,
+                mean_anomaly: 0.0,
+                outcomes: vec![o],
+            })
+            .collect();
+        let refs: Vec<&TrialRecord> = records.iter().collect();
+        let s = summarise_output("post_mean", 0.2, &refs, 0, Some(0));
+        assert_eq!((s.n_estimates, s.n_unconverged, s.n_failed), (3, 2, 1));
+        approx::assert_relative_eq!(s.mean, 0.2, max_relative = 1e-12);
+        approx::assert_relative_eq!(s.bias, 0.0, epsilon = 1e-12);
+        let share = s.unconverged_share.unwrap();
+        assert_eq!(share.n, 6);
+        approx::assert_relative_eq!(share.value, 2.0 / 6.0, max_relative = 1e-12);
+        approx::assert_relative_eq!(
+            s.failed_share.unwrap().value,
+            1.0 / 6.0,
+            max_relative = 1e-12
+        );
+        // Without a convergence flag (least squares) every estimate counts.
+        let all = summarise_output("lsq", 0.2, &refs, 0, None);
+        assert_eq!((all.n_estimates, all.n_unconverged), (5, 0));
+        assert!(all.unconverged_share.is_none());
     }
 }

@@ -823,6 +823,26 @@ mod tests_data {
         let errors = vec![2.0; times.len()];
         FitData::new(&times, &velocities, &errors, &[0; 30], &["a".into()])
     }
+
+    /// One uniform-prior run with the jitter held off, at most `max_evaluations` log-density
+    /// evaluations, over the given periods (empty: searched).
+    pub(super) fn uniform_prior_settings(
+        max_evaluations: u64,
+        periods: Vec<f64>,
+    ) -> super::SensitivitySettings {
+        crate::posterior::SensitivityRequest {
+            priors: vec!["uniform".into()],
+            max_evaluations,
+            model: crate::spec::ModelSpec {
+                jitter: crate::spec::JitterMode::Off,
+                periods,
+                ..crate::spec::ModelSpec::DEFAULT
+            },
+            ..crate::posterior::SensitivityRequest::default()
+        }
+        .to_settings()
+        .unwrap()
+    }
 }
 
 #[cfg(test)]
@@ -901,12 +921,15 @@ mod tests {
     }
 }
 
+/// Tables whose least-squares fit has more than one optimum (a one-day alias) or an optimum at
+/// the e edge: where the posterior starts and what its verdict says.
 #[cfg(test)]
 mod optima_tests {
+    use super::tests_data::uniform_prior_settings;
     use super::*;
     use crate::orbit::OrbitalElements;
-    use crate::posterior::SensitivityRequest;
-    use crate::random::{normal, stream_rng};
+    use crate::random::stream_rng;
+    use crate::test_support::one_instrument_data;
     use rand::RngExt;
 
     /// A circular orbit (P = 1.37 d, K = 20 m/s, σ = 2 m/s) observed on 30 consecutive nights,
@@ -917,31 +940,16 @@ mod optima_tests {
     fn alias_table() -> FitData {
         let orbit = OrbitalElements::new(1.37, 20.0, 0.0, 0.0, 2_460_000.2).unwrap();
         let mut rng = stream_rng(21, 0);
-        let mut times: Vec<f64> = (0..30)
+        let times: Vec<f64> = (0..30)
             .map(|i| 2_460_000.0 + i as f64 + 0.005 * rng.random::<f64>())
             .collect();
-        times.sort_by(f64::total_cmp);
-        let v: Vec<f64> = times
-            .iter()
-            .map(|&t| orbit.radial_velocity(t) + normal(&mut rng, 0.0, 2.0))
-            .collect();
-        FitData::new(&times, &v, &[2.0; 30], &[0; 30], &["a".into()])
+        one_instrument_data(&orbit, times, 2.0, &mut rng)
     }
 
     #[test]
     fn alias_modes_start_apart_and_are_not_called_converged() {
         let data = alias_table();
-        let settings = SensitivityRequest {
-            priors: vec!["uniform".into()],
-            max_evaluations: 300_000,
-            model: crate::spec::ModelSpec {
-                jitter: crate::spec::JitterMode::Off,
-                ..crate::spec::ModelSpec::DEFAULT
-            },
-            ..SensitivityRequest::default()
-        }
-        .to_settings()
-        .unwrap();
+        let settings = uniform_prior_settings(300_000, Vec::new());
         let report = prior_sensitivity(&data, &settings, &mut |_| Steer::Continue).unwrap();
         let run = &report.runs[0];
         let periods: Vec<f64> = run.start.optima.iter().map(|o| o.period).collect();
@@ -964,15 +972,6 @@ mod optima_tests {
         );
         assert!(report.to_string().contains("least-squares optima"));
     }
-}
-
-#[cfg(test)]
-mod edge_tests {
-    use super::*;
-    use crate::orbit::OrbitalElements;
-    use crate::posterior::SensitivityRequest;
-    use crate::random::{normal, stream_rng};
-    use rand::RngExt;
 
     /// A low signal-to-noise table: circular truth P = 7.3 d, K = 5 m/s, σ = 3 m/s, 24 epochs
     /// on whole nights (+ up to 1 d) over 120 d, seed 57 — chosen (by scanning seeds 0–59 with
@@ -981,32 +980,16 @@ mod edge_tests {
     fn edge_table() -> FitData {
         let orbit = OrbitalElements::new(7.3, 5.0, 0.0, 0.0, 2_460_000.3).unwrap();
         let mut rng = stream_rng(57, 0);
-        let mut times: Vec<f64> = (0..24)
+        let times: Vec<f64> = (0..24)
             .map(|_| 2_460_000.0 + libm::floor(120.0 * rng.random::<f64>()) + rng.random::<f64>())
             .collect();
-        times.sort_by(f64::total_cmp);
-        let v: Vec<f64> = times
-            .iter()
-            .map(|&t| orbit.radial_velocity(t) + normal(&mut rng, 0.0, 3.0))
-            .collect();
-        FitData::new(&times, &v, &[3.0; 24], &[0; 24], &["a".into()])
+        one_instrument_data(&orbit, times, 3.0, &mut rng)
     }
 
     #[test]
     fn edge_optimum_converges_or_says_why_not() {
         let data = edge_table();
-        let settings = SensitivityRequest {
-            priors: vec!["uniform".into()],
-            max_evaluations: 1_000_000,
-            model: crate::spec::ModelSpec {
-                jitter: crate::spec::JitterMode::Off,
-                periods: vec![7.3],
-                ..crate::spec::ModelSpec::DEFAULT
-            },
-            ..SensitivityRequest::default()
-        }
-        .to_settings()
-        .unwrap();
+        let settings = uniform_prior_settings(1_000_000, vec![7.3]);
         let report = prior_sensitivity(&data, &settings, &mut |_| Steer::Continue).unwrap();
         let run = &report.runs[0];
         assert!(report.least_squares.e > 0.98, "{}", report.least_squares.e);
