@@ -2,7 +2,7 @@
 // its own worker (priors-worker.js), up to navigator.hardwareConcurrency at once; the wasm
 // PriorSet collects the runs in prior order and assembles the same report as
 // `eccaudit priors --json`, which is kept in window.eccauditPriorsReport for inspection.
-import { PriorSet, defaultPriorSpecs } from "./pkg/eccaudit_web.js";
+import { PriorSet, defaultPriorSpecs, defaultPriorsRequest } from "./pkg/eccaudit_web.js";
 import { addFigureExports, addTableExports, stem } from "./exports.js";
 import { $, el, hideError as hideBox, messageOf, showError as showBox } from "./dom.js";
 import { duration, fixed as fixedTo, withError as withErrorTo } from "./format.js";
@@ -274,6 +274,9 @@ export function initPriorsView({ currentTable, currentModel }) {
   view.currentModel = currentModel;
   $("priors-specs").value = defaultPriorSpecs().join("\n");
   const form = $("priors-settings");
+  // The sampler controls default from the core (defaultPriorsRequest), not from the HTML.
+  const defaults = JSON.parse(defaultPriorsRequest());
+  for (const name of ["walkers", "steps", "burn", "seed"]) form.elements[name].value = String(defaults[name]);
   form.addEventListener("submit", (ev) => {
     ev.preventDefault();
     runSet(form);

@@ -64,10 +64,10 @@ pub struct RunArgs {
     #[arg(long)]
     pub period_search: bool,
     /// Starting eccentricities of the least-squares fit in each trial.
-    #[arg(long, value_delimiter = ',', default_values_t = [0.1, 0.4])]
+    #[arg(long, value_delimiter = ',', default_values_t = LeastSquaresSettings::default().start_eccentricities)]
     pub start_e: Vec<f64>,
     /// Starting omega values per starting eccentricity.
-    #[arg(long, default_value_t = 4)]
+    #[arg(long, default_value_t = LeastSquaresSettings::default().n_omega_starts)]
     pub omega_starts: usize,
     /// Leave out the Lucy-Sweeney output.
     #[arg(long)]

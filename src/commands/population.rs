@@ -25,19 +25,19 @@ pub struct Args {
     #[arg(required = true, num_args = 1..)]
     pub inputs: Vec<PathBuf>,
     /// Equal bins of the histogram population on [0, 1).
-    #[arg(long, default_value_t = 10)]
+    #[arg(long, default_value_t = PopulationSettings::default().bins)]
     pub bins: usize,
     /// Step s of the Gaussian random walk of the histogram population's log heights.
-    #[arg(long, default_value_t = 1.0)]
+    #[arg(long, default_value_t = PopulationSettings::default().smoothness)]
     pub smoothness: f64,
     /// Draws used per companion (files with more are thinned evenly).
-    #[arg(long, default_value_t = 256)]
+    #[arg(long, default_value_t = PopulationSettings::default().max_draws_per_star)]
     pub draws_per_star: usize,
     /// Most log-density evaluations of each population run.
-    #[arg(long, default_value_t = 4_000_000)]
+    #[arg(long, default_value_t = PopulationSettings::default().length.max_evaluations)]
     pub max_evaluations: u64,
     /// Seed of the population sampler.
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = PopulationSettings::default().sampler.seed)]
     pub seed: u64,
     /// Write population.json, population.csv, population-density.svg and beta-ab.svg here.
     #[arg(long, value_name = "DIR")]

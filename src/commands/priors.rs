@@ -34,23 +34,23 @@ pub struct Args {
     #[arg(long = "priors", value_name = "SPEC", num_args = 1..)]
     pub priors: Vec<String>,
     /// Walkers per ensemble (raised to 2·parameters + 2 when the model needs more).
-    #[arg(long, default_value_t = 64)]
+    #[arg(long, default_value_t = SensitivityRequest::default().walkers)]
     pub walkers: usize,
     /// Steps after burn-in before the first convergence check (each run then extends itself
     /// until converged, unless --fixed-length).
-    #[arg(long, default_value_t = 300)]
+    #[arg(long, default_value_t = SensitivityRequest::default().steps)]
     pub steps: usize,
     /// Burn-in steps.
-    #[arg(long, default_value_t = 100)]
+    #[arg(long, default_value_t = SensitivityRequest::default().burn)]
     pub burn: usize,
     /// Independent ensembles per prior (the convergence rule compares them; at least 2).
-    #[arg(long, default_value_t = 4)]
+    #[arg(long, default_value_t = SensitivityRequest::default().ensembles)]
     pub ensembles: usize,
     /// Run exactly --burn + --steps steps instead of extending each run until converged.
     #[arg(long)]
     pub fixed_length: bool,
     /// Most log-density evaluations per prior.
-    #[arg(long, default_value_t = 4_000_000)]
+    #[arg(long, default_value_t = SensitivityRequest::default().max_evaluations)]
     pub max_evaluations: u64,
     /// Stop each prior's run after this many seconds and report it as it stands (the verdict
     /// then says whether it converged).
@@ -60,7 +60,7 @@ pub struct Args {
     #[arg(long)]
     pub quiet: bool,
     /// Seed of the sampler (the same for every prior).
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = SensitivityRequest::default().seed)]
     pub seed: u64,
     /// Write posterior-e.svg, and corner-N.svg and traces-N.svg per prior, into this directory.
     #[arg(long, value_name = "DIR")]
@@ -76,13 +76,13 @@ pub struct Args {
     #[arg(long, value_name = "N")]
     pub companion: Option<usize>,
     /// Period prior, log-uniform on [MIN, MAX] days.
-    #[arg(long, num_args = 2, value_names = ["MIN", "MAX"], default_values_t = [1.0, 1.0e4])]
+    #[arg(long, num_args = 2, value_names = ["MIN", "MAX"], default_values_t = SensitivityRequest::default().period_range)]
     pub period_range: Vec<f64>,
     /// Largest K [m/s] of its modified Jeffreys prior (knee 1 m/s).
-    #[arg(long, default_value_t = 2.0e5)]
+    #[arg(long, default_value_t = SensitivityRequest::default().k_max)]
     pub k_max: f64,
     /// Largest jitter [m/s] of its modified Jeffreys prior (knee 1 m/s).
-    #[arg(long, default_value_t = 1.0e3)]
+    #[arg(long, default_value_t = SensitivityRequest::default().jitter_max)]
     pub jitter_max: f64,
     #[command(flatten)]
     pub table: TableArgs,

@@ -40,3 +40,63 @@ fn help_and_version_still_print_normally() {
         .unwrap()
         .starts_with("eccaudit 0."));
 }
+
+/// The defaults printed by `--help` are the core's (issue 12: flags default from the core's
+/// `Default`, not from restated literals).
+#[test]
+fn help_defaults_come_from_the_core() {
+    use eccaudit_core::inject::LeastSquaresSettings;
+    use eccaudit_core::population::PopulationSettings;
+    use eccaudit_core::posterior::SensitivityRequest;
+    let help = |command: &str| {
+        let output = eccaudit().args([command, "--help"]).output().unwrap();
+        assert!(output.status.success());
+        String::from_utf8(output.stdout).unwrap()
+    };
+    let has = |text: &str, flag: &str, value: String| {
+        // The flag's entry: its line and the description lines up to the next flag.
+        let lines: Vec<&str> = text.lines().collect();
+        let start = lines
+            .iter()
+            .position(|l| l.trim_start().starts_with(&format!("{flag} ")))
+            .unwrap_or_else(|| panic!("{flag} not in help"));
+        let line = lines[start + 1..]
+            .iter()
+            .take_while(|l| !l.trim_start().starts_with('-'))
+            .copied()
+            .collect::<Vec<_>>()
+            .join(" ");
+        assert!(
+            line.contains(&format!("[default: {value}]")),
+            "{flag}: expected default {value} in {line}"
+        );
+    };
+    let request = SensitivityRequest::default();
+    let priors = help("priors");
+    has(&priors, "--walkers", request.walkers.to_string());
+    has(&priors, "--steps", request.steps.to_string());
+    has(&priors, "--burn", request.burn.to_string());
+    has(&priors, "--ensembles", request.ensembles.to_string());
+    has(
+        &priors,
+        "--max-evaluations",
+        request.max_evaluations.to_string(),
+    );
+    let lsq = LeastSquaresSettings::default();
+    let inject = help("inject");
+    let starts: Vec<String> = lsq
+        .start_eccentricities
+        .iter()
+        .map(f64::to_string)
+        .collect();
+    has(&inject, "--start-e", starts.join(" "));
+    has(&inject, "--omega-starts", lsq.n_omega_starts.to_string());
+    let population = PopulationSettings::default();
+    let text = help("population");
+    has(&text, "--bins", population.bins.to_string());
+    has(
+        &text,
+        "--draws-per-star",
+        population.max_draws_per_star.to_string(),
+    );
+}

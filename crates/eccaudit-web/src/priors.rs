@@ -176,6 +176,13 @@ pub fn default_prior_specs() -> Vec<String> {
     DEFAULT_PRIOR_SPECS.iter().map(|s| s.to_string()).collect()
 }
 
+/// The default request of the priors form (the core's [`SensitivityRequest::default`]: walkers,
+/// steps, burn-in, seed, …) as JSON, so the page's controls default from the core.
+#[wasm_bindgen(js_name = defaultPriorsRequest)]
+pub fn default_priors_request() -> String {
+    serde_json::to_string(&SensitivityRequest::default()).expect("the request serialises")
+}
+
 /// A prior-sensitivity set being collected on the page: its settings, the runs received so
 /// far, and (once complete) the report.
 #[wasm_bindgen]
