@@ -37,6 +37,15 @@ pub struct Args {
     /// e prior, no jitter) on this velocity table, and print them (see scripts/bench-emcee.sh).
     #[arg(long, value_name = "FILE")]
     ess: Option<std::path::PathBuf>,
+    /// With --ess: walkers per ensemble instead of the default run's.
+    #[arg(long, requires = "ess")]
+    ess_walkers: Option<usize>,
+    /// With --ess: steps before the first convergence check instead of the default run's.
+    #[arg(long, requires = "ess")]
+    ess_steps: Option<usize>,
+    /// With --ess: burn-in steps instead of the default run's.
+    #[arg(long, requires = "ess")]
+    ess_burn: Option<usize>,
 }
 
 fn median(mut values: Vec<f64>) -> f64 {
@@ -79,7 +88,12 @@ pub fn run(args: Args) -> anyhow::Result<()> {
             },
         )?;
         let data = FitData::from_table(&table);
-        let rate = super::bench_posterior::ess_rate(&data, args.repeats.min(3))?;
+        let shape = super::bench_posterior::RunShape {
+            walkers: args.ess_walkers,
+            steps: args.ess_steps,
+            burn: args.ess_burn,
+        };
+        let rate = super::bench_posterior::ess_rate(&data, args.repeats.min(3), shape)?;
         if args.json {
             println!("{}", serde_json::to_string(&rate)?);
         } else {

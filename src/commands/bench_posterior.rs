@@ -178,15 +178,30 @@ pub struct EssRate {
     pub converged: bool,
 }
 
+/// Departures from the default run's shape (None = the default).
+#[derive(Debug, Clone, Copy, Default)]
+pub struct RunShape {
+    /// Walkers per ensemble.
+    pub walkers: Option<usize>,
+    /// Steps before the first convergence check.
+    pub steps: Option<usize>,
+    /// Burn-in steps.
+    pub burn: Option<usize>,
+}
+
 /// One default `priors` run (uniform e on [0, 0.99], no jitter, defaults otherwise) on `data`:
 /// ESS of e = stored draws / τ_e, with τ_e by the same estimator emcee's `integrated_time` uses
 /// (walker-averaged autocorrelation, Sokal window c = 5; Foreman-Mackey et al. 2013), divided
 /// by the time of the whole run (wall and this thread's CPU time). Median of `repeats` runs
 /// (seeds 1, 2, …) by the rate per CPU second.
-pub fn ess_rate(data: &FitData, repeats: usize) -> anyhow::Result<EssRate> {
+pub fn ess_rate(data: &FitData, repeats: usize, shape: RunShape) -> anyhow::Result<EssRate> {
     let mut results = Vec::new();
+    let defaults = SensitivityRequest::default();
     for r in 0..repeats.max(1) {
         let settings = SensitivityRequest {
+            walkers: shape.walkers.unwrap_or(defaults.walkers),
+            steps: shape.steps.unwrap_or(defaults.steps),
+            burn: shape.burn.unwrap_or(defaults.burn),
             priors: vec!["uniform".into()],
             model: eccaudit_core::spec::ModelSpec {
                 jitter: eccaudit_core::spec::JitterMode::Off,

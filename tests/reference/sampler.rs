@@ -34,10 +34,10 @@ fn mean_and_standard_error(chains: &Chains, f: impl Fn(&[f64]) -> f64) -> (f64, 
     (mean, (var / ess).sqrt(), ess)
 }
 
-/// Four independent ensembles (mixed stretch and differential-evolution moves, the default
-/// `de_fraction`) from Gaussian balls around `start` (ensemble m with m + 1 times `scales`),
-/// run until the ensemble rule holds (budget 2·10⁷ evaluations); returns the merged chains after
-/// asserting convergence.
+/// Four independent ensembles (mixed stretch, differential-evolution and ensemble Gaussian
+/// moves, the default `de_fraction` and `gaussian_fraction`) from Gaussian balls around `start`
+/// (ensemble m with m + 1 times `scales`), run until the ensemble rule holds (budget 2·10⁷
+/// evaluations); returns the merged chains after asserting convergence.
 fn run_converged(
     target: &impl LogDensity,
     start: &[f64],
@@ -94,7 +94,7 @@ fn run(
 
 /// A correlated 4-D Gaussian x = μ + L z (L lower triangular, z standard
 /// normal), so Σ = L Lᵀ; log p = −½ |L⁻¹(x − μ)|² (common practice), sampled
-/// with the mixed stretch + differential-evolution moves by four ensembles run
+/// with the mixed stretch + differential-evolution + Gaussian moves by four ensembles run
 /// until converged. Means, variances and covariances within 4 Monte-Carlo
 /// standard errors (ESS of each quantity's own traces).
 #[test]

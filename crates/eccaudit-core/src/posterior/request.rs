@@ -21,12 +21,13 @@ pub struct SensitivityRequest {
     /// Eccentricity priors as text specs (see [`parse_prior_spec`]); empty means
     /// [`default_prior_set`].
     pub priors: Vec<String>,
-    /// Walkers per ensemble (default 16; raised to 2·dim + 2 when the model needs more).
+    /// Walkers per ensemble (default 64, so that each half of an ensemble fits the Gaussian of
+    /// the ensemble Gaussian move well; raised to 2·dim + 2 when the model needs more).
     pub walkers: usize,
-    /// Steps after burn-in before the first convergence check (default 1000); with
+    /// Steps after burn-in before the first convergence check (default 300); with
     /// `until_converged` the run then extends itself.
     pub steps: usize,
-    /// Burn-in steps (default 200; walkers stranded far below the others at its end are moved).
+    /// Burn-in steps (default 100; walkers stranded far below the others at its end are moved).
     pub burn: usize,
     /// Independent ensembles (default 4; the convergence rule needs at least 2).
     pub ensembles: usize,
@@ -54,9 +55,9 @@ impl Default for SensitivityRequest {
     fn default() -> Self {
         Self {
             priors: Vec::new(),
-            walkers: 16,
-            steps: 1000,
-            burn: 200,
+            walkers: 64,
+            steps: 300,
+            burn: 100,
             ensembles: 4,
             until_converged: true,
             max_evaluations: RunLength::default().max_evaluations,
@@ -145,9 +146,9 @@ mod tests {
     fn empty_request_gives_the_default_set_and_sampler() {
         let settings = SensitivityRequest::default().to_settings().unwrap();
         assert_eq!(settings.priors, default_prior_set());
-        assert_eq!(settings.sampler.n_walkers, 16);
-        assert_eq!(settings.sampler.n_steps, 1000);
-        assert_eq!(settings.sampler.n_burn, 200);
+        assert_eq!(settings.sampler.n_walkers, 64);
+        assert_eq!(settings.sampler.n_steps, 300);
+        assert_eq!(settings.sampler.n_burn, 100);
         assert_eq!(settings.length.n_ensembles, 4);
         assert!(settings.length.until_converged);
         assert!(settings.posterior.jitter);

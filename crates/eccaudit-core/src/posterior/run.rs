@@ -394,7 +394,7 @@ pub struct SensitivityReport {
 /// The methods behind each figure, for reports.
 pub fn method_notes() -> Vec<String> {
     vec![
-        "Sampling: independent affine-invariant ensembles (stretch and differential-evolution moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose peak density is at least a fifth of the best's; one optimum per ensemble in turn), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
+        "Sampling: independent affine-invariant ensembles (stretch, differential-evolution and ensemble Gaussian moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose peak density is at least a fifth of the best's; one optimum per ensemble in turn), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
         "Median, mean, intervals: sample quantiles (type 7); HDI = shortest interval of the samples. Mode: maximum of a Gaussian KDE reflected at the prior's bounds, Silverman bandwidth.".into(),
         "P(e < 0.05): fraction of samples; error √(p(1−p)/ESS_tail).".into(),
         "Information gain: KL(posterior ‖ prior) of e in nats on 50 equal bins over the prior's support, Miller–Madow bias (m−1)/(2 ESS) removed; binning makes it a lower bound.".into(),
@@ -624,8 +624,8 @@ impl fmt::Display for SensitivityReport {
         )?;
         writeln!(
             f,
-            "Sampler: {} independent ensembles of {} walkers (stretch + differential-evolution \
-             moves; offsets{} integrated out), {} burn-in steps, {}, seed {}",
+            "Sampler: {} independent ensembles of {} walkers (stretch, differential-evolution \
+             and ensemble Gaussian moves; offsets{} integrated out), {} burn-in steps, {}, seed {}",
             self.length.n_ensembles,
             self.runs
                 .first()

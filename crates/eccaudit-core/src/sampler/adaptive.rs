@@ -354,6 +354,7 @@ mod tests {
             n_burn: 100,
             stretch_a: 1.2,
             de_fraction: 0.0,
+            gaussian_fraction: 0.0,
             seed: 3,
             ..SamplerSettings::default()
         };
