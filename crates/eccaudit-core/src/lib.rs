@@ -27,8 +27,11 @@ pub mod spec;
 pub mod stats;
 pub mod survey;
 pub mod table;
-#[cfg(test)]
-mod test_support;
+/// Simulated tables for the workspace's own tests (the unit tests, and the integration tests
+/// through the `test-support` feature, enabled only from the CLI package's dev-dependencies).
+#[cfg(any(test, feature = "test-support"))]
+#[doc(hidden)]
+pub mod test_support;
 
 /// Text from an input (a table cell, a file name, a settings value) as an error message shows
 /// it: control characters (a newline inside a quoted field, a CR, a NUL) escaped as `\n`,

@@ -1,5 +1,6 @@
-//! Simulated tables shared by the core's unit tests (compiled for tests only): one generator
-//! each, so tests of different modules that need the same realistic table do not keep copies.
+//! Simulated tables shared by the workspace's tests (compiled for the core's unit tests, and
+//! with the `test-support` feature for the integration tests): one generator each, so tests
+//! that need the same realistic table do not keep copies. Not part of the public interface.
 
 use crate::fit::FitData;
 use crate::orbit::OrbitalElements;
@@ -10,7 +11,7 @@ use rand::RngExt;
 /// e = 0.3), a trend of 0.05 m/s/d, and two instruments (offsets −20 and +35 m/s, σ = 1.5
 /// and 2.5 m/s) over 300 d, 60 epochs; the noise is √(σ² + `jitter`²), seeded. With
 /// `jitter` = 0 the noise is σ itself (the square root of σ² is exact for these σ).
-pub(crate) fn two_companion_table(jitter: f64, seed: u64) -> String {
+pub fn two_companion_table(jitter: f64, seed: u64) -> String {
     let b = OrbitalElements::new(9.7, 25.0, 0.1, 0.8, 2_460_002.0).unwrap();
     let c = OrbitalElements::new(61.0, 12.0, 0.3, 2.5, 2_460_030.0).unwrap();
     let mut rng = stream_rng(seed, 0);
@@ -35,7 +36,7 @@ pub(crate) fn two_companion_table(jitter: f64, seed: u64) -> String {
 
 /// One instrument observing `orbit` at `times` (sorted here) with Gaussian noise σ = `sigma`
 /// drawn from `rng` after the times, in time order.
-pub(crate) fn one_instrument_data(
+pub fn one_instrument_data(
     orbit: &OrbitalElements,
     mut times: Vec<f64>,
     sigma: f64,
