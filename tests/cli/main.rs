@@ -7,6 +7,10 @@
 #[allow(dead_code)]
 mod survey_tables;
 
+/// The malformed-table fixtures, listed once for both test binaries.
+#[path = "../shared/malformed_tables.rs"]
+mod malformed_tables;
+
 /// What the test modules share: the command under test, temporary tables, simulated tables.
 mod support;
 

@@ -1,5 +1,6 @@
 //! `eccaudit table FILE`: summary as text and JSON, one-line errors with file:line:column and a non-zero exit.
 
+use crate::malformed_tables::{malformed_tables, MALFORMED};
 use crate::support::eccaudit;
 use predicates::prelude::*;
 use std::io::Write;
@@ -87,27 +88,14 @@ fn missing_unit_is_one_readable_line() {
 /// `malformed/expected/NAME.message` (the reader's own, checked in the reference tests).
 #[test]
 fn every_malformed_fixture_fails_with_its_one_line_message() {
-    let dir = format!("{DATA}/malformed");
-    let mut names: Vec<String> = std::fs::read_dir(&dir)
-        .unwrap()
-        .map(|entry| entry.unwrap().path())
-        .filter(|path| path.is_file())
-        .map(|path| path.file_name().unwrap().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    assert!(names.len() >= 12, "{names:?}");
-    for name in names {
-        let expected = std::fs::read_to_string(format!("{dir}/expected/{name}.message")).unwrap();
+    for (name, expected) in malformed_tables() {
         eccaudit()
-            .current_dir(&dir)
+            .current_dir(MALFORMED)
             .args(["table", &name])
             .assert()
             .failure()
             .stdout(predicate::str::is_empty())
-            .stderr(predicate::eq(format!(
-                "eccaudit: error: {}\n",
-                expected.trim_end_matches('\n')
-            )));
+            .stderr(predicate::eq(format!("eccaudit: error: {expected}\n")));
     }
 }
 

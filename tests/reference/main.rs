@@ -2,6 +2,10 @@
 //! check): one binary, one module per subject. Add a test file as `tests/reference/NAME.rs`
 //! (starting with its `//!` line) and declare it here.
 
+/// The malformed-table fixtures, listed once for both test binaries.
+#[path = "../shared/malformed_tables.rs"]
+mod malformed_tables;
+
 mod convergence;
 mod fit;
 mod inject;

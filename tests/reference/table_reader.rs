@@ -2,6 +2,7 @@
 //! malformed inputs rejected with file, line and column (one loop over the fixtures of
 //! `malformed/` and their `expected/NAME.message` files, plus typed checks and inline cases).
 
+use crate::malformed_tables::{malformed_tables, MALFORMED};
 use approx::assert_relative_eq;
 use eccaudit_core::table::{
     parse_table, Delimiter, ReadOptions, StatedBy, TableError, TimeScale, TimeSpec, VelocityTable,
@@ -207,9 +208,6 @@ fn explicit_delimiter_and_trailing_commas() {
 // Malformed inputs: message text and position
 // ----------------------------------------------------------------------------
 
-/// The malformed fixtures; each `NAME` has its one-line message in `expected/NAME.message`.
-const MALFORMED: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/tables/malformed");
-
 /// The error of reading malformed fixture `name` (its message is checked by
 /// [`every_malformed_fixture_gives_its_expected_message`]).
 fn malformed(name: &str) -> TableError {
@@ -224,19 +222,9 @@ fn malformed(name: &str) -> TableError {
 /// the `# ` prefix); in `bad_xml.vot`, `<TD>-1426.64</TR>` on line 22 does not match.
 #[test]
 fn every_malformed_fixture_gives_its_expected_message() {
-    let mut names: Vec<String> = std::fs::read_dir(MALFORMED)
-        .unwrap()
-        .map(|entry| entry.unwrap().path())
-        .filter(|path| path.is_file())
-        .map(|path| path.file_name().unwrap().to_string_lossy().into_owned())
-        .collect();
-    names.sort();
-    assert!(names.len() >= 12, "{names:?}");
-    for name in names {
-        let expected = std::fs::read_to_string(format!("{MALFORMED}/expected/{name}.message"))
-            .unwrap_or_else(|_| panic!("{name} has no expected/{name}.message"));
+    for (name, expected) in malformed_tables() {
         let message = malformed(&name).to_string();
-        assert_eq!(message, expected.trim_end_matches('\n'), "{name}");
+        assert_eq!(message, expected, "{name}");
         assert!(!message.contains('\n'), "{name}: one line");
     }
 }
