@@ -274,21 +274,21 @@ fn assert_certified(data: &NistDataset, report: &LsqReport, label: &str) {
     }
 }
 
+/// Fits NIST dataset `name` with `model`'s analytic Jacobian from both certified starts and
+/// checks each fit against the certified values.
+fn assert_certified_from_both_starts(name: &'static str, model: ModelFn) {
+    let data = dataset(name);
+    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
+        let report = fit(&data, model, start, true, FiniteDifference::Central);
+        assert_certified(&data, &report, label);
+    }
+}
+
 // NIST StRD Misra1a (lower difficulty; Misra 1978). Certified b1 = 2.3894212918E+02,
 // b2 = 5.5015643181E-04, RSS = 1.2455138894E-01 (read from Misra1a.dat).
 #[test]
 fn misra1a_start_1_and_2() {
-    let data = dataset("Misra1a");
-    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
-        let report = fit(
-            &data,
-            exponential_rise,
-            start,
-            true,
-            FiniteDifference::Central,
-        );
-        assert_certified(&data, &report, label);
-    }
+    assert_certified_from_both_starts("Misra1a", exponential_rise);
 }
 
 // Same, with a finite-difference Jacobian (forward and central).
@@ -306,59 +306,33 @@ fn misra1a_finite_difference_jacobian() {
 // 4.9727297349E-02, RSS = 5.6427082397E+03 (read from Thurber.dat).
 #[test]
 fn thurber_start_1_and_2() {
-    let data = dataset("Thurber");
-    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
-        let report = fit(&data, thurber, start, true, FiniteDifference::Central);
-        assert_certified(&data, &report, label);
-    }
+    assert_certified_from_both_starts("Thurber", thurber);
 }
 
 // NIST StRD MGH10 (higher difficulty; Meyer 1970). Certified b1 = 5.6096364710E-03,
 // b2 = 6.1813463463E+03, b3 = 3.4522363462E+02, RSS = 8.7945855171E+01.
 #[test]
 fn mgh10_start_1_and_2() {
-    let data = dataset("MGH10");
-    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
-        let report = fit(&data, meyer, start, true, FiniteDifference::Central);
-        assert_certified(&data, &report, label);
-    }
+    assert_certified_from_both_starts("MGH10", meyer);
 }
 
 // NIST StRD BoxBOD (higher difficulty; Box, Hunter & Hunter 1978, pp. 483-487).
 // Certified b1 = 2.1380940889E+02, b2 = 5.4723748542E-01, RSS = 1.1680088766E+03.
 #[test]
 fn boxbod_start_1_and_2() {
-    let data = dataset("BoxBOD");
-    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
-        let report = fit(
-            &data,
-            exponential_rise,
-            start,
-            true,
-            FiniteDifference::Central,
-        );
-        assert_certified(&data, &report, label);
-    }
+    assert_certified_from_both_starts("BoxBOD", exponential_rise);
 }
 
 // NIST StRD Rat43 (higher difficulty; Ratkowsky 1983, pp. 62 and 88). Certified
 // b1 = 6.9964151270E+02 … b4 = 1.2792483859E+00, RSS = 8.7864049080E+03.
 #[test]
 fn rat43_start_1_and_2() {
-    let data = dataset("Rat43");
-    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
-        let report = fit(&data, rat43, start, true, FiniteDifference::Central);
-        assert_certified(&data, &report, label);
-    }
+    assert_certified_from_both_starts("Rat43", rat43);
 }
 
 // NIST StRD Eckerle4 (higher difficulty). Certified b1 = 1.5543827178E+00,
 // b2 = 4.0888321754E+00, b3 = 4.5154121844E+02, RSS = 1.4635887487E-03.
 #[test]
 fn eckerle4_start_1_and_2() {
-    let data = dataset("Eckerle4");
-    for (label, start) in [("start 1", &data.start_1), ("start 2", &data.start_2)] {
-        let report = fit(&data, eckerle4, start, true, FiniteDifference::Central);
-        assert_certified(&data, &report, label);
-    }
+    assert_certified_from_both_starts("Eckerle4", eckerle4);
 }
