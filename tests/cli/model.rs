@@ -48,24 +48,49 @@ fn json_file(path: &std::path::Path) -> serde_json::Value {
     serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
 }
 
+/// A short least-squares-only audit, `eccaudit audit PATH OPTIONS… --e E --trials N
+/// --no-posterior --quiet --out OUT`, that must succeed: its stdout and stderr.
+fn quick_audit(
+    path: &str,
+    options: &[&str],
+    e: &str,
+    trials: &str,
+    out: &std::path::Path,
+) -> (String, String) {
+    let mut args = vec!["audit", path];
+    args.extend_from_slice(options);
+    args.extend([
+        "--e",
+        e,
+        "--trials",
+        trials,
+        "--no-posterior",
+        "--quiet",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    run_ok(&args)
+}
+
+/// A short `priors` run of the uniform prior (these tests check the command, not convergence).
+const SHORT_UNIFORM_PRIOR: [&str; 8] = [
+    "--priors",
+    "uniform",
+    "--walkers",
+    "16",
+    "--steps",
+    "60",
+    "--burn",
+    "20",
+];
+
 #[test]
 fn a_marginal_detection_is_audited_and_said_first() {
     let table = marginal_table();
     let path = table.path().to_str().unwrap();
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("audit");
-    let (stdout, stderr) = run_ok(&[
-        "audit",
-        path,
-        "--e",
-        "0,0.3",
-        "--trials",
-        "4",
-        "--no-posterior",
-        "--quiet",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    let (stdout, stderr) = quick_audit(path, &[], "0,0.3", "4", &out);
     assert!(
         stdout
             .lines()
@@ -89,20 +114,7 @@ fn a_marginal_detection_is_audited_and_said_first() {
     assert_eq!(context["detection"]["fap_limit"], 0.01);
     // Raising the limit removes the note.
     let out2 = dir.path().join("audit2");
-    let (stdout, _) = run_ok(&[
-        "audit",
-        path,
-        "--e",
-        "0",
-        "--trials",
-        "2",
-        "--no-posterior",
-        "--quiet",
-        "--max-fap",
-        "0.05",
-        "--out",
-        out2.to_str().unwrap(),
-    ]);
+    let (stdout, _) = quick_audit(path, &["--max-fap", "0.05"], "0", "2", &out2);
     assert!(!stdout.contains("marginal detection"), "{stdout}");
 }
 
@@ -110,36 +122,13 @@ fn a_marginal_detection_is_audited_and_said_first() {
 fn a_marginal_detection_goes_through_priors() {
     let table = marginal_table();
     let path = table.path().to_str().unwrap();
-    let (stdout, _) = run_ok(&[
-        "priors",
-        path,
-        "--priors",
-        "uniform",
-        "--walkers",
-        "16",
-        "--steps",
-        "60",
-        "--burn",
-        "20",
-    ]);
+    let (stdout, _) = run_ok(&[&["priors", path][..], &SHORT_UNIFORM_PRIOR].concat());
     assert!(
         stdout.starts_with("NOTE: marginal detection: companion 1"),
         "{stdout}"
     );
     assert!(stdout.contains("Least-squares chi2 ="), "{stdout}");
-    let (json, _) = run_ok(&[
-        "priors",
-        path,
-        "--priors",
-        "uniform",
-        "--walkers",
-        "16",
-        "--steps",
-        "60",
-        "--burn",
-        "20",
-        "--json",
-    ]);
+    let (json, _) = run_ok(&[&["priors", path][..], &SHORT_UNIFORM_PRIOR, &["--json"]].concat());
     let report: serde_json::Value = serde_json::from_str(&json).unwrap();
     assert_eq!(report["model_check"]["detections"][0]["marginal"], true);
     assert!(report["model_check"]["goodness"]["p_value"]
@@ -180,38 +169,14 @@ fn excess_scatter_is_never_silent() {
     // The audit fits and simulates the jitter by default...
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("a");
-    run_ok(&[
-        "audit",
-        path,
-        "--e",
-        "0,0.2",
-        "--trials",
-        "3",
-        "--no-posterior",
-        "--quiet",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    quick_audit(path, &[], "0,0.2", "3", &out);
     let context = json_file(&out.join("context.json"));
     assert_eq!(context["jitter_fitted"], true);
     assert!(context["instruments"][0]["jitter"].as_f64().unwrap() > 2.0);
     assert!(context["scatter_warning"].is_null());
     // ...and with --jitter off the statement input records the warning.
     let out = dir.path().join("b");
-    run_ok(&[
-        "audit",
-        path,
-        "--e",
-        "0",
-        "--trials",
-        "2",
-        "--no-posterior",
-        "--quiet",
-        "--jitter",
-        "off",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    quick_audit(path, &["--jitter", "off"], "0", "2", &out);
     let context = json_file(&out.join("context.json"));
     assert_eq!(context["jitter_fitted"], false);
     assert!(context["scatter_warning"]
@@ -226,21 +191,7 @@ fn two_companions_are_audited_one_by_one() {
     let path = table.path().to_str().unwrap();
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("two");
-    let (stdout, _) = run_ok(&[
-        "audit",
-        path,
-        "--companions",
-        "2",
-        "--trend",
-        "--e",
-        "0,0.3",
-        "--trials",
-        "3",
-        "--no-posterior",
-        "--quiet",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    let (stdout, _) = quick_audit(path, &["--companions", "2", "--trend"], "0,0.3", "3", &out);
     assert!(stdout.contains("Companion 1 of 2"), "{stdout}");
     assert!(stdout.contains("Companion 2 of 2"), "{stdout}");
     let (json, _) = run_ok(&["fit", path, "--companions", "2", "--trend", "--json"]);
@@ -278,23 +229,13 @@ fn two_companions_are_audited_one_by_one() {
     }
     // One companion chosen: outputs directly in DIR.
     let one = dir.path().join("one");
-    run_ok(&[
-        "audit",
+    quick_audit(
         path,
-        "--companions",
-        "2",
-        "--trend",
-        "--companion",
-        "2",
-        "--e",
+        &["--companions", "2", "--trend", "--companion", "2"],
         "0",
-        "--trials",
         "2",
-        "--no-posterior",
-        "--quiet",
-        "--out",
-        one.to_str().unwrap(),
-    ]);
+        &one,
+    );
     assert_eq!(json_file(&one.join("context.json"))["companion"], 2);
     let bad = eccaudit()
         .args([
