@@ -376,6 +376,19 @@ fn quick_diagnosis_on_known_processes() {
     assert!(d.r_hat.tail > 1.1 && d.r_hat.tail > d.r_hat.bulk, "{d:?}");
 }
 
+/// Two equal Gaussian modes centred at (±20, 0), each of variance `variance` in both
+/// coordinates, added in log-sum-exp form.
+fn two_modes(variance: f64) -> DensityFn<impl Fn(&[f64]) -> f64> {
+    DensityFn {
+        dim: 2,
+        log_density: move |x: &[f64]| {
+            let a = -0.5 * ((x[0] - 20.0).powi(2) + x[1] * x[1]) / variance;
+            let b = -0.5 * ((x[0] + 20.0).powi(2) + x[1] * x[1]) / variance;
+            a.max(b) + (1.0 + (a.min(b) - a.max(b)).exp()).ln()
+        },
+    }
+}
+
 /// The verdict says "NOT converged" with advice when the run is cut too short, when
 /// independent ensembles sit in separate modes, and when only one ensemble was run.
 #[test]
@@ -407,14 +420,7 @@ fn verdict_names_the_problem_and_the_fix() {
     assert!(d.verdict().contains("run at least"), "{}", d.verdict());
 
     // Two well-separated modes: walkers started in each stay there.
-    let bimodal = DensityFn {
-        dim: 2,
-        log_density: |x: &[f64]| {
-            let a = -0.5 * ((x[0] - 20.0).powi(2) + x[1] * x[1]) / 0.01;
-            let b = -0.5 * ((x[0] + 20.0).powi(2) + x[1] * x[1]) / 0.01;
-            a.max(b) + (1.0 + (a.min(b) - a.max(b)).exp()).ln()
-        },
-    };
+    let bimodal = two_modes(0.01);
     // An ensemble started at +20 and another at −20 never meet: the between-ensemble
     // R̂ catches it.
     let settings = SamplerSettings {
@@ -447,14 +453,7 @@ fn verdict_names_the_problem_and_the_fix() {
 /// A unimodal Gaussian from the same kind of start converges well inside the same budget.
 #[test]
 fn run_until_converged_refuses_a_bimodal_target_and_accepts_a_gaussian() {
-    let bimodal = DensityFn {
-        dim: 2,
-        log_density: |x: &[f64]| {
-            let a = -0.5 * ((x[0] - 20.0).powi(2) + x[1] * x[1]) / 0.25;
-            let b = -0.5 * ((x[0] + 20.0).powi(2) + x[1] * x[1]) / 0.25;
-            a.max(b) + (1.0 + (a.min(b) - a.max(b)).exp()).ln()
-        },
-    };
+    let bimodal = two_modes(0.25);
     let settings = SamplerSettings {
         n_walkers: 8,
         n_steps: 500,
