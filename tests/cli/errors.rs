@@ -66,29 +66,10 @@ fn a_closed_pipe_does_not_hide_a_real_error() {
 fn each_error_says_its_message_once() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("grid");
-    let output = eccaudit()
-        .args([
-            "inject",
-            "--epochs",
-            "30",
-            "--baseline",
-            "365",
-            "--uncertainty",
-            "3",
-            "--period",
-            "23.7",
-            "--k",
-            "15",
-            "--no-posterior",
-            "--trials",
-            "0",
-            "--out",
-        ])
-        .arg(&out)
-        .output()
-        .unwrap();
-    assert_eq!(output.status.code(), Some(1));
-    let stderr = String::from_utf8(output.stderr).unwrap();
+    let mut args = schedule_inject(out.to_str().unwrap());
+    args.extend(["--epochs", "30", "--trials", "0"]);
+    let (code, stderr) = run(&args);
+    assert_eq!(code, Some(1));
     assert_eq!(stderr.lines().count(), 1, "{stderr}");
     assert!(stderr.contains("trials per cell = 0"), "{stderr}");
     assert_eq!(
@@ -96,6 +77,25 @@ fn each_error_says_its_message_once() {
         1,
         "said more than once: {stderr}"
     );
+}
+
+/// `eccaudit inject` on a schedule (365 d, σ = 3 m/s, P = 23.7 d, K = 15 m/s, least squares
+/// only) writing into `out`: the options each error test adds its own to.
+fn schedule_inject(out: &str) -> Vec<&str> {
+    vec![
+        "inject",
+        "--baseline",
+        "365",
+        "--uncertainty",
+        "3",
+        "--period",
+        "23.7",
+        "--k",
+        "15",
+        "--no-posterior",
+        "--out",
+        out,
+    ]
 }
 
 /// Runs eccaudit and returns its exit code and standard error.
@@ -112,20 +112,7 @@ fn counts_beyond_the_limits_get_one_line_not_an_allocation_failure() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("grid");
     let out = out.to_str().unwrap();
-    let schedule = [
-        "inject",
-        "--baseline",
-        "365",
-        "--uncertainty",
-        "3",
-        "--period",
-        "23.7",
-        "--k",
-        "15",
-        "--no-posterior",
-        "--out",
-        out,
-    ];
+    let schedule = schedule_inject(out);
     let cases: [(&[&str], &str); 5] = [
         (
             &["--epochs", "30", "--trials", "100000000000"],
