@@ -5,12 +5,13 @@
 // Messages out: { type: "working", id } once the table is read and the fit starts (the core's fit
 //               reports no finer progress), then { type: "result", id, transfer } (what
 //               Dataset.fitForTransfer returns, for the page's Dataset.adoptFit) or
-//               { type: "error", id, message } (one line; "internal error: …" after a panic, after
-//               which the page starts a fresh worker). The page cancels by terminating the worker.
+//               { type: "error", id, message, fatal } (one line; fatal after a panic,
+//               "internal error: …", or when the module did not load: the page then starts a fresh
+//               worker). The page cancels by terminating the worker.
 import init, { Dataset } from "./pkg/eccaudit_web.js";
+import { messageOf } from "./dom.js";
 
 const ready = init();
-const messageOf = (err) => (err instanceof Error ? err.message : String(err));
 // One line, whatever the message: the page shows errors in one line.
 const oneLine = (text) => text.split(/\s*\n\s*/).filter((s) => s !== "").join(" ");
 
@@ -40,6 +41,12 @@ self.addEventListener("message", async (event) => {
   currentId = id;
   try {
     await ready;
+  } catch (err) {
+    // A worker whose module did not load cannot fit: the page starts a fresh one next time.
+    postMessage({ type: "error", id, message: oneLine(`the fit worker could not load eccaudit: ${messageOf(err)}`), fatal: true });
+    return;
+  }
+  try {
     const dataset = datasetFor(table);
     postMessage({ type: "working", id });
     const transfer = dataset.fitForTransfer(settings);

@@ -102,6 +102,16 @@ async function startFit() {
   assert.equal(await page.isEnabled("#fit-cancel"), true, "Cancel is offered while a fit runs");
 }
 
+/** Click `selector` in the same task as a check that a fit is still running (so a fit that
+ *  ends meanwhile cannot make the click mean something else); true when it was running. */
+function clickWhileFitting(selector) {
+  return app.page.evaluate((sel) => {
+    const running = document.getElementById("fit-button").getAttribute("aria-busy") === "true";
+    document.querySelector(sel).click();
+    return running;
+  }, selector);
+}
+
 /** What the page shows of its fit: elements, status, both figures' pixels, the JSON it exports. */
 function shownFit() {
   return app.page.evaluate(() => ({
@@ -208,7 +218,7 @@ test("Cancel stops a running fit; the previous fit and its figures stay, and the
   const exportedBefore = await exportedFitJson("before-cancel.json");
   const attempts = await attemptsNow();
   await startFit();
-  await page.click("#fit-cancel");
+  assert.equal(await clickWhileFitting("#fit-cancel"), true, "the fit was running when Cancel was pressed");
   await page.waitForFunction((n) => Number(document.body.dataset.fitAttempts) > n, attempts);
   assert.equal(await page.evaluate(() => document.body.dataset.fitOutcome), "cancelled");
   const line = await page.textContent("#fit-progress");
@@ -240,17 +250,27 @@ test("a new fit request while one runs replaces it: only the new one is shown", 
   await setForm(HEAVY_FORM);
   const attempts = await attemptsNow();
   await startFit();
-  // Ask for a lighter model while the heavy fit runs: the heavy one ends (cancelled), the
-  // light one runs and is shown.
-  await setForm({ companions: "2", trend: true });
-  assert.equal(await pressFitAndWait(2), "done", await page.textContent("#fit-error"));
+  // Ask for a lighter model while the heavy fit runs (the form is read when Fit is pressed):
+  // the heavy one ends (cancelled), the light one runs and is shown.
+  const running = await page.evaluate(() => {
+    const running = document.getElementById("fit-button").getAttribute("aria-busy") === "true";
+    const form = document.getElementById("fit-settings");
+    form.elements.companions.value = "2";
+    form.elements.minPeriod.value = "";
+    document.getElementById("fit-button").click();
+    return running;
+  });
+  assert.equal(running, true, "the heavy fit was running when Fit was pressed again");
+  await page.waitForFunction((n) => Number(document.body.dataset.fitAttempts) >= n, attempts + 2, { timeout: 240_000 });
+  assert.equal(await page.evaluate(() => document.body.dataset.fitOutcome), "done", await page.textContent("#fit-error"));
   // Waited about as long as the heavy fit takes: its result never arrives.
   await page.waitForTimeout(Math.min(8000, Math.max(1000, 1.5 * heavyFitMs)));
   assert.equal(await attemptsNow(), attempts + 2, "two attempts ended: the replaced one and the new one");
   const json = await exportedFitJson("replaced.json");
   assert.equal(json.eccentric.companions.length, 2, "the shown fit is the second request's");
   assert.ok(json.eccentric.trend !== null, "with its trend");
-  const native = JSON.parse(execFileSync(CLI, ["fit", "--json", path.join(TMP, HEAVY_NAME), "--companions", "2", "--trend"],
+  // The form's other settings stayed the heavy fit's (fitted jitters), as the CLI is told.
+  const native = JSON.parse(execFileSync(CLI, ["fit", "--json", path.join(TMP, HEAVY_NAME), "--companions", "2", "--trend", "--jitter", "fit"],
     { cwd: ROOT, encoding: "utf8" }));
   assert.deepEqual(json, native);
   assert.deepEqual(app.consoleErrors, []);
@@ -284,7 +304,17 @@ test("loading another table stops a running fit and says so", async () => {
   await setForm(HEAVY_FORM);
   const attempts = await attemptsNow();
   await startFit();
-  await app.selectDemo(1);
+  const loads = await page.evaluate(() => Number(document.body.dataset.loadAttempts));
+  const running = await page.evaluate(() => {
+    const running = document.getElementById("fit-button").getAttribute("aria-busy") === "true";
+    const select = document.getElementById("demo-select");
+    select.value = "1";
+    select.dispatchEvent(new Event("change"));
+    return running;
+  });
+  assert.equal(running, true, "the fit was running when the table was chosen");
+  await page.waitForFunction((n) => Number(document.body.dataset.loadAttempts) > n, loads);
+  assert.match(await page.textContent("[data-testid='summary-facts']"), /corvin4-eccentric\.tsv/);
   assert.equal(await attemptsNow(), attempts + 1);
   assert.equal(await page.evaluate(() => document.body.dataset.fitOutcome), "cancelled");
   assert.equal(await page.textContent("#fit-progress"), "Fit cancelled: a new table was loaded.");
