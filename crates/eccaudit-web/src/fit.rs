@@ -139,7 +139,8 @@ pub(crate) struct StoredFit {
 /// periodogram of its period search (for the figure). Serialised with `F = &ModelFit`, read back
 /// with `F = FitReport`, which takes the report's fields of the `ModelFit` object and leaves the
 /// others (goodness, jitter, detections, notes) to the page. Numbers cross as JavaScript numbers
-/// (structured clone), so every f64 arrives with its bits, NaN and −0 included.
+/// (structured clone), not as text, so every finite f64 arrives as it was computed and NaN stays
+/// NaN (JSON text would turn NaN into null).
 #[derive(Serialize, Deserialize)]
 struct FitTransfer<F, P> {
     /// The table the fit was made for.
