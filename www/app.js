@@ -12,6 +12,8 @@ const state = {
   dataset: null,      // the loaded table (a wasm handle); kept when a new load fails
   model: null,        // elements of the overlaid curve, or null
   fit: null,          // the last fit report of this table (plain object), or null
+  // The fit running in the fit worker: { id, dataset, started, timer }, or null.
+  fitJob: null,
   // The loaded table as {text, name, velocityUnit, timeConvention}: what the views and their
   // workers read it from, or null.
   table: null,
@@ -220,6 +222,8 @@ function fillModelDefaults(form) {
 }
 
 function clearFit() {
+  if (state.fitJob) stopFit("cancelled", "Fit cancelled: a new table was loaded.");
+  else $("fit-progress").textContent = "";
   state.fit = null;
   hideError($("fit-error"));
   $("fit-results").hidden = true;
@@ -327,27 +331,130 @@ function renderFit(report) {
   drawFitFigures();
 }
 
-async function runFit(form) {
+// The least-squares fit runs in a module worker (fit-worker.js), started at the first fit and
+// again after a cancel (terminating is the only way to stop a fit in progress). The page's
+// Dataset adopts the worker's result (Dataset.adoptFit) and draws its figures here.
+let fitWorker = null;
+
+function startFitWorker() {
+  if (fitWorker) return fitWorker;
+  fitWorker = new Worker(new URL("./fit-worker.js", import.meta.url), { type: "module" });
+  fitWorker.addEventListener("message", (event) => onFitMessage(event.data));
+  fitWorker.addEventListener("error", (event) => {
+    event.preventDefault();
+    dropFitWorker();
+    const detail = event.message ? `: ${event.message}` : "";
+    if (state.fitJob) finishFit("error", `the fit worker could not run${detail}`);
+  });
+  return fitWorker;
+}
+
+function dropFitWorker() {
+  fitWorker?.terminate();
+  fitWorker = null;
+}
+
+function setFitBusy(busy) {
   const button = $("fit-button");
-  try {
-    if (!state.dataset) throw new Error("load a velocity table first");
-    const settings = readFitSettings(form);
-    button.disabled = true;
-    button.textContent = "Fitting…";
-    // Let the page show the busy button before the (synchronous) fit starts.
-    await tick();
-    const report = state.dataset.fit(settings);
-    state.fit = report;
-    hideError($("fit-error"));
-    renderFit(report);
-  } catch (err) {
-    const kept = state.fit ? " The previous fit is still shown." : "";
-    showError($("fit-error"), `${messageOf(err)}${kept}`);
-  } finally {
-    button.disabled = false;
-    button.textContent = "Fit";
-    document.body.dataset.fitAttempts = String(++fitAttempts);
+  button.textContent = busy ? "Fitting…" : "Fit";
+  button.classList.toggle("busy", busy);
+  button.setAttribute("aria-busy", String(busy));
+  button.title = busy ? "Fitting; press again to start over with the settings as they are now" : "";
+  $("fit-cancel").disabled = !busy;
+}
+
+// The one-line state of a running fit, with the time it has taken (ticking here, on the main
+// thread, while the worker fits).
+function showFitProgress() {
+  const job = state.fitJob;
+  if (!job) return;
+  const seconds = Math.floor((performance.now() - job.started) / 1000);
+  const what = job.working ? "Fitting in the background" : "Starting the fit worker";
+  $("fit-progress").textContent = `${what}… ${seconds} s (the page stays usable; Cancel stops it).`;
+}
+
+// An error line, and the reassurance that the fit shown before is still the one shown.
+function keptFitNote(message) {
+  if (!state.fit) return message;
+  return `${message}${/[.!?]$/.test(message) ? "" : "."} The previous fit is still shown.`;
+}
+
+// End the running fit: `outcome` is "done", "error" or "cancelled"; `message` goes to the error
+// box for an error and to the progress line otherwise.
+function finishFit(outcome, message = "") {
+  const job = state.fitJob;
+  if (!job) return;
+  clearInterval(job.timer);
+  state.fitJob = null;
+  setFitBusy(false);
+  if (outcome === "error") {
+    $("fit-progress").textContent = "";
+    showError($("fit-error"), keptFitNote(message));
+  } else {
+    $("fit-progress").textContent = message;
   }
+  document.body.dataset.fitOutcome = outcome;
+  document.body.dataset.fitAttempts = String(++fitAttempts);
+}
+
+// Stop the running fit by terminating its worker; the next fit starts a fresh one.
+function stopFit(outcome, message) {
+  dropFitWorker();
+  finishFit(outcome, message);
+}
+
+function cancelFit() {
+  if (!state.fitJob) return;
+  stopFit("cancelled", keptFitNote("Fit cancelled."));
+}
+
+function onFitMessage(msg) {
+  const job = state.fitJob;
+  if (!job || msg.id !== job.id) return; // a message of a fit that was cancelled or replaced
+  if (msg.type === "working") {
+    job.working = true;
+    showFitProgress();
+  } else if (msg.type === "error") {
+    // After a panic the worker's module is unusable: start a fresh one next time.
+    if (msg.fatal) dropFitWorker();
+    finishFit("error", msg.message);
+  } else if (msg.type === "result") {
+    try {
+      if (job.dataset !== state.dataset) throw new Error("the table changed during the fit: fit again");
+      state.dataset.adoptFit(msg.transfer);
+      state.fit = msg.transfer.fit;
+      hideError($("fit-error"));
+      renderFit(state.fit);
+    } catch (err) {
+      finishFit("error", messageOf(err));
+      return;
+    }
+    finishFit("done");
+  }
+}
+
+let fitIds = 0;
+function runFit(form) {
+  let settings;
+  try {
+    if (!state.dataset || !state.table) throw new Error("load a velocity table first");
+    settings = readFitSettings(form);
+  } catch (err) {
+    if (state.fitJob) stopFit("cancelled", "");
+    showError($("fit-error"), keptFitNote(messageOf(err)));
+    document.body.dataset.fitOutcome = "error";
+    document.body.dataset.fitAttempts = String(++fitAttempts);
+    return;
+  }
+  // A new request replaces a fit still running.
+  if (state.fitJob) stopFit("cancelled", "");
+  hideError($("fit-error"));
+  const job = { id: ++fitIds, dataset: state.dataset, started: performance.now(), working: false, timer: null };
+  job.timer = setInterval(showFitProgress, 1000);
+  state.fitJob = job;
+  setFitBusy(true);
+  showFitProgress();
+  startFitWorker().postMessage({ id: job.id, table: state.table, settings });
 }
 
 function wireFit() {
@@ -357,6 +464,7 @@ function wireFit() {
     ev.preventDefault();
     runFit(form);
   });
+  $("fit-cancel").addEventListener("click", cancelFit);
   $("fold-companion").addEventListener("change", () => {
     try {
       state.dataset.drawPhaseFold($("phase-canvas"), Number($("fold-companion").value));

@@ -15,6 +15,7 @@ const APP_SHELL = [
   "./dom.js",
   "./format.js",
   "./audit-worker.js",
+  "./fit-worker.js",
   "./survey-view.js",
   "./population-view.js",
   "./population-worker.js",

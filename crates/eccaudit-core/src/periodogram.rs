@@ -28,7 +28,7 @@
 //! bound), eq. 6 (alias-free approximation) and Table 1 are as cited in
 //! astropy 8.0.2 (`timeseries/periodograms/lombscargle/_statistics.py`).
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
 use crate::lanes::Lanes;
@@ -226,7 +226,7 @@ pub enum PeriodogramError {
 }
 
 /// How the ends of the frequency grid are chosen.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub enum FrequencyLimits {
     /// f_min = 1/T (longest period = baseline T = t_max − t_min);
     /// f_max = 1/(2·Δ̃), a pseudo-Nyquist frequency from the median Δ̃ of the
@@ -265,7 +265,7 @@ impl Default for GridOptions {
 }
 
 /// Facts about a frequency grid, for reporting.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct FrequencyGridInfo {
     /// Number of frequencies.
     pub n_freq: usize,
@@ -293,7 +293,7 @@ pub struct FrequencyGrid {
 }
 
 /// One periodogram peak.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Peak {
     /// Frequency (1/day).
     pub frequency: f64,
@@ -307,7 +307,7 @@ pub struct Peak {
 }
 
 /// A power level for a given false-alarm probability (a threshold line).
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct FapThreshold {
     /// The false-alarm probability.
     pub false_alarm_probability: f64,
@@ -334,7 +334,7 @@ impl Default for PeriodogramOptions {
 }
 
 /// A complete period search.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Periodogram {
     /// Number of epochs used.
     pub n_epochs: usize,

@@ -1,10 +1,11 @@
 //! A loaded velocity table, held on the wasm side so the page parses it once.
 
+use eccaudit_core::audit::data_fingerprint;
 use eccaudit_core::model::RvModel;
 use eccaudit_core::orbit::OrbitalElements;
 use eccaudit_core::table::{parse_table, ReadOptions, TimeSpec, VelocityTable, VelocityUnit};
 use eccaudit_plot::{ModelCurve, VelocityFigure, VelocitySeries};
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
@@ -32,6 +33,17 @@ pub struct CurveElements {
     pub t_peri: f64,
     /// Systemic velocity added to every instrument [m/s].
     pub gamma: f64,
+}
+
+/// Which table a result belongs to: its row count and the SHA-256 of the values a fit reads
+/// (times, velocities, uncertainties, instrument of each row, instrument names), so a fit made
+/// from the same text in a worker is recognised, and one made for another table is refused.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub(crate) struct TableIdentity {
+    /// Number of measurements.
+    pub n_rows: usize,
+    /// SHA-256 (lower-case hex) of the values, as little-endian bytes in row order.
+    pub sha256: String,
 }
 
 /// A parsed velocity table.
@@ -137,6 +149,28 @@ impl Dataset {
 
     pub(crate) fn table(&self) -> &VelocityTable {
         &self.table
+    }
+
+    /// This table's [`TableIdentity`].
+    pub(crate) fn identity(&self) -> TableIdentity {
+        let table = &self.table;
+        let mut bytes = Vec::with_capacity(32 * table.n_rows());
+        for column in [table.times(), table.velocities(), table.uncertainties()] {
+            for value in column {
+                bytes.extend_from_slice(&value.to_le_bytes());
+            }
+        }
+        for &instrument in table.instrument_index() {
+            bytes.extend_from_slice(&(instrument as u64).to_le_bytes());
+        }
+        for name in table.instrument_names() {
+            bytes.extend_from_slice(&(name.len() as u64).to_le_bytes());
+            bytes.extend_from_slice(name.as_bytes());
+        }
+        TableIdentity {
+            n_rows: table.n_rows(),
+            sha256: data_fingerprint(&bytes),
+        }
     }
 
     pub(crate) fn stored_fit(&self) -> Option<&crate::fit::StoredFit> {

@@ -1,17 +1,19 @@
 //! The least-squares orbit fit for the page: `Dataset.fit(settings)` runs the core fit and keeps
-//! it, `drawPeriodogram` and `drawPhaseFold` draw it with eccaudit-plot.
+//! it; in the page the fit runs in a worker (`www/fit-worker.js`: `Dataset.fitForTransfer`) and
+//! the page's own `Dataset` adopts it (`adoptFit`), so `drawPeriodogram` and `drawPhaseFold` draw
+//! it with eccaudit-plot on the main thread without fitting again.
 
 use eccaudit_core::fit::figures::{phase_fold, search_periodogram};
 use eccaudit_core::fit::{FitData, FitOptions, FitReport};
 use eccaudit_core::periodogram::Periodogram;
-use eccaudit_core::spec::{fit_model, JitterMode, ModelSpec};
+use eccaudit_core::spec::{fit_model, JitterMode, ModelFit, ModelSpec};
 use eccaudit_plot::fit::{periodogram_figure, phase_figure};
 use eccaudit_plot::PhaseFoldFigure;
 use serde::{Deserialize, Serialize};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
 
-use crate::dataset::Dataset;
+use crate::dataset::{Dataset, TableIdentity};
 use crate::render;
 use crate::{js_error, to_js};
 
@@ -131,6 +133,24 @@ pub(crate) struct StoredFit {
     periodogram: Periodogram,
 }
 
+/// A fit made by one `Dataset` (in the page's fit worker) as it crosses `postMessage` to the
+/// `Dataset` of the same table on the main thread: which table it belongs to, the core's
+/// `ModelFit` (the object `Dataset.fit` returns, shown and exported by the page as it is) and the
+/// periodogram of its period search (for the figure). Serialised with `F = &ModelFit`, read back
+/// with `F = FitReport`, which takes the report's fields of the `ModelFit` object and leaves the
+/// others (goodness, jitter, detections, notes) to the page. Numbers cross as JavaScript numbers
+/// (structured clone), not as text, so every finite f64 arrives as it was computed and NaN stays
+/// NaN (JSON text would turn NaN into null).
+#[derive(Serialize, Deserialize)]
+struct FitTransfer<F, P> {
+    /// The table the fit was made for.
+    table: TableIdentity,
+    /// The fit (`ModelFit` when sent, its `FitReport` when adopted).
+    fit: F,
+    /// The periodogram of the fit's period search.
+    periodogram: P,
+}
+
 #[wasm_bindgen]
 impl Dataset {
     /// Fit the model of `settings` (a [`FitSettings`] object, or `undefined` for the defaults)
@@ -139,21 +159,46 @@ impl Dataset {
     /// `goodness`, `jitter`, `detections` and `notes`, the lines to show first) and keeps it for
     /// the figures. On error the previous fit is kept.
     pub fn fit(&mut self, settings: JsValue) -> Result<JsValue, JsValue> {
-        let settings = FitSettings::from_js(settings)
-            .map_err(|err| js_error(format!("fit settings: {err}")))?;
-        let model = settings.spec().validate().map_err(js_error)?;
-        let data = FitData::from_table(self.table());
-        let base = settings.base();
-        let fit = fit_model(&data, &model, &base).map_err(js_error)?;
-        let options = model.fit_options(fit.jitter.fitted, &base);
-        let periodogram = search_periodogram(&data, &options).map_err(js_error)?;
+        let (fit, periodogram) = self.run_fit(settings)?;
         let out = to_js(&fit)?;
-        self.set_fit(Some(StoredFit {
-            data,
-            report: fit.report,
-            periodogram,
-        }));
+        self.keep_fit(fit.report, periodogram);
         Ok(out)
+    }
+
+    /// The same fit as [`Dataset::fit`], for the page's fit worker: returns
+    /// `{table, fit, periodogram}` — the table's identity (row count and SHA-256 of its values),
+    /// the `ModelFit` object `fit` returns, and the periodogram — for
+    /// [`Dataset::adopt_fit`] of the page's `Dataset` of the same table. Keeps the fit too.
+    #[wasm_bindgen(js_name = fitForTransfer)]
+    pub fn fit_for_transfer(&mut self, settings: JsValue) -> Result<JsValue, JsValue> {
+        let (fit, periodogram) = self.run_fit(settings)?;
+        let out = to_js(&FitTransfer {
+            table: self.identity(),
+            fit: &fit,
+            periodogram: &periodogram,
+        })?;
+        self.keep_fit(fit.report, periodogram);
+        Ok(out)
+    }
+
+    /// Keep a fit made elsewhere (`transfer`, what [`Dataset::fit_for_transfer`] returned in a
+    /// worker) for the figures, without fitting again. The fit must belong to this table: a
+    /// different row count or SHA-256 of the values is an error, and the fit kept before stays.
+    #[wasm_bindgen(js_name = adoptFit)]
+    pub fn adopt_fit(&mut self, transfer: JsValue) -> Result<(), JsValue> {
+        let transfer: FitTransfer<FitReport, Periodogram> =
+            serde_wasm_bindgen::from_value(transfer)
+                .map_err(|err| js_error(format!("the fit worker's result: {err}")))?;
+        let here = self.identity();
+        if transfer.table != here {
+            return Err(js_error(format!(
+                "the fit belongs to another table ({} rows, SHA-256 {}), not to the one loaded \
+                 ({} rows, SHA-256 {}): fit again",
+                transfer.table.n_rows, transfer.table.sha256, here.n_rows, here.sha256
+            )));
+        }
+        self.keep_fit(transfer.fit, transfer.periodogram);
+        Ok(())
     }
 
     /// True when a fit is kept.
@@ -202,6 +247,29 @@ impl Dataset {
 }
 
 impl Dataset {
+    /// The fit of `settings` (`fit_model`, then the periodogram of its period search): the one
+    /// computation behind [`Dataset::fit`] and [`Dataset::fit_for_transfer`].
+    fn run_fit(&self, settings: JsValue) -> Result<(ModelFit, Periodogram), JsValue> {
+        let settings = FitSettings::from_js(settings)
+            .map_err(|err| js_error(format!("fit settings: {err}")))?;
+        let model = settings.spec().validate().map_err(js_error)?;
+        let data = FitData::from_table(self.table());
+        let base = settings.base();
+        let fit = fit_model(&data, &model, &base).map_err(js_error)?;
+        let options = model.fit_options(fit.jitter.fitted, &base);
+        let periodogram = search_periodogram(&data, &options).map_err(js_error)?;
+        Ok((fit, periodogram))
+    }
+
+    /// Keep `report` and its `periodogram` as this table's fit, for the figures.
+    fn keep_fit(&mut self, report: FitReport, periodogram: Periodogram) {
+        self.set_fit(Some(StoredFit {
+            data: FitData::from_table(self.table()),
+            report,
+            periodogram,
+        }));
+    }
+
     /// The phase-fold figure of companion `companion_idx` (0-based) of the kept fit.
     fn phase_fold_figure(&self, companion_idx: usize) -> Result<PhaseFoldFigure, JsValue> {
         let fit = self.fit_or_error()?;

@@ -141,3 +141,60 @@ fn fit_settings_typos_and_failures_are_errors_that_keep_the_last_fit() {
     assert!(dataset.has_fit(), "a failed fit keeps the previous one");
     dataset.draw_phase_fold(canvas(), 0).unwrap();
 }
+
+#[wasm_bindgen_test]
+fn a_fit_made_elsewhere_is_adopted_bit_for_bit_and_only_by_its_table() {
+    // Two fitted companions, a trend and fitted jitters on Velka 17: a report with every kind of
+    // field (options, tagged enums, NaN-free numbers, covariance) crosses as the worker sends it.
+    let settings = r#"{"companions": 2, "trend": true, "jitter": "fit", "minPeriod": 2}"#;
+    let mut worker = Dataset::parse(VELKA, "velka17.csv", "", "").unwrap();
+    let transfer = worker
+        .fit_for_transfer(js_sys::JSON::parse(settings).unwrap())
+        .unwrap();
+    // What `fit` returns is the transfer's `fit`, the same JSON.
+    let mut direct = Dataset::parse(VELKA, "velka17.csv", "", "").unwrap();
+    let report = direct.fit(js_sys::JSON::parse(settings).unwrap()).unwrap();
+    let fit = js_sys::Reflect::get(&transfer, &"fit".into()).unwrap();
+    assert_eq!(
+        js_sys::JSON::stringify(&fit).unwrap(),
+        js_sys::JSON::stringify(&report).unwrap()
+    );
+
+    // The page's Dataset of the same table adopts it without fitting and draws the same figures
+    // (SVG text) as the Dataset that fitted.
+    let mut page = Dataset::parse(VELKA, "velka17.csv", "", "").unwrap();
+    assert!(!page.has_fit());
+    page.adopt_fit(transfer.clone()).unwrap();
+    assert!(page.has_fit());
+    assert_eq!(
+        page.draw_periodogram_svg(640, 360).unwrap(),
+        direct.draw_periodogram_svg(640, 360).unwrap()
+    );
+    for companion in 0..2 {
+        assert_eq!(
+            page.draw_phase_fold_svg(640, 360, companion).unwrap(),
+            direct.draw_phase_fold_svg(640, 360, companion).unwrap()
+        );
+    }
+
+    // Another table (one row fewer) refuses it and keeps its own fit.
+    let shorter: String = {
+        let lines: Vec<&str> = VELKA.lines().collect();
+        lines[..lines.len() - 1].join("\n")
+    };
+    let mut other = Dataset::parse(&shorter, "velka17.csv", "", "").unwrap();
+    other.fit(JsValue::UNDEFINED).unwrap();
+    let before = other.draw_periodogram_svg(640, 360).unwrap();
+    let message = error_message(other.adopt_fit(transfer).err().unwrap());
+    assert!(
+        message.starts_with("the fit belongs to another table"),
+        "{message}"
+    );
+    assert_eq!(other.draw_periodogram_svg(640, 360).unwrap(), before);
+    // Not a transfer at all: one line naming what was wrong.
+    let message = error_message(page.adopt_fit(JsValue::from_str("fit")).err().unwrap());
+    assert!(
+        message.starts_with("the fit worker's result: "),
+        "{message}"
+    );
+}

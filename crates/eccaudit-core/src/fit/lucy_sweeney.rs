@@ -1,14 +1,14 @@
 //! The Lucy & Sweeney (1971) significance test of a fitted eccentricity, in its 2-D Wald form
 //! (the (e cos ω, e sin ω) plane with the fit's full 2 × 2 covariance) and the 1-D form.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Threshold of the test recommended by Lucy & Sweeney (1971, AJ 76, 544): an orbit whose
 /// probability `p` of arising from a circular orbit by chance exceeds 5 % is kept circular.
 pub const LUCY_SWEENEY_THRESHOLD: f64 = 0.05;
 
 /// Outcome of the test for one companion.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct LucySweeney {
     /// Fitted eccentricity ê.
     pub eccentricity: f64,

@@ -3,7 +3,7 @@
 
 use std::fmt;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::goodness::chi_squared_p_value;
 use super::jitter::JitterMethod;
@@ -21,7 +21,7 @@ use crate::orbit::OrbitalElements;
 const DEG: f64 = 180.0 / core::f64::consts::PI;
 
 /// A value with its formal (1σ) error, when one could be computed.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Estimate {
     /// The value.
     pub value: f64,
@@ -30,7 +30,7 @@ pub struct Estimate {
 }
 
 /// One companion's fitted elements.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct CompanionFit {
     /// Period P [d].
     pub period: Estimate,
@@ -68,7 +68,7 @@ pub struct CompanionFit {
 }
 
 /// One instrument's offset, jitter and scatter.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct InstrumentFit {
     /// Name from the table.
     pub name: String,
@@ -83,7 +83,7 @@ pub struct InstrumentFit {
 }
 
 /// One least-squares solution (eccentric or circular).
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Solution {
     /// The companions.
     pub companions: Vec<CompanionFit>,
@@ -125,7 +125,7 @@ pub struct Solution {
 }
 
 /// The starting period candidates of one companion.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PeriodSearchSummary {
     /// 1-based companion number.
     pub companion: usize,
@@ -142,7 +142,7 @@ pub struct PeriodSearchSummary {
 }
 
 /// The outcome of one start.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct StartOutcome {
     /// 1-based companion number being searched.
     pub companion: usize,
@@ -165,7 +165,7 @@ pub struct StartOutcome {
 }
 
 /// Which solution the Lucy–Sweeney test adopts.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Adopted {
     /// All eccentricities significant.
@@ -175,7 +175,7 @@ pub enum Adopted {
 }
 
 /// The complete result of [`super::fit_orbit`].
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct FitReport {
     /// Epochs.
     pub n_points: usize,

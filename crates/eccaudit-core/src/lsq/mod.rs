@@ -26,7 +26,7 @@ mod qr;
 /// The matrix type of [`LeastSquaresProblem::jacobian`], re-exported so that
 /// callers need no direct dependency on nalgebra.
 pub use nalgebra::DMatrix;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
 pub use bounds::Bounds;
@@ -126,7 +126,7 @@ impl LsqOptions {
 }
 
 /// Why the driver stopped. Numbers in brackets are MINPACK's `info` codes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Termination {
     /// Relative reduction of χ² below `ftol` (1).
@@ -175,7 +175,7 @@ impl Termination {
 }
 
 /// State of the covariance estimate at the optimum.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case", tag = "status")]
 pub enum CovarianceStatus {
     /// The covariance was computed.
