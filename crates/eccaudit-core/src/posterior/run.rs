@@ -164,7 +164,7 @@ fn run_posterior_judged(
         });
     }
     let centres = start.lambda_centres(settings, data.n_instruments());
-    let target = RvPosterior::marginalised(data, settings, &centres)?;
+    let mut target = RvPosterior::marginalised(data, settings, &centres)?;
     let sampler = SamplerSettings {
         n_walkers: walkers_for(crate::sampler::LogDensity::dim(&target), sampler.n_walkers),
         ..*sampler
@@ -172,7 +172,10 @@ fn run_posterior_judged(
     let n_ensembles = length.n_ensembles.max(1);
     let starts = ensemble_starts(start, &target, n_ensembles, sampler.n_walkers, sampler.seed)?;
     let (centres, optima) = start_centres(start, &target);
-    let n_centres = centres.len().min(n_ensembles);
+    let n_centres = centres.len();
+    // Walkers cross between the separated modes by translations between their centres.
+    let sampled: Vec<Vec<f64>> = centres.iter().map(|c| target.sampled_point(c)).collect();
+    target.set_mode_jumps(&sampled);
     let h_index = target.layout().companion_start(companion) + 2;
     let e_traces_of = |ensembles: &[&Chains]| -> Vec<Vec<f64>> {
         ensembles
@@ -394,7 +397,7 @@ pub struct SensitivityReport {
 /// The methods behind each figure, for reports.
 pub fn method_notes() -> Vec<String> {
     vec![
-        "Sampling: independent affine-invariant ensembles (stretch, differential-evolution and ensemble Gaussian moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose peak density is at least a fifth of the best's; one optimum per ensemble in turn), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
+        "Sampling: independent affine-invariant ensembles (stretch, differential-evolution and ensemble Gaussian moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose peak density is at least a fifth of the best's; every ensemble with walkers around each of them in different shares; walkers cross between them by mode jumps, translations by the difference of two optima), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
         "Median, mean, intervals: sample quantiles (type 7); HDI = shortest interval of the samples. Mode: maximum of a Gaussian KDE reflected at the prior's bounds, Silverman bandwidth.".into(),
         "P(e < 0.05): fraction of samples; error √(p(1−p)/ESS_tail).".into(),
         "Information gain: KL(posterior ‖ prior) of e in nats on 50 equal bins over the prior's support, Miller–Madow bias (m−1)/(2 ESS) removed; binning makes it a lower bound.".into(),
@@ -960,15 +963,16 @@ mod optima_tests {
             .collect();
         assert!(all.iter().any(|p| (p - 1.37).abs() < 0.01), "{all:?}");
         assert!(all.iter().any(|p| (p - 3.70).abs() < 0.03), "{all:?}");
-        // Ensembles in modes that do not mix disagree: not converged, and the verdict says
-        // that the ensembles disagree (R̂ of P between them was 254 with this seed).
+        // Every ensemble starts walkers in both modes and mode jumps translate walkers between
+        // them, but 3·10⁵ evaluations are far too few for the walkers to cross often enough:
+        // not converged, and the verdict says why (τ of P: the run spans 14 τ with this seed;
+        // before the mode jumps, ensembles confined to one mode each disagreed, R̂ of P 254).
         assert!(!run.summary.converged, "{}", run.summary.verdict);
+        let verdict = &run.summary.verdict;
         assert!(
-            run.summary
-                .verdict
-                .contains("independent ensembles disagree"),
-            "{}",
-            run.summary.verdict
+            verdict.contains("independent ensembles disagree")
+                || verdict.contains("autocorrelation time"),
+            "{verdict}"
         );
         assert!(report.to_string().contains("least-squares optima"));
     }

@@ -349,9 +349,13 @@ const MAX_START_DRAWS: usize = 1000;
 /// formal errors), so that the ensembles start apart as the between-chain check requires
 /// (Gelman & Rubin 1992, Stat. Sci. 7, 457: over-dispersed starts, one chain per mode). The
 /// centres are `start.point` and the optima of `start.optima` whose log-posterior lies within
-/// [`KEEP_GAP`] nats of the best centre's (see there);
-/// ensemble m starts around centre m mod (number of centres), so that ensembles in modes that
-/// do not mix disagree and the run is not called converged. With
+/// [`KEEP_GAP`] nats of the best centre's (see there). With several centres, every ensemble
+/// has walkers in every mode: the even walkers of ensemble m start around centre m mod
+/// (number of centres), the odd ones around each centre in turn, so the ensembles start with
+/// different shares of walkers per mode (over-dispersed in the modes' weights; 3:1 and 1:3 for
+/// two centres) and agree only once walkers have crossed between the modes — by the mode jumps
+/// of [`RvPosterior::set_mode_jumps`]; modes the walkers do not cross keep the ensembles apart
+/// and the run is not called converged. With
 /// `start.disperse_eccentricity`, each walker's (√e cos ω, √e sin ω) of every companion is
 /// drawn from the eccentricity prior with ω uniform instead. Draws with a non-finite density
 /// are redrawn, up to 1000 times per walker.
@@ -370,9 +374,17 @@ pub fn ensemble_starts(
     for m in 0..n_ensembles {
         let mut rng = stream_rng(seed, 1000 + m as u64);
         let widen = (m + 1) as f64;
-        let centre = &centres[m % centres.len()];
+        let n_centres = centres.len();
         let mut positions = Vec::with_capacity(n_walkers * target.dim());
         for walker in 0..n_walkers {
+            // Half of the walkers around the ensemble's own centre, the rest in turn around
+            // every centre.
+            let index = if walker % 2 == 0 {
+                m % n_centres
+            } else {
+                (m + walker / 2) % n_centres
+            };
+            let centre = &centres[index];
             let mut found = false;
             for _ in 0..MAX_START_DRAWS {
                 for ((f, &c), &s) in full.iter_mut().zip(centre).zip(&start.scales) {

@@ -195,6 +195,9 @@ pub struct RvPosterior<'a> {
     /// The least-squares problem whose analytic Jacobian gives the Fisher information (built
     /// once; the Jeffreys prior and [`Self::fisher_information`] use it).
     fisher_problem: RvProblem<'a>,
+    /// Translations between the separated modes the run starts in (sampled coordinates,
+    /// concatenated; see [`Self::set_mode_jumps`]).
+    mode_jumps: Vec<f64>,
 }
 
 /// Scratch of the Jeffreys prior: the full orbital vector, the Jacobian and F.
@@ -281,6 +284,7 @@ impl<'a> RvPosterior<'a> {
                 vec![0.0; data.n_points()],
             )),
             inverse_weight_sums,
+            mode_jumps: Vec::new(),
             jeffreys: (settings.priors.eccentricity.shape
                 == crate::priors::EccentricityShape::Jeffreys)
                 .then(|| {
@@ -392,6 +396,19 @@ impl<'a> RvPosterior<'a> {
             target.fixed_linear_term = -0.5 * ln_det + 0.5 * n_linear as f64 * LN_TWO_PI;
         }
         Ok(target)
+    }
+
+    /// Sets the translations between known separated modes, given as their centres in sampled
+    /// coordinates: every difference c_j − c_i (i < j) becomes a mode jump of the sampler
+    /// ([`LogDensity::mode_jumps`]); fewer than two centres set none. The density itself is
+    /// unchanged.
+    pub fn set_mode_jumps(&mut self, centres: &[Vec<f64>]) {
+        self.mode_jumps.clear();
+        for (i, a) in centres.iter().enumerate() {
+            for b in &centres[i + 1..] {
+                self.mode_jumps.extend(b.iter().zip(a).map(|(y, x)| y - x));
+            }
+        }
     }
 
     /// How the linear parameters are treated.
@@ -730,6 +747,10 @@ impl LogDensity for RvPosterior<'_> {
             return f64::NEG_INFINITY;
         }
         lp + self.log_likelihood(x)
+    }
+
+    fn mode_jumps(&self) -> &[f64] {
+        &self.mode_jumps
     }
 }
 

@@ -15,6 +15,12 @@ pub trait LogDensity {
     /// The log-density at `x` (`x.len() == dim()`), −∞ outside the support.
     /// NaN is treated as −∞.
     fn log_density(&self, x: &[f64]) -> f64;
+    /// Translations between known, separated modes of the density, `dim()` entries each,
+    /// concatenated (default: none). When there are some, [`MODE_JUMP_FRACTION`] of the
+    /// walker updates are mode jumps (see [`EnsembleState`]'s step).
+    fn mode_jumps(&self) -> &[f64] {
+        &[]
+    }
 }
 
 impl<T: LogDensity + ?Sized> LogDensity for &T {
@@ -24,7 +30,15 @@ impl<T: LogDensity + ?Sized> LogDensity for &T {
     fn log_density(&self, x: &[f64]) -> f64 {
         (**self).log_density(x)
     }
+    fn mode_jumps(&self) -> &[f64] {
+        (**self).mode_jumps()
+    }
 }
+
+/// Share of the walker updates that are mode jumps when the target has
+/// [`LogDensity::mode_jumps`] (stated choice: one in ten, the share of ter Braak's γ = 1 jumps
+/// inside the DE move).
+pub const MODE_JUMP_FRACTION: f64 = 0.1;
 
 /// A closure used as a [`LogDensity`].
 #[derive(Debug, Clone, Copy)]
@@ -771,6 +785,13 @@ impl EnsembleState {
     ///   (ter Braak's optimal scale for Gaussian targets, jittered), and γ = 1 in one move of
     ///   ten (ter Braak's jump between modes); the proposal is symmetric (the pair (r2, r1) is as
     ///   likely as (r1, r2)), so it is accepted with probability `min(1, p(Y)/p(X_k))`.
+    /// * Mode jump, only for targets with [`LogDensity::mode_jumps`], in [`MODE_JUMP_FRACTION`]
+    ///   of the updates (decided before the other moves): `Y = X_k ± d_i`, d_i one of the given
+    ///   translations between known modes (uniformly chosen, sign ±1 with probability ½), the
+    ///   translation of smart darting (Andricioaei, Straub & Voter 2001, J. Chem. Phys. 114,
+    ///   6994) and of the mode-jumping proposals of Tjelmeland & Hegstad (2001, Scand. J. Stat.
+    ///   28, 205); from memory. The set of translations is fixed and symmetric (Y − X_k and
+    ///   X_k − Y are equally likely), so it is accepted with probability `min(1, p(Y)/p(X_k))`.
     fn step(&mut self, target: &impl LogDensity) {
         let n_walkers = self.settings.n_walkers;
         let half = n_walkers / 2;
@@ -780,6 +801,8 @@ impl EnsembleState {
         let dim = self.dim;
         let gamma_0 = 2.38 / libm::sqrt(2.0 * dim as f64);
         let post_burn = self.steps_done >= self.settings.n_burn;
+        let jumps = target.mode_jumps();
+        let n_jumps = jumps.len() / dim.max(1);
         for (active_start, other_start) in [(0, half), (half, 0)] {
             // The complementary half's Gaussian: it depends on those walkers only, which do not
             // move during this half-step, so the independence proposal is a valid MH kernel.
@@ -804,6 +827,23 @@ impl EnsembleState {
                 de_fraction
             };
             for k in active_start..active_start + half {
+                // Mode jumps draw from the stream only when the target has some, so runs
+                // without them keep their bits.
+                if n_jumps > 0 && self.rng.random::<f64>() < MODE_JUMP_FRACTION {
+                    let i = self.rng.random_range(0..2 * n_jumps as u32) as usize;
+                    let sign = if i.is_multiple_of(2) { 1.0 } else { -1.0 };
+                    let d = &jumps[(i / 2) * dim..(i / 2 + 1) * dim];
+                    for ((y, &x), &di) in self
+                        .proposal
+                        .iter_mut()
+                        .zip(&self.positions[k * dim..(k + 1) * dim])
+                        .zip(d)
+                    {
+                        *y = x + sign * di;
+                    }
+                    self.metropolis(target, k, 0.0, post_burn);
+                    continue;
+                }
                 // u32 range sampling is the same on 32- and 64-bit targets. One uniform picks
                 // the move: Gaussian below gaussian_fraction, DE in the next de_fraction.
                 let (use_gaussian, use_de) =
@@ -864,20 +904,7 @@ impl EnsembleState {
                     }
                     (dim as f64 - 1.0) * libm::log(z)
                 };
-                let lp_new = finite_or_minus_infinity(target.log_density(&self.proposal));
-                let log_ratio = log_jacobian + lp_new - self.log_densities[k];
-                let u_accept: f64 = self.rng.random();
-                // ln u < 0 for u in [0, 1), so a non-negative log ratio accepts without the
-                // logarithm (the same decision, and the same draws, as always taking it).
-                let accept = log_ratio >= 0.0 || libm::log(u_accept) < log_ratio;
-                if lp_new > f64::NEG_INFINITY && accept {
-                    self.positions[k * dim..(k + 1) * dim].copy_from_slice(&self.proposal);
-                    self.log_densities[k] = lp_new;
-                    self.accepted_all += 1;
-                    if post_burn {
-                        self.chains.accepted[k] += 1;
-                    }
-                }
+                self.metropolis(target, k, log_jacobian, post_burn);
             }
         }
         self.steps_done += 1;
@@ -890,6 +917,34 @@ impl EnsembleState {
                     .log_densities
                     .extend_from_slice(&self.log_densities);
                 self.chains.n_stored_steps += 1;
+            }
+        }
+    }
+}
+
+impl EnsembleState {
+    /// Accepts `self.proposal` for walker `k` with probability min(1, exp(`log_jacobian` +
+    /// ln p(Y) − ln p(X_k))) (Metropolis–Hastings), counting the acceptance.
+    fn metropolis(
+        &mut self,
+        target: &impl LogDensity,
+        k: usize,
+        log_jacobian: f64,
+        post_burn: bool,
+    ) {
+        let dim = self.dim;
+        let lp_new = finite_or_minus_infinity(target.log_density(&self.proposal));
+        let log_ratio = log_jacobian + lp_new - self.log_densities[k];
+        let u_accept: f64 = self.rng.random();
+        // ln u < 0 for u in [0, 1), so a non-negative log ratio accepts without the
+        // logarithm (the same decision, and the same draws, as always taking it).
+        let accept = log_ratio >= 0.0 || libm::log(u_accept) < log_ratio;
+        if lp_new > f64::NEG_INFINITY && accept {
+            self.positions[k * dim..(k + 1) * dim].copy_from_slice(&self.proposal);
+            self.log_densities[k] = lp_new;
+            self.accepted_all += 1;
+            if post_burn {
+                self.chains.accepted[k] += 1;
             }
         }
     }
