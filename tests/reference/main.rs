@@ -11,6 +11,7 @@ mod fit;
 mod inject;
 mod kepler;
 mod lsq;
+mod mode_jumps;
 mod model;
 mod periodogram;
 mod population;
