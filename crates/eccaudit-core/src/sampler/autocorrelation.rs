@@ -27,6 +27,15 @@ const SOKAL_WINDOW_C: f64 = 5.0;
 /// 306, §3 and their `autocorr` module): M is the smallest lag with
 /// M ≥ 5 τ(M). Autocovariances only up to the window (direct sums, then FFT for long windows).
 pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEstimate {
+    integrated_autocorrelation_time_in(traces, &mut Workspace::default())
+}
+
+/// [`integrated_autocorrelation_time`] of traces given as any slices, with the buffers of `ws`
+/// (the same arithmetic in the same order, so the same bits).
+pub(super) fn integrated_autocorrelation_time_in<R: AsRef<[f64]>>(
+    traces: &[R],
+    ws: &mut Workspace,
+) -> AutocorrelationEstimate {
     let n = common_length(traces);
     if n < 2 {
         return AutocorrelationEstimate {
@@ -37,15 +46,16 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
     }
     // Only chains with positive variance contribute; their autocorrelations ρ_c = γ_c/γ_c(0)
     // are averaged, i.e. the autocovariances are pooled with weights 1/(γ_c(0) · chains used).
-    let centred = centre(traces, n);
-    let variances: Vec<f64> = centred
-        .iter()
-        .map(|x| lag_product(x, 0) / n as f64)
-        .collect();
-    let n_used = variances
-        .iter()
-        .filter(|v| !v.is_nan() && **v > 0.0)
-        .count();
+    ws.load_centred(traces, n);
+    let mut n_used = 0usize;
+    ws.weights.clear();
+    for products in ws.direct.chunks_exact(DIRECT_LAGS) {
+        let v = products[0] / n as f64;
+        if !v.is_nan() && v > 0.0 {
+            n_used += 1;
+        }
+        ws.weights.push(v);
+    }
     if n_used == 0 {
         return AutocorrelationEstimate {
             tau: f64::NAN,
@@ -53,21 +63,18 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
             window_found: false,
         };
     }
-    let weights = variances
-        .iter()
-        .map(|&v| {
-            if !v.is_nan() && v > 0.0 {
-                1.0 / (v * n_used as f64)
-            } else {
-                0.0
-            }
-        })
-        .collect();
-    let pooled = PooledAutocovariance::new(centred, weights);
-    let mean_rho = |lag: usize| pooled.at(lag);
+    for w in &mut ws.weights {
+        let v = *w;
+        *w = if !v.is_nan() && v > 0.0 {
+            1.0 / (v * n_used as f64)
+        } else {
+            0.0
+        };
+    }
+    let mut pooled = PooledAutocovariance::new(ws, n);
     let mut tau = 1.0;
     for window in 1..n {
-        tau += 2.0 * mean_rho(window);
+        tau += 2.0 * pooled.at(window);
         if window as f64 >= SOKAL_WINDOW_C * tau {
             return AutocorrelationEstimate {
                 tau,
@@ -93,18 +100,116 @@ pub fn integrated_autocorrelation_time(traces: &[Vec<f64>]) -> AutocorrelationEs
 /// than 16 (each check diagnoses every parameter twice).
 const DIRECT_LAGS: usize = 4;
 
-/// The first `n` draws of each trace, centred on their own mean.
-pub(super) fn centre(traces: &[Vec<f64>], n: usize) -> Vec<Vec<f64>> {
-    traces
-        .iter()
-        .map(|t| {
-            let m = mean(&t[..n]);
-            t[..n].iter().map(|x| x - m).collect()
-        })
-        .collect()
+/// Reusable buffers of the autocorrelation estimates: the centred draws (one row of n per
+/// chain), their weights, the FFT arrays, the pooled lags and the twiddle tables of each
+/// transform size. Repeated estimates (every quantity of every convergence check) reuse them
+/// instead of allocating and faulting in fresh memory each time; the arithmetic is the same.
+#[derive(Debug, Default)]
+pub(super) struct Workspace {
+    centred: Vec<f64>,
+    /// Lag products of each centred row for lags 0..DIRECT_LAGS.
+    direct: Vec<f64>,
+    pub(super) weights: Vec<f64>,
+    re: Vec<f64>,
+    im: Vec<f64>,
+    power: Vec<f64>,
+    short_lags: Vec<f64>,
+    all_lags: Vec<f64>,
+    ffts: Vec<Fft>,
 }
 
-/// Σᵢ x_i x_{i+lag} over the overlap.
+impl Workspace {
+    /// Loads the first `n` draws of each trace, centred on their own mean, and their lag
+    /// products Σᵢ x_i x_{i+t} for t < [`DIRECT_LAGS`] (in one pass over each trace, each sum
+    /// accumulated in the same order as [`lag_product`]'s).
+    pub(super) fn load_centred<R: AsRef<[f64]>>(&mut self, traces: &[R], n: usize) {
+        self.centred.clear();
+        self.direct.clear();
+        for t in traces {
+            let t = &t.as_ref()[..n];
+            let m = mean(t);
+            let start = self.centred.len();
+            self.centred.extend(t.iter().map(|x| x - m));
+            let x = &self.centred[start..];
+            // −0.0 is the starting value of `Iterator::sum` for floats.
+            let mut sums = [-0.0f64; DIRECT_LAGS];
+            let full = n.saturating_sub(DIRECT_LAGS - 1);
+            for window in x.windows(DIRECT_LAGS).take(full) {
+                for (sum, &later) in sums.iter_mut().zip(window) {
+                    *sum += window[0] * later;
+                }
+            }
+            for i in full..n {
+                for (lag, sum) in sums.iter_mut().enumerate() {
+                    if i + lag < n {
+                        *sum += x[i] * x[i + lag];
+                    }
+                }
+            }
+            self.direct.extend_from_slice(&sums);
+        }
+    }
+
+    /// Γ(t) for t = 0..=max_lag by FFTs zero-padded to at least n + max_lag points (see
+    /// [`PooledAutocovariance`]), into `all_lags` or `short_lags`.
+    fn lags_up_to(&mut self, n: usize, max_lag: usize, all: bool) {
+        let size = (n + max_lag).next_power_of_two();
+        let Workspace {
+            centred,
+            direct: _,
+            weights,
+            re,
+            im,
+            power,
+            short_lags,
+            all_lags,
+            ffts,
+        } = self;
+        let index = match ffts.iter().position(|f| f.size() == size) {
+            Some(i) => i,
+            None => {
+                ffts.push(Fft::new(size));
+                ffts.len() - 1
+            }
+        };
+        let fft = &ffts[index];
+        for buffer in [&mut *power, &mut *re, &mut *im] {
+            buffer.clear();
+            buffer.resize(size, 0.0);
+        }
+        let scaled = |x: &[f64], w: f64, out: &mut [f64]| {
+            let s = libm::sqrt(w);
+            for (o, v) in out.iter_mut().zip(x) {
+                *o = s * v;
+            }
+        };
+        let mut used = centred
+            .chunks_exact(n)
+            .zip(weights.iter().copied())
+            .filter(|&(_, w)| w != 0.0);
+        while let Some((a, w_a)) = used.next() {
+            re.fill(0.0);
+            im.fill(0.0);
+            scaled(a, w_a, re);
+            if let Some((b, w_b)) = used.next() {
+                scaled(b, w_b, im);
+            }
+            fft.transform(re, im, false);
+            for (k, p) in power.iter_mut().enumerate() {
+                let j = (size - k) & (size - 1);
+                *p += 0.5 * (re[k] * re[k] + im[k] * im[k] + re[j] * re[j] + im[j] * im[j]);
+            }
+        }
+        im.fill(0.0);
+        fft.transform(power, im, true);
+        let out = if all { all_lags } else { short_lags };
+        out.clear();
+        out.extend(power[..=max_lag].iter().map(|p| p / (size * n) as f64));
+    }
+}
+
+/// Σᵢ x_i x_{i+lag} over the overlap (the definition [`Workspace::load_centred`] tabulates).
+#[cfg(test)]
 fn lag_product(x: &[f64], lag: usize) -> f64 {
     x[..x.len() - lag]
         .iter()
@@ -115,7 +220,8 @@ fn lag_product(x: &[f64], lag: usize) -> f64 {
 
 /// A weighted sum over chains of biased autocovariances,
 /// Γ(t) = Σ_c w_c γ_c(t) with γ_c(t) = (1/n) Σ_{i<n−t} (x_i − x̄)(x_{i+t} − x̄),
-/// each lag computed when asked for.
+/// each lag computed when asked for, over the chains loaded into a [`Workspace`]
+/// ([`Workspace::load_centred`], weights in [`Workspace::weights`]).
 ///
 /// Every window that uses it (Sokal's for τ, Geyer's initial sequence for the ESS) needs only the
 /// pooled sum, and stops after a few autocorrelation times. Short lags are summed directly; the
@@ -128,104 +234,72 @@ fn lag_product(x: &[f64], lag: usize) -> f64 {
 /// The transforms are zero-padded to at least n + L points, which leaves lags ≤ L free of
 /// wrap-around: first with L = n/4 (windows rarely reach further; half the size of a full
 /// transform), and to 2n only when a longer lag is asked for.
-pub(super) struct PooledAutocovariance {
-    centred: Vec<Vec<f64>>,
-    weights: Vec<f64>,
+pub(super) struct PooledAutocovariance<'w> {
+    ws: &'w mut Workspace,
     n: usize,
-    short_lags: std::cell::OnceCell<Vec<f64>>,
-    all_lags: std::cell::OnceCell<Vec<f64>>,
+    short_ready: bool,
+    all_ready: bool,
 }
 
-impl PooledAutocovariance {
-    /// `centred[c]` (all of one length n, centred on their means) with weights `weights[c]` ≥ 0.
-    pub(super) fn new(centred: Vec<Vec<f64>>, weights: Vec<f64>) -> Self {
-        let n = centred.first().map_or(0, Vec::len);
+impl<'w> PooledAutocovariance<'w> {
+    /// The chains loaded into `ws` (rows of `n`, centred) with the weights in `ws.weights`
+    /// (one per chain, ≥ 0).
+    pub(super) fn new(ws: &'w mut Workspace, n: usize) -> Self {
         PooledAutocovariance {
-            centred,
-            weights,
+            ws,
             n,
-            short_lags: std::cell::OnceCell::new(),
-            all_lags: std::cell::OnceCell::new(),
+            short_ready: false,
+            all_ready: false,
         }
     }
 
     /// Γ(lag); 0 beyond the last lag.
-    pub(super) fn at(&self, lag: usize) -> f64 {
-        if lag >= self.n {
+    pub(super) fn at(&mut self, lag: usize) -> f64 {
+        let n = self.n;
+        if lag >= n {
             return 0.0;
         }
         if lag < DIRECT_LAGS {
             return self
-                .centred
-                .iter()
-                .zip(&self.weights)
+                .ws
+                .direct
+                .chunks_exact(DIRECT_LAGS)
+                .zip(&self.ws.weights)
                 .filter(|(_, &w)| w != 0.0)
-                .map(|(x, &w)| w * lag_product(x, lag))
+                .map(|(products, &w)| w * products[lag])
                 .sum::<f64>()
-                / self.n as f64;
+                / n as f64;
         }
         // Short chains (n/4 below the direct lags) go straight to all lags.
-        if self.n / 4 >= DIRECT_LAGS {
-            let short = self.short_lags.get_or_init(|| self.lags_up_to(self.n / 4));
-            if lag < short.len() {
-                return short[lag];
+        if n / 4 >= DIRECT_LAGS {
+            if !self.short_ready {
+                self.ws.lags_up_to(n, n / 4, false);
+                self.short_ready = true;
+            }
+            if lag < self.ws.short_lags.len() {
+                return self.ws.short_lags[lag];
             }
         }
-        self.all_lags.get_or_init(|| self.lags_up_to(self.n - 1))[lag]
-    }
-
-    /// Γ(t) for t = 0..=max_lag by FFTs zero-padded to at least n + max_lag points (see the
-    /// type's notes).
-    fn lags_up_to(&self, max_lag: usize) -> Vec<f64> {
-        let n = self.n;
-        let size = (n + max_lag).next_power_of_two();
-        let mut power = vec![0.0; size];
-        let mut re = vec![0.0; size];
-        let mut im = vec![0.0; size];
-        let fft = Fft::new(size);
-        let used: Vec<(&Vec<f64>, f64)> = self
-            .centred
-            .iter()
-            .zip(self.weights.iter().copied())
-            .filter(|&(_, w)| w != 0.0)
-            .collect();
-        for pair in used.chunks(2) {
-            re.fill(0.0);
-            im.fill(0.0);
-            let scaled = |x: &Vec<f64>, w: f64, out: &mut [f64]| {
-                let s = libm::sqrt(w);
-                for (o, v) in out.iter_mut().zip(x) {
-                    *o = s * v;
-                }
-            };
-            scaled(pair[0].0, pair[0].1, &mut re);
-            if let Some(&(x, w)) = pair.get(1) {
-                scaled(x, w, &mut im);
-            }
-            fft.transform(&mut re, &mut im, false);
-            for (k, p) in power.iter_mut().enumerate() {
-                let j = (size - k) & (size - 1);
-                *p += 0.5 * (re[k] * re[k] + im[k] * im[k] + re[j] * re[j] + im[j] * im[j]);
-            }
+        if !self.all_ready {
+            self.ws.lags_up_to(n, n - 1, true);
+            self.all_ready = true;
         }
-        im.fill(0.0);
-        fft.transform(&mut power, &mut im, true);
-        power.truncate(max_lag + 1);
-        for p in &mut power {
-            *p /= (size * n) as f64;
-        }
-        power
+        self.ws.all_lags[lag]
     }
 }
 
 /// Iterative radix-2 Cooley–Tukey FFT (Cooley & Tukey 1965, Math. Comp. 19, 297) of one
 /// power-of-two size, with its twiddle factors e^(−2πik/len) computed once (by `libm`, so the
 /// same bits natively and in WebAssembly) for all the transforms of that size, laid out stage by
-/// stage so that every butterfly loop runs over contiguous slices.
+/// stage so that every butterfly loop runs over contiguous slices, and the bit-reversal swaps
+/// tabulated.
+#[derive(Debug)]
 struct Fft {
     /// Stage with blocks of length `len` = 2, 4, …, n: entries `len/2 − 1 .. len − 1`.
     cos: Vec<f64>,
     sin: Vec<f64>,
+    /// The pairs (i, j), i < j, exchanged by the bit-reversal permutation.
+    swaps: Vec<(u32, u32)>,
 }
 
 impl Fft {
@@ -242,14 +316,7 @@ impl Fft {
             }
             len <<= 1;
         }
-        Fft { cos, sin }
-    }
-
-    /// Transforms (`re`, `im`) in place; `inverse` flips the sign of the exponent and does not
-    /// scale.
-    fn transform(&self, re: &mut [f64], im: &mut [f64], inverse: bool) {
-        let n = re.len();
-        debug_assert_eq!(n, self.cos.len() + 1);
+        let mut swaps = Vec::new();
         let mut j = 0;
         for i in 1..n {
             let mut bit = n >> 1;
@@ -259,9 +326,25 @@ impl Fft {
             }
             j |= bit;
             if i < j {
-                re.swap(i, j);
-                im.swap(i, j);
+                swaps.push((i as u32, j as u32));
             }
+        }
+        Fft { cos, sin, swaps }
+    }
+
+    /// The transform size.
+    fn size(&self) -> usize {
+        self.cos.len() + 1
+    }
+
+    /// Transforms (`re`, `im`) in place; `inverse` flips the sign of the exponent and does not
+    /// scale.
+    fn transform(&self, re: &mut [f64], im: &mut [f64], inverse: bool) {
+        let n = re.len();
+        debug_assert_eq!(n, self.size());
+        for &(i, j) in &self.swaps {
+            re.swap(i as usize, j as usize);
+            im.swap(i as usize, j as usize);
         }
         let sign = if inverse { -1.0 } else { 1.0 };
         let mut len = 2;
@@ -272,14 +355,21 @@ impl Fft {
             for (block_re, block_im) in re.chunks_exact_mut(len).zip(im.chunks_exact_mut(len)) {
                 let (a_re, b_re) = block_re.split_at_mut(half);
                 let (a_im, b_im) = block_im.split_at_mut(half);
-                for k in 0..half {
-                    let (wr, wi) = (w_re[k], sign * w_sin[k]);
-                    let t_re = b_re[k] * wr - b_im[k] * wi;
-                    let t_im = b_re[k] * wi + b_im[k] * wr;
-                    b_re[k] = a_re[k] - t_re;
-                    b_im[k] = a_im[k] - t_im;
-                    a_re[k] += t_re;
-                    a_im[k] += t_im;
+                // Zipped slices (no index checks) so that the butterflies vectorise; the same
+                // operations in the same order as one at a time.
+                for (((a_re, a_im), (b_re, b_im)), (&wr, &w_sin)) in a_re
+                    .iter_mut()
+                    .zip(a_im.iter_mut())
+                    .zip(b_re.iter_mut().zip(b_im.iter_mut()))
+                    .zip(w_re.iter().zip(w_sin))
+                {
+                    let wi = sign * w_sin;
+                    let t_re = *b_re * wr - *b_im * wi;
+                    let t_im = *b_re * wi + *b_im * wr;
+                    *b_re = *a_re - t_re;
+                    *b_im = *a_im - t_im;
+                    *a_re += t_re;
+                    *a_im += t_im;
                 }
             }
             len <<= 1;
@@ -308,7 +398,10 @@ mod tests {
         for n_chains in [1, 2, 3] {
             let traces = &chains[..n_chains];
             let weights: Vec<f64> = (0..n_chains).map(|c| 0.5 + c as f64).collect();
-            let pooled = PooledAutocovariance::new(centre(traces, n), weights.clone());
+            let mut ws = Workspace::default();
+            ws.load_centred(traces, n);
+            ws.weights = weights.clone();
+            let mut pooled = PooledAutocovariance::new(&mut ws, n);
             for t in [0, 1, 5, 15, 16, 47, 48, 100, 136] {
                 let direct: f64 = traces
                     .iter()
@@ -318,13 +411,41 @@ mod tests {
                         w * (0..n - t).map(|i| (x[i] - m) * (x[i + t] - m)).sum::<f64>() / n as f64
                     })
                     .sum();
+                let at = pooled.at(t);
                 assert!(
-                    (pooled.at(t) - direct).abs() < 1e-12,
-                    "{n_chains} chains, lag {t}: {} vs {direct}",
-                    pooled.at(t)
+                    (at - direct).abs() < 1e-12,
+                    "{n_chains} chains, lag {t}: {at} vs {direct}"
                 );
             }
             assert_eq!(pooled.at(n), 0.0);
+        }
+    }
+
+    /// The lag products tabulated in one pass per trace equal Σᵢ x_i x_{i+t} summed lag by lag
+    /// in index order, bit for bit (the same additions in the same order; definition), for
+    /// traces shorter and longer than the direct lags.
+    #[test]
+    fn one_pass_lag_products_equal_the_lag_by_lag_sums() {
+        for n in [1, 2, 3, 4, 5, 37] {
+            let traces: Vec<Vec<f64>> = (0..3)
+                .map(|c| {
+                    (0..n)
+                        .map(|i| libm::cos(1.3 * i as f64 + c as f64))
+                        .collect()
+                })
+                .collect();
+            let mut ws = Workspace::default();
+            ws.load_centred(&traces, n);
+            for (c, x) in ws.centred.chunks_exact(n).enumerate() {
+                for lag in 0..DIRECT_LAGS {
+                    let expected = if lag < n { lag_product(x, lag) } else { -0.0 };
+                    assert_eq!(
+                        ws.direct[c * DIRECT_LAGS + lag].to_bits(),
+                        expected.to_bits(),
+                        "n {n}, trace {c}, lag {lag}"
+                    );
+                }
+            }
         }
     }
 }

@@ -421,10 +421,15 @@ impl HalfGaussian {
         let f = GAUSSIAN_SCALE * GAUSSIAN_SCALE / (count - 1) as f64;
         self.factor.fill(0.0);
         for x in walkers.chunks_exact(dim) {
-            for i in 0..dim {
-                let di = x[i] - self.mean[i];
-                for (j, (xj, mj)) in x.iter().zip(&self.mean).enumerate().take(i + 1) {
-                    self.factor[i * dim + j] += di * (xj - mj);
+            // The deviations once per walker (`work` is free until the moves), then the lower
+            // triangle: the same products summed in the same walker order.
+            for (d, (xi, mi)) in self.work.iter_mut().zip(x.iter().zip(&self.mean)) {
+                *d = xi - mi;
+            }
+            for (i, row) in self.factor.chunks_exact_mut(dim).enumerate() {
+                let di = self.work[i];
+                for (f, dj) in row[..=i].iter_mut().zip(&self.work[..=i]) {
+                    *f += di * dj;
                 }
             }
         }

@@ -42,8 +42,8 @@ pub use verdict::{
 };
 
 /// Length of the shortest trace.
-pub(crate) fn common_length(traces: &[Vec<f64>]) -> usize {
-    traces.iter().map(Vec::len).min().unwrap_or(0)
+pub(crate) fn common_length<R: AsRef<[f64]>>(traces: &[R]) -> usize {
+    traces.iter().map(|t| t.as_ref().len()).min().unwrap_or(0)
 }
 
 /// Arithmetic mean.

@@ -2,7 +2,7 @@
 
 use serde::Serialize;
 
-use super::autocorrelation::{centre, PooledAutocovariance};
+use super::autocorrelation::{PooledAutocovariance, Workspace};
 use super::{common_length, mean, sample_variance};
 use crate::stats::{quantile_type7, standard_normal_quantile};
 
@@ -49,7 +49,7 @@ pub(super) struct SplitDraws {
 }
 
 impl SplitDraws {
-    pub(super) fn new(traces: &[Vec<f64>]) -> Self {
+    pub(super) fn new<R: AsRef<[f64]>>(traces: &[R]) -> Self {
         let chains = split_chains(traces);
         let ranked = RankedDraws::new(&chains);
         let scores = std::cell::RefCell::new(NormalScores::new(ranked.len()));
@@ -115,10 +115,12 @@ pub fn effective_sample_size(traces: &[Vec<f64>]) -> f64 {
         return f64::NAN;
     }
     let chain_means: Vec<f64> = traces.iter().map(|t| mean(&t[..n])).collect();
-    let pooled = PooledAutocovariance::new(centre(traces, n), vec![1.0 / m as f64; m]);
+    let mut ws = Workspace::default();
+    ws.load_centred(traces, n);
+    ws.weights = vec![1.0 / m as f64; m];
+    let mut pooled = PooledAutocovariance::new(&mut ws, n);
     let nf = n as f64;
-    let mean_acov = |t: usize| pooled.at(t);
-    let mean_var = mean_acov(0) * nf / (nf - 1.0);
+    let mean_var = pooled.at(0) * nf / (nf - 1.0);
     let mut var_plus = mean_var * (nf - 1.0) / nf;
     if m > 1 {
         var_plus += sample_variance(&chain_means);
@@ -126,7 +128,7 @@ pub fn effective_sample_size(traces: &[Vec<f64>]) -> f64 {
     if var_plus.is_nan() || var_plus <= 0.0 || !mean_var.is_finite() {
         return f64::NAN;
     }
-    let rho_at = |t: usize| 1.0 - (mean_var - mean_acov(t)) / var_plus;
+    let mut rho_at = |t: usize| 1.0 - (mean_var - pooled.at(t)) / var_plus;
     let mut rho = vec![0.0; n];
     rho[0] = 1.0;
     let mut rho_even = 1.0;
@@ -164,20 +166,27 @@ pub fn effective_sample_size(traces: &[Vec<f64>]) -> f64 {
 
 /// Classic split R̂ (Gelman et al. 2013, BDA3 §11.4) of the draws and of the draws folded about
 /// their middle draw, for [`DiagnosisDepth::Quick`]: no ranks, no full sort.
-pub(super) fn classic_split_r_hat(traces: &[Vec<f64>]) -> RHat {
-    let split = split_chains(traces);
-    let bulk = split_r_hat_of(&split);
-    let mut pooled: Vec<f64> = split.iter().flatten().copied().collect();
+pub(super) fn classic_split_r_hat<R: AsRef<[f64]>>(traces: &[R], pooled: &mut Vec<f64>) -> RHat {
+    let n = common_length(traces);
+    let half = n / 2;
+    // The split chains are slices of the traces: no copies.
+    let split: Vec<&[f64]> = traces
+        .iter()
+        .flat_map(|t| {
+            let t = t.as_ref();
+            [&t[..half], &t[n - half..n]]
+        })
+        .collect();
+    let bulk = split_r_hat_by(&split, |x| x);
+    pooled.clear();
+    pooled.extend(split.iter().flat_map(|c| c.iter().copied()));
     let tail = if pooled.is_empty() || pooled.iter().any(|x| x.is_nan()) {
         f64::NAN
     } else {
         let middle = pooled.len() / 2;
         let median = *pooled.select_nth_unstable_by(middle, f64::total_cmp).1;
-        let folded: Vec<Vec<f64>> = split
-            .iter()
-            .map(|c| c.iter().map(|x| (x - median).abs()).collect())
-            .collect();
-        split_r_hat_of(&folded)
+        // The folded draws |x − median|, computed where they are summed.
+        split_r_hat_by(&split, |x| (x - median).abs())
     };
     RHat {
         bulk,
@@ -188,26 +197,44 @@ pub(super) fn classic_split_r_hat(traces: &[Vec<f64>]) -> RHat {
 
 /// Each trace cut into its first and last halves (the middle draw dropped
 /// when the length is odd), Vehtari et al. 2021, §4.1.
-pub(super) fn split_chains(traces: &[Vec<f64>]) -> Vec<Vec<f64>> {
+pub(super) fn split_chains<R: AsRef<[f64]>>(traces: &[R]) -> Vec<Vec<f64>> {
     let n = common_length(traces);
     let half = n / 2;
     traces
         .iter()
-        .flat_map(|t| [t[..half].to_vec(), t[n - half..n].to_vec()])
+        .flat_map(|t| {
+            let t = t.as_ref();
+            [t[..half].to_vec(), t[n - half..n].to_vec()]
+        })
         .collect()
 }
 
 /// Classic split-R̂ formula on already split chains (Vehtari et al. 2021,
 /// eqs. 3–4): √(((N−1)/N W + B/N) / W).
-pub(super) fn split_r_hat_of(chains: &[Vec<f64>]) -> f64 {
+pub(super) fn split_r_hat_of<R: AsRef<[f64]>>(chains: &[R]) -> f64 {
+    split_r_hat_by(chains, |x| x)
+}
+
+/// [`split_r_hat_of`] of `f` applied to every draw (the same sums in the same order as on a
+/// copy of the mapped draws, without the copy).
+fn split_r_hat_by<R: AsRef<[f64]>>(chains: &[R], f: impl Fn(f64) -> f64) -> f64 {
     let n = common_length(chains);
     let m = chains.len();
     if m < 2 || n < 2 {
         return f64::NAN;
     }
-    let means: Vec<f64> = chains.iter().map(|c| mean(&c[..n])).collect();
+    let mean_by = |c: &[f64]| c.iter().map(|&x| f(x)).sum::<f64>() / c.len() as f64;
+    let means: Vec<f64> = chains.iter().map(|c| mean_by(&c.as_ref()[..n])).collect();
     let between = n as f64 * sample_variance(&means);
-    let within = chains.iter().map(|c| sample_variance(&c[..n])).sum::<f64>() / m as f64;
+    let within = chains
+        .iter()
+        .map(|c| {
+            let c = &c.as_ref()[..n];
+            let m = mean_by(c);
+            c.iter().map(|&x| (f(x) - m) * (f(x) - m)).sum::<f64>() / (c.len() as f64 - 1.0)
+        })
+        .sum::<f64>()
+        / m as f64;
     let nf = n as f64;
     let var_plus = (nf - 1.0) / nf * within + between / nf;
     libm::sqrt(var_plus / within)

@@ -2,7 +2,9 @@
 
 use serde::Serialize;
 
-use super::autocorrelation::{integrated_autocorrelation_time, AutocorrelationEstimate};
+use super::autocorrelation::{
+    integrated_autocorrelation_time_in, AutocorrelationEstimate, Workspace,
+};
 use super::common_length;
 use super::ensemble::Chains;
 use super::rank::{classic_split_r_hat, effective_sample_size, RHat, SplitDraws};
@@ -271,19 +273,43 @@ pub fn diagnose_ensembles_at(
     let thin = ensembles.first().map_or(1, |c| c.thin);
     let mut parameters = Vec::with_capacity(dim + derived.len());
     let mut issues = Vec::new();
+    let mut scratch = Scratch::default();
     if every_parameter {
-        for param in 0..dim {
-            let traces: Vec<Vec<f64>> = ensembles
-                .iter()
-                .flat_map(|c| c.parameter_traces(param))
-                .collect();
-            let (diagnostics, found) = diagnose_traces(
+        // Every parameter's traces from one pass over the stored steps: walker-major rows of n
+        // draws, parameter after parameter, all walkers of all ensembles (ensemble 0 first).
+        let n = ensembles
+            .iter()
+            .map(|c| c.n_stored_steps)
+            .min()
+            .unwrap_or(0);
+        let rows: usize = ensembles.iter().map(|c| c.n_walkers).sum();
+        let mut by_parameter: Vec<Vec<f64>> =
+            (0..dim).map(|_| Vec::with_capacity(rows * n)).collect();
+        for c in ensembles {
+            let stride = c.n_walkers * dim;
+            for w in 0..c.n_walkers {
+                for s in 0..n {
+                    let x = &c.samples[s * stride + w * dim..][..dim];
+                    for (column, &v) in by_parameter.iter_mut().zip(x) {
+                        column.push(v);
+                    }
+                }
+            }
+        }
+        for (param, column) in by_parameter.iter().enumerate() {
+            let traces: Vec<&[f64]> = if n == 0 {
+                vec![&[][..]; rows]
+            } else {
+                column.chunks_exact(n).collect()
+            };
+            let (diagnostics, found) = diagnose_rows(
                 &traces,
                 ensembles.len(),
                 &format!("parameter {param}"),
                 thin,
                 thresholds,
                 depth,
+                &mut scratch,
             );
             parameters.push(diagnostics);
             issues.extend(found.into_iter().map(|issue| ConvergenceIssue {
@@ -293,8 +319,15 @@ pub fn diagnose_ensembles_at(
         }
     }
     for (name, traces) in derived {
-        let (diagnostics, found) =
-            diagnose_traces(traces, ensembles.len(), name, thin, thresholds, depth);
+        let (diagnostics, found) = diagnose_rows(
+            traces,
+            ensembles.len(),
+            name,
+            thin,
+            thresholds,
+            depth,
+            &mut scratch,
+        );
         parameters.push(diagnostics);
         issues.extend(found);
     }
@@ -349,20 +382,33 @@ pub enum DiagnosisDepth {
     Quick,
 }
 
+/// Buffers one diagnosis reuses from quantity to quantity: the autocorrelation workspace, the
+/// ensembles' step-major series and the pooled draws of the folded R̂'s median.
+#[derive(Debug, Default)]
+struct Scratch {
+    autocorrelation: Workspace,
+    series: Vec<f64>,
+    pooled: Vec<f64>,
+}
+
 /// Each ensemble's draws in step-major order (step 0 of every walker, then step 1, …), so that
-/// the first and second halves of a series are the first and second halves of the run.
-fn ensemble_series(traces: &[Vec<f64>], n_ensembles: usize, n: usize) -> Vec<Vec<f64>> {
+/// the first and second halves of a series are the first and second halves of the run; written
+/// into `out`, one series of `per walkers × n` after another.
+fn ensemble_series<R: AsRef<[f64]>>(
+    traces: &[R],
+    n_ensembles: usize,
+    n: usize,
+    out: &mut Vec<f64>,
+) -> usize {
     let per = traces.len() / n_ensembles.max(1);
-    (0..n_ensembles)
-        .map(|m| {
-            let walkers = &traces[m * per..(m + 1) * per];
-            let mut series = Vec::with_capacity(per * n);
-            for s in 0..n {
-                series.extend(walkers.iter().map(|t| t[s]));
-            }
-            series
-        })
-        .collect()
+    out.clear();
+    for m in 0..n_ensembles {
+        let walkers = &traces[m * per..(m + 1) * per];
+        for s in 0..n {
+            out.extend(walkers.iter().map(|t| t.as_ref()[s]));
+        }
+    }
+    per * n
 }
 
 /// τ (whole and last half), R̂ between ensembles and bulk/tail ESS of one quantity at `depth`,
@@ -377,8 +423,30 @@ pub fn diagnose_traces(
     thresholds: &ConvergenceThresholds,
     depth: DiagnosisDepth,
 ) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
+    diagnose_rows(
+        traces,
+        n_ensembles,
+        subject,
+        thin,
+        thresholds,
+        depth,
+        &mut Scratch::default(),
+    )
+}
+
+/// [`diagnose_traces`] of traces given as any slices, with reused buffers (the same figures,
+/// bit for bit).
+fn diagnose_rows<R: AsRef<[f64]>>(
+    traces: &[R],
+    n_ensembles: usize,
+    subject: &str,
+    thin: usize,
+    thresholds: &ConvergenceThresholds,
+    depth: DiagnosisDepth,
+    scratch: &mut Scratch,
+) -> (ParameterDiagnostics, Vec<ConvergenceIssue>) {
     let n = common_length(traces);
-    let autocorrelation = integrated_autocorrelation_time(traces);
+    let autocorrelation = integrated_autocorrelation_time_in(traces, &mut scratch.autocorrelation);
     let too_short = !autocorrelation.window_found
         || (n as f64)
             .partial_cmp(&(thresholds.min_autocorrelation_times * autocorrelation.tau))
@@ -405,9 +473,10 @@ pub fn diagnose_traces(
             .collect();
         return (diagnostics, issues);
     }
-    let last_half: Vec<Vec<f64>> = traces.iter().map(|t| t[n - n / 2..n].to_vec()).collect();
-    let tau_last_half = integrated_autocorrelation_time(&last_half).tau;
-    let between = |full: bool| {
+    let last_half: Vec<&[f64]> = traces.iter().map(|t| &t.as_ref()[n - n / 2..n]).collect();
+    let tau_last_half =
+        integrated_autocorrelation_time_in(&last_half, &mut scratch.autocorrelation).tau;
+    let mut between = |full: bool| {
         if n_ensembles < 2 {
             return RHat {
                 bulk: f64::NAN,
@@ -415,11 +484,16 @@ pub fn diagnose_traces(
                 max: f64::NAN,
             };
         }
-        let series = ensemble_series(traces, n_ensembles, n);
+        let length = ensemble_series(traces, n_ensembles, n, &mut scratch.series);
+        let series: Vec<&[f64]> = if length == 0 {
+            vec![&[][..]; n_ensembles]
+        } else {
+            scratch.series.chunks_exact(length).collect()
+        };
         if full {
             SplitDraws::new(&series).r_hat()
         } else {
-            classic_split_r_hat(&series)
+            classic_split_r_hat(&series, &mut scratch.pooled)
         }
     };
     let (r_hat, r_hat_walkers, ess_bulk, ess_tail) = match depth {
@@ -684,6 +758,7 @@ fn finish_diagnostics(
 
 #[cfg(test)]
 mod tests {
+    use super::super::autocorrelation::integrated_autocorrelation_time;
     use super::super::rank::{ess_tail, rank_normalized_split_r_hat};
     use super::*;
 
