@@ -332,6 +332,31 @@ impl Fft {
         Fft { cos, sin, swaps }
     }
 
+    /// One stage with blocks of 2·HALF points (HALF = 1, 2, 4), as in [`Self::transform`].
+    fn small_stage<const HALF: usize>(&self, re: &mut [f64], im: &mut [f64], sign: f64) {
+        let mut w_re = [0.0; HALF];
+        let mut w_im = [0.0; HALF];
+        for k in 0..HALF {
+            w_re[k] = self.cos[HALF - 1 + k];
+            w_im[k] = sign * self.sin[HALF - 1 + k];
+        }
+        for (block_re, block_im) in re
+            .chunks_exact_mut(2 * HALF)
+            .zip(im.chunks_exact_mut(2 * HALF))
+        {
+            for k in 0..HALF {
+                let (wr, wi) = (w_re[k], w_im[k]);
+                let (b_re, b_im) = (block_re[HALF + k], block_im[HALF + k]);
+                let t_re = b_re * wr - b_im * wi;
+                let t_im = b_re * wi + b_im * wr;
+                block_re[HALF + k] = block_re[k] - t_re;
+                block_im[HALF + k] = block_im[k] - t_im;
+                block_re[k] += t_re;
+                block_im[k] += t_im;
+            }
+        }
+    }
+
     /// The transform size.
     fn size(&self) -> usize {
         self.cos.len() + 1
@@ -347,7 +372,22 @@ impl Fft {
             im.swap(i as usize, j as usize);
         }
         let sign = if inverse { -1.0 } else { 1.0 };
+        // The first stages have one, two and four butterflies per block: written out for
+        // their block sizes (the same operations as the general loop below, without its
+        // per-block overhead).
         let mut len = 2;
+        if len <= n {
+            self.small_stage::<1>(re, im, sign);
+            len <<= 1;
+        }
+        if len <= n {
+            self.small_stage::<2>(re, im, sign);
+            len <<= 1;
+        }
+        if len <= n {
+            self.small_stage::<4>(re, im, sign);
+            len <<= 1;
+        }
         while len <= n {
             let half = len / 2;
             let w_re = &self.cos[half - 1..len - 1];
