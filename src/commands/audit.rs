@@ -100,12 +100,7 @@ pub fn write_audit_outputs(
     settings: &AuditSettings,
     out: &Path,
 ) -> anyhow::Result<()> {
-    let lsq_observed = report
-        .statement
-        .rows
-        .iter()
-        .find(|r| r.name == "lsq")
-        .and_then(|r| r.value);
+    let lsq_observed = report.statement.observed_least_squares();
     write_outputs(&report.injection, out, lsq_observed)?;
     fs::write(out.join("statement.txt"), report.statement.text())
         .with_context(|| format!("cannot write into `{}`", out.display()))?;

@@ -221,12 +221,7 @@ impl AuditRun {
     /// The bias curve of the last report, marked at the observed estimate.
     fn bias_figure(&self) -> Result<BiasFigure, JsValue> {
         let report = &self.report()?.1;
-        let observed = report
-            .statement
-            .rows
-            .iter()
-            .find(|r| r.name == "lsq")
-            .and_then(|r| r.value);
+        let observed = report.statement.observed_least_squares();
         Ok(bias_figure(&report.injection, observed))
     }
 
