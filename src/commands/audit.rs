@@ -100,12 +100,7 @@ pub fn write_audit_outputs(
     settings: &AuditSettings,
     out: &Path,
 ) -> anyhow::Result<()> {
-    let lsq_observed = report
-        .statement
-        .rows
-        .iter()
-        .find(|r| r.name == "lsq")
-        .and_then(|r| r.value);
+    let lsq_observed = report.statement.observed_least_squares();
     write_outputs(&report.injection, out, lsq_observed)?;
     fs::write(out.join("statement.txt"), report.statement.text())
         .with_context(|| format!("cannot write into `{}`", out.display()))?;
@@ -185,10 +180,8 @@ pub fn run(args: Args) -> anyhow::Result<()> {
     let text = String::from_utf8(bytes)
         .with_context(|| format!("cannot read `{source_name}`: the file is not UTF-8 text"))?;
     let options = ReadOptions {
-        source_name: source_name.clone(),
-        velocity_unit: settings.read.velocity_unit,
-        time: settings.read.time,
         delimiter: args.table.delimiter,
+        ..settings.read.options(source_name.clone())
     };
     let table = parse_table(&text, &options)?;
     let plans =

@@ -135,10 +135,8 @@ fn audit_entry(
         ));
     };
     let options = ReadOptions {
-        source_name: entry.table.clone(),
-        velocity_unit: settings.read.velocity_unit,
-        time: settings.read.time,
         delimiter: table_args.delimiter,
+        ..settings.read.options(entry.table.clone())
     };
     let table = match parse_table(&text, &options) {
         Ok(table) => table,

@@ -38,7 +38,7 @@ use crate::inject::{
 use crate::posterior::{fast_sampler_settings, parse_prior_spec};
 use crate::sampler::SamplerSettings;
 use crate::spec::{fit_model, JitterMode, ModelFit, ModelSpec, ModelSpecError};
-use crate::table::{TimeSpec, VelocityTable, VelocityUnit};
+use crate::table::{ReadOptions, TimeSpec, VelocityTable, VelocityUnit};
 
 /// The `format` field of a settings file.
 pub const SETTINGS_FORMAT: &str = "eccaudit-audit-settings";
@@ -66,6 +66,20 @@ pub struct ReadSettings {
     pub velocity_unit: Option<VelocityUnit>,
     /// Time convention when the header does not state it.
     pub time: Option<TimeSpec>,
+}
+
+impl ReadSettings {
+    /// The reader's options for the table `source_name` with this unit and time convention and
+    /// the separator detected (a caller with its own separator sets `delimiter`): how the
+    /// command line, the survey and the page read a table under these settings.
+    pub fn options(&self, source_name: impl Into<String>) -> ReadOptions {
+        ReadOptions {
+            source_name: source_name.into(),
+            velocity_unit: self.velocity_unit,
+            time: self.time,
+            delimiter: None,
+        }
+    }
 }
 
 /// The `fit` section of a version-1 settings file, read only to turn it into a [`ModelSpec`].

@@ -99,6 +99,68 @@ fn density_axis_top<'v>(values: impl Iterator<Item = &'v f64>) -> f64 {
     }
 }
 
+/// Fills `area` white and, when `title` is not empty, writes it above the figure (15 px, in
+/// [`INK`]): the area a titled figure draws its panels in.
+fn blank_titled_area<DB: plotters::prelude::DrawingBackend>(
+    area: &plotters::prelude::DrawingArea<DB, plotters::coord::Shift>,
+    title: &str,
+) -> Result<
+    plotters::prelude::DrawingArea<DB, plotters::coord::Shift>,
+    plotters::drawing::DrawingAreaErrorKind<DB::ErrorType>,
+> {
+    use plotters::prelude::{IntoFont, WHITE};
+    area.fill(&WHITE)?;
+    Ok(if title.is_empty() {
+        area.clone()
+    } else {
+        area.titled(title, ("sans-serif", 15).into_font().color(&INK))?
+    })
+}
+
+/// Both ends of every error bar, value ∓ σ: what a panel of measurements must show.
+fn error_bar_ends<'v>(values: &'v [f64], errors: &'v [f64]) -> impl Iterator<Item = f64> + 'v {
+    values.iter().zip(errors).flat_map(|(v, e)| [v - e, v + e])
+}
+
+/// The legend of a figure of measurements: a dot in each instrument's colour
+/// ([`instrument_colour`]) with its name, then "model" as a line when a model curve is drawn.
+fn instrument_legend<'n>(
+    names: impl Iterator<Item = &'n str>,
+    model: bool,
+) -> Vec<(String, LegendMark)> {
+    let mut legend: Vec<(String, LegendMark)> = names
+        .enumerate()
+        .map(|(idx, name)| (name.to_string(), LegendMark::Dot(instrument_colour(idx))))
+        .collect();
+    if model {
+        legend.push(("model".to_string(), LegendMark::Line(INK)));
+    }
+    legend
+}
+
+/// Each instrument's measurements `(x, y, σ)` drawn by [`draw_measurements`] in that
+/// instrument's colour ([`instrument_colour`]), in the instruments' order.
+fn draw_instruments<DB, P>(
+    chart: &mut plotters::prelude::ChartContext<
+        '_,
+        DB,
+        plotters::prelude::Cartesian2d<
+            plotters::coord::types::RangedCoordf64,
+            plotters::coord::types::RangedCoordf64,
+        >,
+    >,
+    per_instrument: impl Iterator<Item = P>,
+) -> DrawResult<DB>
+where
+    DB: plotters::prelude::DrawingBackend,
+    P: Iterator<Item = (f64, f64, f64)> + Clone,
+{
+    for (idx, points) in per_instrument.enumerate() {
+        draw_measurements(chart, points, instrument_colour(idx))?;
+    }
+    Ok(())
+}
+
 /// Measurements `(x, y, σ)` as filled dots with vertical one-sigma error bars, in one colour:
 /// how every figure draws data points (velocities, phase folds, residuals).
 fn draw_measurements<DB: plotters::prelude::DrawingBackend>(

@@ -5,7 +5,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use crate::{house_mesh, DrawResult, INK, MUTED};
+use crate::{blank_titled_area, house_mesh, DrawResult, INK, MUTED};
 
 /// Colour of the false-alarm levels.
 const LEVEL_COLOUR: RGBColor = RGBColor(0xa0, 0x52, 0x2d);
@@ -59,12 +59,7 @@ pub fn draw_periodogram<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     figure: &PeriodogramFigure,
 ) -> DrawResult<DB> {
-    area.fill(&WHITE)?;
-    let area = if figure.title.is_empty() {
-        area.clone()
-    } else {
-        area.titled(&figure.title, ("sans-serif", 15).into_font().color(&INK))?
-    };
+    let area = blank_titled_area(area, &figure.title)?;
     let positive = || {
         figure
             .periods

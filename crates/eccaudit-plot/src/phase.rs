@@ -4,8 +4,11 @@
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
-use crate::legend::{draw_legend, LegendMark};
-use crate::{draw_measurements, house_mesh, instrument_colour, padded_range, DrawResult, INK};
+use crate::legend::draw_legend;
+use crate::{
+    blank_titled_area, draw_instruments, error_bar_ends, house_mesh, instrument_legend,
+    padded_range, DrawResult, INK,
+};
 
 /// One instrument's folded measurements.
 #[derive(Debug, Clone, Default)]
@@ -49,33 +52,24 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
     figure: &PhaseFoldFigure,
 ) -> DrawResult<DB> {
-    area.fill(&WHITE)?;
-    let area = if figure.title.is_empty() {
-        area.clone()
-    } else {
-        area.titled(&figure.title, ("sans-serif", 15).into_font().color(&INK))?
-    };
+    let area = blank_titled_area(area, &figure.title)?;
     let (_, height) = area.dim_in_pixel();
     let split = (f64::from(height) * (1.0 - RESIDUAL_SHARE)) as i32;
     let (top, bottom) = area.split_vertically(split);
     let label_style = ("sans-serif", 13).into_font().color(&INK);
 
-    let data_extent = figure.series.iter().flat_map(|s| {
-        s.velocity
-            .iter()
-            .zip(&s.error)
-            .flat_map(|(v, e)| [v - e, v + e])
-    });
+    let data_extent = figure
+        .series
+        .iter()
+        .flat_map(|s| error_bar_ends(&s.velocity, &s.error));
     let (v_lo, v_hi) = padded_range(
         data_extent.chain(figure.curve_velocity.iter().copied()),
         0.08,
     );
-    let residual_extent = figure.series.iter().flat_map(|s| {
-        s.residual
-            .iter()
-            .zip(&s.error)
-            .flat_map(|(r, e)| [r - e, r + e])
-    });
+    let residual_extent = figure
+        .series
+        .iter()
+        .flat_map(|s| error_bar_ends(&s.residual, &s.error));
     let (r_lo, r_hi) = padded_range(residual_extent.chain([0.0]), 0.1);
     let phase_range = -0.02..1.02;
 
@@ -98,16 +92,10 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
             .map(|(p, v)| (*p, *v)),
         INK.stroke_width(2),
     ))?;
-    for (idx, series) in figure.series.iter().enumerate() {
-        let colour = instrument_colour(idx);
-        let points = series
-            .phase
-            .iter()
-            .zip(&series.velocity)
-            .zip(&series.error)
-            .map(|((p, v), e)| (*p, *v, *e));
-        draw_measurements(&mut chart, points, colour)?;
-    }
+    draw_instruments(
+        &mut chart,
+        figure.series.iter().map(|s| folded(&s.velocity, s)),
+    )?;
 
     let mut residual_chart = ChartBuilder::on(&bottom)
         .margin(12)
@@ -126,29 +114,31 @@ pub fn draw_phase_fold<DB: DrawingBackend>(
         [(0.0, 0.0), (1.0, 0.0)],
         INK.mix(0.6).stroke_width(1),
     ))?;
-    for (idx, series) in figure.series.iter().enumerate() {
-        let colour = instrument_colour(idx);
-        let points = series
-            .phase
-            .iter()
-            .zip(&series.residual)
-            .zip(&series.error)
-            .map(|((p, r), e)| (*p, *r, *e));
-        draw_measurements(&mut residual_chart, points, colour)?;
-    }
+    draw_instruments(
+        &mut residual_chart,
+        figure.series.iter().map(|s| folded(&s.residual, s)),
+    )?;
 
-    let mut legend: Vec<(String, LegendMark)> = figure
-        .series
-        .iter()
-        .enumerate()
-        .map(|(idx, s)| (s.name.clone(), LegendMark::Dot(instrument_colour(idx))))
-        .collect();
-    if !figure.curve_phase.is_empty() {
-        legend.push(("model".to_string(), LegendMark::Line(INK)));
-    }
+    let legend = instrument_legend(
+        figure.series.iter().map(|s| s.name.as_str()),
+        !figure.curve_phase.is_empty(),
+    );
     draw_legend(&top, &legend, (24, 16))?;
     area.present()?;
     Ok(())
+}
+
+/// `values` of `series` (its velocities or its residuals) at its phases, with its error bars.
+fn folded<'s>(
+    values: &'s [f64],
+    series: &'s PhaseSeries,
+) -> impl Iterator<Item = (f64, f64, f64)> + Clone + 's {
+    series
+        .phase
+        .iter()
+        .zip(values)
+        .zip(&series.error)
+        .map(|((p, v), e)| (*p, *v, *e))
 }
 
 /// A tick label with as many decimals as the axis span calls for.

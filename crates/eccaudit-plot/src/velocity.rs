@@ -4,10 +4,10 @@
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
-use crate::legend::{draw_legend, LegendMark};
+use crate::legend::draw_legend;
 use crate::{
-    draw_measurements, house_mesh, instrument_colour, padded_range, time_axis_offset, DrawResult,
-    INK,
+    draw_instruments, error_bar_ends, house_mesh, instrument_legend, padded_range,
+    time_axis_offset, DrawResult, INK,
 };
 
 /// One instrument's measurements.
@@ -54,12 +54,10 @@ pub fn draw_velocities<DB: DrawingBackend>(
     let t0 = time_axis_offset(all_times.clone().fold(f64::INFINITY, f64::min));
     let (t_lo, t_hi) = padded_range(all_times, 0.03);
 
-    let data_extent = figure.series.iter().flat_map(|s| {
-        s.velocity
-            .iter()
-            .zip(&s.uncertainty)
-            .flat_map(|(v, e)| [v - e, v + e])
-    });
+    let data_extent = figure
+        .series
+        .iter()
+        .flat_map(|s| error_bar_ends(&s.velocity, &s.uncertainty));
     let curve_extent = figure.curve.iter().flat_map(|c| c.velocity.iter().copied());
     let (v_lo, v_hi) = padded_range(data_extent.chain(curve_extent), 0.08);
 
@@ -96,26 +94,21 @@ pub fn draw_velocities<DB: DrawingBackend>(
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], INK.stroke_width(2)));
     }
 
-    for (idx, series) in figure.series.iter().enumerate() {
-        let colour = instrument_colour(idx);
-        let points = series
-            .time
-            .iter()
-            .zip(&series.velocity)
-            .zip(&series.uncertainty)
-            .map(|((t, v), e)| (t - t0, *v, *e));
-        draw_measurements(&mut chart, points, colour)?;
-    }
+    draw_instruments(
+        &mut chart,
+        figure.series.iter().map(|s| {
+            s.time
+                .iter()
+                .zip(&s.velocity)
+                .zip(&s.uncertainty)
+                .map(move |((t, v), e)| (t - t0, *v, *e))
+        }),
+    )?;
 
-    let mut legend: Vec<(String, LegendMark)> = figure
-        .series
-        .iter()
-        .enumerate()
-        .map(|(idx, s)| (s.name.clone(), LegendMark::Dot(instrument_colour(idx))))
-        .collect();
-    if figure.curve.is_some() {
-        legend.push(("model".to_string(), LegendMark::Line(INK)));
-    }
+    let legend = instrument_legend(
+        figure.series.iter().map(|s| s.name.as_str()),
+        figure.curve.is_some(),
+    );
     draw_legend(area, &legend, (24, 20))?;
 
     area.present()?;

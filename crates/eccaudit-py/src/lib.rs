@@ -444,12 +444,7 @@ fn audit(
             return Ok(None);
         };
         let report = plan.finish(&records).map_err(|e| e.to_string())?;
-        let observed = report
-            .statement
-            .rows
-            .iter()
-            .find(|r| r.name == "lsq")
-            .and_then(|r| r.value);
+        let observed = report.statement.observed_least_squares();
         Ok(Some((
             serde_json::to_string(&report).map_err(|e| e.to_string())?,
             settings_text.clone(),

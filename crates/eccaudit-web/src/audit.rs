@@ -10,7 +10,7 @@ use eccaudit_core::audit::{data_fingerprint, AuditPlan, AuditReport, AuditSettin
 use eccaudit_core::inject::{
     record_from_csv_row, record_to_csv_row, settings_fingerprint, trial_file, TrialRecord,
 };
-use eccaudit_core::table::{parse_table, ReadOptions, TimeSpec, VelocityUnit};
+use eccaudit_core::table::{parse_table, TimeSpec, VelocityUnit};
 use eccaudit_plot::{bias_figure, distribution_figure, BiasFigure};
 use wasm_bindgen::prelude::*;
 use web_sys::HtmlCanvasElement;
@@ -84,12 +84,7 @@ impl AuditRun {
         settings
             .check_data(table_text.as_bytes())
             .map_err(js_error)?;
-        let options = ReadOptions {
-            source_name: source_name.to_string(),
-            velocity_unit: settings.read.velocity_unit,
-            time: settings.read.time,
-            delimiter: None,
-        };
+        let options = settings.read.options(source_name);
         let table = parse_table(table_text, &options).map_err(js_error)?;
         let plan = AuditPlan::new(&table, &settings).map_err(js_error)?;
         Ok(AuditRun {
@@ -221,12 +216,7 @@ impl AuditRun {
     /// The bias curve of the last report, marked at the observed estimate.
     fn bias_figure(&self) -> Result<BiasFigure, JsValue> {
         let report = &self.report()?.1;
-        let observed = report
-            .statement
-            .rows
-            .iter()
-            .find(|r| r.name == "lsq")
-            .and_then(|r| r.value);
+        let observed = report.statement.observed_least_squares();
         Ok(bias_figure(&report.injection, observed))
     }
 
@@ -271,6 +261,7 @@ fn trial_index(value: f64) -> Result<u64, JsValue> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use eccaudit_core::table::ReadOptions;
 
     #[test]
     fn settings_for_fill_the_identity_and_reading() {

@@ -44,6 +44,16 @@ enum Batch {
     Dots { rgb: (u8, u8, u8) },
 }
 
+impl Batch {
+    /// The run of lines stroked in `style`'s colour and width.
+    fn lines_in<S: BackendStyle>(style: &S) -> Batch {
+        Batch::Lines {
+            rgb: style.color().rgb,
+            width: style.stroke_width(),
+        }
+    }
+}
+
 /// A line (end points) or circle (centre, radius, filled) in pixels, to skip repeats in a run.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 enum Mark {
@@ -143,10 +153,7 @@ impl DrawingBackend for MeasuredCanvas {
     ) -> Result<(), DrawingErrorKind<CanvasError>> {
         let colour = style.color();
         if colour.alpha == 1.0 {
-            self.join(Batch::Lines {
-                rgb: colour.rgb,
-                width: style.stroke_width(),
-            });
+            self.join(Batch::lines_in(style));
             if !self.marks.insert(Mark::Line(from, to)) {
                 return Ok(());
             }
@@ -187,10 +194,7 @@ impl DrawingBackend for MeasuredCanvas {
         let colour = style.color();
         if colour.alpha == 1.0 {
             // As plotters-canvas, one sub-path through the points, without the half-pixel shift.
-            self.join(Batch::Lines {
-                rgb: colour.rgb,
-                width: style.stroke_width(),
-            });
+            self.join(Batch::lines_in(style));
             let mut points = path.into_iter();
             if let Some(start) = points.next() {
                 self.context.move_to(f64::from(start.0), f64::from(start.1));
@@ -227,10 +231,7 @@ impl DrawingBackend for MeasuredCanvas {
             let batch = if fill {
                 Batch::Dots { rgb: colour.rgb }
             } else {
-                Batch::Lines {
-                    rgb: colour.rgb,
-                    width: style.stroke_width(),
-                }
+                Batch::lines_in(style)
             };
             self.join(batch);
             if !self.marks.insert(Mark::Circle(center, radius, fill)) {

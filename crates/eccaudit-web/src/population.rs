@@ -7,7 +7,7 @@ use eccaudit_core::population::{
     survey_table_samples, write_samples_ecsv, PopulationSettings,
 };
 use eccaudit_core::sampler::Steer;
-use eccaudit_core::table::{parse_table, ReadOptions};
+use eccaudit_core::table::parse_table;
 use eccaudit_plot::{BetaParameterFigure, PopulationDensityFigure, POPULATION_FIGURE_SIZE};
 use serde::Deserialize;
 use serde_json::Value;
@@ -82,12 +82,7 @@ pub fn survey_samples(
     spec: &str,
 ) -> Result<String, JsValue> {
     let settings = AuditSettings::from_json(settings_json).map_err(js_error)?;
-    let options = ReadOptions {
-        source_name: source_name.to_string(),
-        velocity_unit: settings.read.velocity_unit,
-        time: settings.read.time,
-        delimiter: None,
-    };
+    let options = settings.read.options(source_name);
     let table = parse_table(table_text, &options).map_err(js_error)?;
     let data = FitData::from_table(&table);
     let samples = survey_table_samples(&data, source_name, &settings, spec).map_err(js_error)?;

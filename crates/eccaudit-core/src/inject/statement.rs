@@ -1037,6 +1037,15 @@ fn rate_text(r: &Option<Rate>) -> String {
 }
 
 impl EccentricityStatement {
+    /// The least-squares estimate on the real data (the `lsq` row's value), where the bias
+    /// figures mark the observed e; `None` when there is no such row or value.
+    pub fn observed_least_squares(&self) -> Option<f64> {
+        self.rows
+            .iter()
+            .find(|r| r.name == "lsq")
+            .and_then(|r| r.value)
+    }
+
     /// A plain-text layout: the sentences, the table of every estimator, the methods.
     pub fn text(&self) -> String {
         let mut out = String::new();

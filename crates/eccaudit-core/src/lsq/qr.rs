@@ -215,11 +215,9 @@ mod tests {
         )
     }
 
-    #[test]
-    fn pivoted_qr_reproduces_r_transpose_r() {
-        // (A P)ᵀ(A P) = Rᵀ R for any QR factorisation (common practice);
-        // tolerance 1e-12 relative for a well-conditioned 5×3 matrix.
-        let a0 = test_matrix();
+    /// `a0` factored by [`qr_factor_pivoted`]: the factored matrix (R above the diagonal),
+    /// the column permutation and R's diagonal.
+    fn factored(a0: &DMatrix<f64>) -> (DMatrix<f64>, Vec<usize>, Vec<f64>) {
         let (m, n) = a0.shape();
         let mut a = a0.clone();
         let (mut perm, mut r_diag, mut norms, mut work) =
@@ -233,6 +231,16 @@ mod tests {
             &mut norms,
             &mut work,
         );
+        (a, perm, r_diag)
+    }
+
+    #[test]
+    fn pivoted_qr_reproduces_r_transpose_r() {
+        // (A P)ᵀ(A P) = Rᵀ R for any QR factorisation (common practice);
+        // tolerance 1e-12 relative for a well-conditioned 5×3 matrix.
+        let a0 = test_matrix();
+        let (m, n) = a0.shape();
+        let (a, perm, r_diag) = factored(&a0);
         let mut r = DMatrix::zeros(n, n);
         for j in 0..n {
             r[(j, j)] = r_diag[j];
@@ -258,24 +266,13 @@ mod tests {
         let (m, n) = a0.shape();
         let b = DVector::from_vec(vec![1.0, -2.0, 0.5, 3.0, 0.25]);
         let diag = [0.7, 1.3, 0.2];
-        let mut a = a0.clone();
-        let (mut perm, mut r_diag, mut norms, mut work) =
-            (vec![0; n], vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-        qr_factor_pivoted(
-            a.as_mut_slice(),
-            m,
-            n,
-            &mut perm,
-            &mut r_diag,
-            &mut norms,
-            &mut work,
-        );
+        let (mut a, perm, r_diag) = factored(&a0);
         let mut qtb = b.clone();
         apply_q_transpose(a.as_slice(), m, n, qtb.as_mut_slice());
         for j in 0..n {
             a[(j, j)] = r_diag[j];
         }
-        let (mut x, mut s_diag) = (vec![0.0; n], vec![0.0; n]);
+        let (mut x, mut s_diag, mut work) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
         solve_damped(
             a.as_mut_slice(),
             m,

@@ -168,6 +168,18 @@ def _close(bar: Any) -> None:
         bar.close()
 
 
+def _with_progress(
+    progress: Union[bool, Callable[[int, int], Any]], desc: str, call: Callable[[Any], Any]
+) -> Any:
+    """``call(callback)`` with the progress callback of ``progress`` (a bar counting ``desc``);
+    the bar is closed however the call ends (also on KeyboardInterrupt)."""
+    callback, bar = _progress_callback(progress, desc)
+    try:
+        return call(callback)
+    finally:
+        _close(bar)
+
+
 def fit(data: TableLike = None, **settings: Any) -> FitResult:
     """Least-squares Keplerian fit (as ``eccaudit fit``).
 
@@ -202,11 +214,9 @@ def priors(
     """
     table_kwargs, settings = _split_table_kwargs(dict(settings))
     t = table(data, **table_kwargs)
-    callback, bar = _progress_callback(progress, "posterior steps")
-    try:
-        report, chains, figure = _core.priors(t, json.dumps(settings), threads, callback)
-    finally:
-        _close(bar)
+    report, chains, figure = _with_progress(
+        progress, "posterior steps", lambda callback: _core.priors(t, json.dumps(settings), threads, callback)
+    )
     return PriorsResult(json.loads(report), chains, json.loads(figure), t)
 
 
@@ -230,11 +240,9 @@ def inject(
     """
     table_kwargs, settings = _split_table_kwargs(dict(settings))
     t = table(data, **table_kwargs)
-    callback, bar = _progress_callback(progress, "trials")
-    try:
-        summary, trials, figure = _core.inject(t, json.dumps(settings), threads, callback)
-    finally:
-        _close(bar)
+    summary, trials, figure = _with_progress(
+        progress, "trials", lambda callback: _core.inject(t, json.dumps(settings), threads, callback)
+    )
     return InjectResult(json.loads(summary), _trials_columns(trials), json.loads(figure), t)
 
 
@@ -288,13 +296,9 @@ def audit(
     merged = _merge(base, kwargs)
     merged.setdefault("format", "eccaudit-audit-settings")
     merged.setdefault("version", 1)
-    callback, bar = _progress_callback(progress, "trials")
-    try:
-        report, used, trials, statement, figure = _core.audit(
-            t, json.dumps(merged), threads, callback
-        )
-    finally:
-        _close(bar)
+    report, used, trials, statement, figure = _with_progress(
+        progress, "trials", lambda callback: _core.audit(t, json.dumps(merged), threads, callback)
+    )
     return AuditResult(
         json.loads(report), json.loads(used), _trials_columns(trials), statement, json.loads(figure), t
     )
