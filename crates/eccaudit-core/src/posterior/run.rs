@@ -397,7 +397,7 @@ pub struct SensitivityReport {
 /// The methods behind each figure, for reports.
 pub fn method_notes() -> Vec<String> {
     vec![
-        "Sampling: independent affine-invariant ensembles (stretch, differential-evolution and ensemble Gaussian moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose peak density is at least a fifth of the best's; every ensemble with walkers around each of them in different shares; walkers cross between them by mode jumps, translations by the difference of two optima), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
+        "Sampling: independent affine-invariant ensembles (stretch, differential-evolution and ensemble Gaussian moves) in (P, K, √e cos ω, √e sin ω, λ, [jitter]); offsets and trend integrated out analytically under flat priors; the (√e cos ω, √e sin ω) Jacobian makes the implied prior on e exactly the chosen one; ensembles start around the least-squares optima worth keeping (the best, and other periodogram peaks or eccentricities whose posterior mass by Laplace's method, ln p(θ̂) + ½ ln det 2πΣ̂ with Σ̂ the least-squares covariance, is at least a fiftieth of the best's; every ensemble with walkers around each of them in different shares; walkers cross between them by mode jumps, translations by the difference of two optima), increasingly dispersed, and each run extends itself until its convergence rule holds or its budget runs out.".into(),
         "Median, mean, intervals: sample quantiles (type 7); HDI = shortest interval of the samples. Mode: maximum of a Gaussian KDE reflected at the prior's bounds, Silverman bandwidth.".into(),
         "P(e < 0.05): fraction of samples; error √(p(1−p)/ESS_tail).".into(),
         "Information gain: KL(posterior ‖ prior) of e in nats on 50 equal bins over the prior's support, Miller–Madow bias (m−1)/(2 ESS) removed; binning makes it a lower bound.".into(),
@@ -733,12 +733,19 @@ impl fmt::Display for SensitivityReport {
                 }
             )?;
             let describe = |o: &OptimumNote| {
+                let below = if o.log_mass_below_best.is_finite() {
+                    format!(
+                        "mass {:.1} nats below the best's, peak {:.1}",
+                        o.log_mass_below_best, o.log_density_below_best
+                    )
+                } else {
+                    format!("peak {:.1} nats below the best", o.log_density_below_best)
+                };
                 format!(
-                    "companion {} at P = {:.4} d, e = {:.3} ({:.1} nats below the best)",
+                    "companion {} at P = {:.4} d, e = {:.3} ({below})",
                     o.companion + 1,
                     o.period,
                     o.eccentricity,
-                    o.log_density_below_best
                 )
             };
             let used: Vec<String> = run.optima.iter().filter(|o| o.used).map(describe).collect();
@@ -760,9 +767,9 @@ impl fmt::Display for SensitivityReport {
             if !unused.is_empty() {
                 writeln!(
                     f,
-                    "Run {}: other least-squares optima not used as starts (peak posterior \
-                     density below a fifth of the best's; a minor mode there, if any, is not \
-                     sampled): {}",
+                    "Run {}: other least-squares optima not used as starts (posterior mass by \
+                     Laplace's method below a fiftieth of the best mode's; a minor mode there, \
+                     if any, is not sampled): {}",
                     i + 1,
                     unused.join("; ")
                 )?;

@@ -348,8 +348,7 @@ const MAX_START_DRAWS: usize = 1000;
 /// its centre whose scales grow with m (1, 2, 3, 4 … times `start.scales`, i.e. ½ to 2
 /// formal errors), so that the ensembles start apart as the between-chain check requires
 /// (Gelman & Rubin 1992, Stat. Sci. 7, 457: over-dispersed starts, one chain per mode). The
-/// centres are `start.point` and the optima of `start.optima` whose log-posterior lies within
-/// [`KEEP_GAP`] nats of the best centre's (see there). With several centres, every ensemble
+/// centres are `start.point` and the optima of `start.optima` kept by [`start_centres`]. With several centres, every ensemble
 /// has walkers in every mode: the even walkers of ensemble m start around centre m mod
 /// (number of centres), the odd ones around each centre in turn, so the ensembles start with
 /// different shares of walkers per mode (over-dispersed in the modes' weights; 3:1 and 1:3 for
@@ -430,14 +429,23 @@ pub fn ensemble_starts(
     Ok(out)
 }
 
-/// The gap (nats) below the best centre's log-posterior within which another optimum is a
-/// centre of its own: ln 5, i.e. a peak density at least a fifth of the best's (comparable
-/// modes). A lower optimum holds at most about a fifth of the best mode's mass at similar
-/// widths (Laplace); ensembles started in a separated minor mode cannot leave it, so every run
-/// would be refused for a mode that holds little of the mass. Such optima are reported with
-/// their density below the best ([`OptimumNote`]), not used (stated choice; the demo table
-/// velka17 has a side lobe at 4.77 d 2.5 nats and a one-day alias 10 nats below its best).
+/// The gap (nats) below the best centre's peak log-posterior within which another optimum was a
+/// centre of its own before the Laplace mass rule ([`MASS_GAP`]); still the rule where a mass
+/// cannot be computed (a singular Fisher information). ln 5: a peak density at least a fifth of
+/// the best's.
 pub const KEEP_GAP: f64 = 1.609_437_912_434_100_3;
+
+/// The gap (nats) below the best optimum's posterior mass within which another optimum is a
+/// centre of its own: ln 50, i.e. a mode holding at least a fiftieth of the best mode's mass
+/// by Laplace's method ([`RvPosterior::laplace_log_mass`]). Stated choice, on the inclusive
+/// side: a kept mode costs only run length (walkers cross by mode jumps), a left-out mode biases
+/// the quantiles of e; and on the demo table velka17 Laplace's method put the 4.77 d side lobe
+/// about 0.8 nats below the share the sampler measured (10 % against 18 % under the Rayleigh
+/// prior), so ln 50 keeps every mode likely to hold a few per cent of the mass. Lower optima are
+/// reported with their mass below the best ([`OptimumNote`]), not used: velka17's side lobe at
+/// 4.77 d lies 2.2–3.2 nats below its best in mass under the default priors (kept) and its
+/// one-day alias at 1.26 d 9–12 nats below (not kept).
+pub const MASS_GAP: f64 = 3.912_023_005_428_146;
 
 /// What became of one other least-squares optimum at the start of a run.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -451,13 +459,23 @@ pub struct OptimumNote {
     /// Log-posterior of the best centre minus this optimum's [nats] (the ratio of peak
     /// densities is exp(−this)).
     pub log_density_below_best: f64,
+    /// Laplace log-mass of the best centre's mode minus this one's [nats] (the ratio of masses
+    /// is exp(−this); NaN when not computable, and then the peak rule [`KEEP_GAP`] decided).
+    #[serde(default = "not_computed")]
+    pub log_mass_below_best: f64,
     /// Whether some ensemble starts around it.
     pub used: bool,
 }
 
+fn not_computed() -> f64 {
+    f64::NAN
+}
+
 /// The centres of [`ensemble_starts`] (full layout): `start.point` first, then the optima of
-/// `start.optima` within [`KEEP_GAP`] of it in log-posterior, each with its mean longitudes
-/// moved by whole turns into the target's λ windows; and a note on every other optimum.
+/// `start.optima` whose Laplace mass lies within [`MASS_GAP`] of the best's (within
+/// [`KEEP_GAP`] in peak log-posterior where a mass cannot be computed), each with its mean
+/// longitudes moved by whole turns into the target's λ windows; and a note on every other
+/// optimum.
 pub fn start_centres(
     start: &PosteriorStart,
     target: &RvPosterior<'_>,
@@ -469,6 +487,7 @@ pub fn start_centres(
     }
     let layout = target.layout();
     let best = target.log_density(&target.sampled_point(&start.point));
+    let best_mass = target.laplace_log_mass(&start.point);
     for optimum in &start.optima {
         if optimum.point.len() != start.point.len() {
             continue;
@@ -482,12 +501,19 @@ pub fn start_centres(
         }
         let value = target.log_density(&target.sampled_point(&point));
         let below = best - value;
-        let used = value.is_finite() && (below.is_nan() || below <= KEEP_GAP);
+        let mass_below = best_mass - target.laplace_log_mass(&point);
+        let used = value.is_finite()
+            && if mass_below.is_finite() {
+                mass_below <= MASS_GAP
+            } else {
+                below.is_nan() || below <= KEEP_GAP
+            };
         notes.push(OptimumNote {
             companion: optimum.companion,
             period: optimum.period,
             eccentricity: optimum.eccentricity,
             log_density_below_best: below,
+            log_mass_below_best: mass_below,
             used,
         });
         if used {
