@@ -57,6 +57,17 @@ pub type DrawResult<DB> = Result<
     plotters::drawing::DrawingAreaErrorKind<<DB as plotters::prelude::DrawingBackend>::ErrorType>,
 >;
 
+/// A chart with linear `f64` axes on both sides: the coordinate system of every measurement
+/// figure (velocities, phase folds, residuals, periodogram).
+type XyChart<'a, DB> = plotters::prelude::ChartContext<
+    'a,
+    DB,
+    plotters::prelude::Cartesian2d<
+        plotters::coord::types::RangedCoordf64,
+        plotters::coord::types::RangedCoordf64,
+    >,
+>;
+
 /// The house grid and axes of every figure's panels: light grid lines in [`MUTED`] at 15 %,
 /// bold ones in [`MUTED`] at opacity `bold`, axes in [`INK`], tick labels in `labels`. The
 /// caller adds its own label counts, formatters and axis names, then draws.
@@ -141,14 +152,7 @@ fn instrument_legend<'n>(
 /// Each instrument's measurements `(x, y, σ)` drawn by [`draw_measurements`] in that
 /// instrument's colour ([`instrument_colour`]), in the instruments' order.
 fn draw_instruments<DB, P>(
-    chart: &mut plotters::prelude::ChartContext<
-        '_,
-        DB,
-        plotters::prelude::Cartesian2d<
-            plotters::coord::types::RangedCoordf64,
-            plotters::coord::types::RangedCoordf64,
-        >,
-    >,
+    chart: &mut XyChart<'_, DB>,
     per_instrument: impl Iterator<Item = P>,
 ) -> DrawResult<DB>
 where
@@ -164,14 +168,7 @@ where
 /// Measurements `(x, y, σ)` as filled dots with vertical one-sigma error bars, in one colour:
 /// how every figure draws data points (velocities, phase folds, residuals).
 fn draw_measurements<DB: plotters::prelude::DrawingBackend>(
-    chart: &mut plotters::prelude::ChartContext<
-        '_,
-        DB,
-        plotters::prelude::Cartesian2d<
-            plotters::coord::types::RangedCoordf64,
-            plotters::coord::types::RangedCoordf64,
-        >,
-    >,
+    chart: &mut XyChart<'_, DB>,
     points: impl Iterator<Item = (f64, f64, f64)> + Clone,
     colour: plotters::style::RGBColor,
 ) -> DrawResult<DB> {
