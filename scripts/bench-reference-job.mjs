@@ -18,6 +18,7 @@ import path from "node:path";
 import { performance } from "node:perf_hooks";
 import { fileURLToPath } from "node:url";
 import { initSync, AuditRun, auditSettingsFor, defaultAuditSettings } from "../www/pkg/eccaudit_web.js";
+import { uniforms, gaussians } from "../tests/browser/fixed-random.mjs";
 
 const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), "..");
 const CLI = path.join(process.env.CARGO_TARGET_DIR ?? path.join(ROOT, "target"), "release", "eccaudit");
@@ -26,19 +27,8 @@ const TMP = mkdtempSync(path.join(tmpdir(), "eccaudit-bench-reference-"));
 
 initSync({ module: readFileSync(path.join(ROOT, "www", "pkg", "eccaudit_web_bg.wasm")) });
 
-// mulberry32 (a small public-domain generator; any fixed sequence will do for a benchmark table).
-function mulberry32(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
-const random = mulberry32(20261202);
-const gaussian = () => Math.sqrt(-2 * Math.log(1 - random())) * Math.cos(2 * Math.PI * random());
+const random = uniforms(20261202);
+const gaussian = gaussians(random);
 const times = Array.from({ length: 30 }, () => 2460000 + 365 * random()).sort((a, b) => a - b);
 const lines = ["bjd,rv [m/s],sigma [m/s]"];
 for (const t of times) {

@@ -7,6 +7,7 @@ import { execFileSync } from "node:child_process";
 import { existsSync, readFileSync, writeFileSync } from "node:fs";
 import path from "node:path";
 import { pageForThisFile, tempDirForThisFile, ROOT, CLI, ARTIFACTS } from "./harness.mjs";
+import { uniforms, gaussians } from "./fixed-random.mjs";
 
 const TMP = tempDirForThisFile("audit-test");
 
@@ -147,16 +148,10 @@ test("Cancel stops the workers, keeps nothing of the cancelled run, and the page
 });
 
 // Two circular companions (9.7 d, 25 m/s; 61 d, 12 m/s), a trend of 0.05 m/s/d and two
-// instruments with extra scatter, from a fixed-seed generator (mulberry32, common practice).
+// instruments with extra scatter, from a fixed-seed generator (fixed-random.mjs).
 function twoCompanionTrendTable() {
-  let a = 20261203;
-  const uniform = () => {
-    a = (a + 0x6d2b79f5) | 0;
-    let t = Math.imul(a ^ (a >>> 15), 1 | a);
-    t = (t + Math.imul(t ^ (t >>> 7), 61 | t)) ^ t;
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-  const gauss = () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+  const uniform = uniforms(20261203);
+  const gauss = gaussians(uniform);
   let text = "bjd,rv [m/s],err [m/s],instrument\n";
   for (let i = 0; i < 60; i++) {
     const t = 2460000 + 5 * i + 3.5 * uniform();

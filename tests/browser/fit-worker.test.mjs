@@ -9,21 +9,10 @@ import { execFileSync } from "node:child_process";
 import { readFileSync, writeFileSync } from "node:fs";
 import path from "node:path";
 import { pageForThisFile, tempDirForThisFile, CLI, ROOT } from "./harness.mjs";
+import { uniforms, gaussians } from "./fixed-random.mjs";
 
 const app = pageForThisFile();
 const TMP = tempDirForThisFile("fit-worker");
-
-/** Uniform deviates in [0, 1) from a fixed seed (mulberry32; common practice for test data). */
-function uniforms(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** Radial velocity of one Keplerian companion at time t (textbook Newton iteration of Kepler's
  *  equation; test data only — the page's numbers all come from the wasm core). */
@@ -45,7 +34,7 @@ function keplerian(t, { period, k, e, omega, tp }) {
  *  excess scatter (jitter), `n` random nights over 1600 d; fixed seed, same text every run. */
 function threeCompanionTable(n, seed) {
   const rand = uniforms(seed);
-  const normal = () => Math.sqrt(-2 * Math.log(1 - rand())) * Math.cos(2 * Math.PI * rand());
+  const normal = gaussians(rand);
   const t0 = 2459000;
   const companions = [
     { period: 4.73, k: 32, e: 0.12, omega: 1.1, tp: t0 + 1.3 },
