@@ -1,5 +1,6 @@
 //! The ensemble convergence rule on simulated radial-velocity data, and the analytic marginalisation of the offsets against sampling them.
 
+use crate::support::run_to_verdict;
 use eccaudit_core::fit::FitData;
 use eccaudit_core::orbit::OrbitalElements;
 use eccaudit_core::posterior::{
@@ -7,8 +8,7 @@ use eccaudit_core::posterior::{
 };
 use eccaudit_core::random::{normal, standard_normal, stream_rng};
 use eccaudit_core::sampler::{
-    diagnose_ensembles, integrated_autocorrelation_time, run_until_converged, Chains,
-    ConvergenceThresholds, LogDensity, RunLength, SamplerSettings, Steer,
+    integrated_autocorrelation_time, LogDensity, RunLength, SamplerSettings, Steer,
 };
 use rand::RngExt;
 
@@ -139,16 +139,7 @@ fn marginalised_offsets_give_the_same_posterior_of_e_as_sampled_ones() {
                 out
             })
             .collect();
-        let thresholds = ConvergenceThresholds::default();
-        let run = run_until_converged(
-            target,
-            &starts,
-            &sampler,
-            &RunLength::default(),
-            &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
-            &mut |_| Steer::Continue,
-        )
-        .unwrap();
+        let run = run_to_verdict(target, &starts, &sampler, &RunLength::default());
         assert!(run.diagnostics.converged, "{}", run.diagnostics.verdict());
         let chains = run.merged();
         let traces: Vec<Vec<f64>> = (0..chains.n_walkers)

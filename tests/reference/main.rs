@@ -18,5 +18,6 @@ mod population;
 mod posterior;
 mod priors;
 mod sampler;
+mod support;
 mod table_reader;
 mod tables;

@@ -5,13 +5,13 @@
 //! Fixed seeds; tolerances are 4 Monte-Carlo standard errors from the runs' own effective
 //! sample sizes (stated at each check).
 
+use crate::support::run_to_verdict;
 use eccaudit_core::fit::FitData;
 use eccaudit_core::posterior::{prior_sensitivity, PosteriorRun, SensitivityRequest};
 use eccaudit_core::priors::EccentricityPrior;
 use eccaudit_core::random::{standard_normal, stream_rng};
 use eccaudit_core::sampler::{
-    diagnose_ensembles, effective_sample_size, run_until_converged, Chains, ConvergenceThresholds,
-    LogDensity, RunLength, SamplerSettings, Steer, StopReason,
+    effective_sample_size, LogDensity, RunLength, SamplerSettings, Steer, StopReason,
 };
 use eccaudit_core::table::{parse_table, ReadOptions};
 
@@ -89,16 +89,7 @@ fn mode_jumps_keep_the_weights_of_two_separated_modes() {
         max_evaluations: 4_000_000,
         ..RunLength::default()
     };
-    let thresholds = ConvergenceThresholds::default();
-    let run = run_until_converged(
-        &target,
-        &starts,
-        &settings,
-        &length,
-        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
-        &mut |_| Steer::Continue,
-    )
-    .expect("sampler runs");
+    let run = run_to_verdict(&target, &starts, &settings, &length);
     assert!(run.diagnostics.converged, "{}", run.diagnostics.verdict());
     assert_eq!(run.stop, StopReason::Converged);
     let chains = run.merged();

@@ -6,15 +6,16 @@
 //! moment check allows 4 standard errors (two-sided 6·10⁻⁵ per check for a
 //! Gaussian error). Seeds are fixed, so the outcome is deterministic.
 
+use crate::support::run_to_verdict;
 use std::ops::ControlFlow;
 use std::time::Instant;
 
 use eccaudit_core::random::{standard_normal, stream_rng};
 use eccaudit_core::sampler::{
     diagnose, diagnose_ensembles, diagnose_traces, effective_sample_size, ess_bulk, ess_tail,
-    integrated_autocorrelation_time, rank_normalized_split_r_hat, run_ensemble,
-    run_until_converged, Chains, ConvergenceThresholds, DensityFn, DiagnosisDepth, IssueKind,
-    LogDensity, RunLength, SamplerSettings, Steer, StopReason,
+    integrated_autocorrelation_time, rank_normalized_split_r_hat, run_ensemble, Chains,
+    ConvergenceThresholds, DensityFn, DiagnosisDepth, IssueKind, LogDensity, RunLength,
+    SamplerSettings, StopReason,
 };
 
 /// Mean of f over all stored samples, and its Monte-Carlo standard error from the ESS of f.
@@ -59,16 +60,7 @@ fn run_converged(
         max_evaluations: 20_000_000,
         ..RunLength::default()
     };
-    let thresholds = ConvergenceThresholds::default();
-    let run = run_until_converged(
-        target,
-        &starts,
-        &settings,
-        &length,
-        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
-        &mut |_| Steer::Continue,
-    )
-    .expect("sampler runs");
+    let run = run_to_verdict(target, &starts, &settings, &length);
     println!(
         "{} ({} steps, {} checks)",
         run.diagnostics.verdict(),
@@ -472,16 +464,7 @@ fn run_until_converged_refuses_a_bimodal_target_and_accepts_a_gaussian() {
         max_evaluations: 400_000,
         ..RunLength::default()
     };
-    let thresholds = ConvergenceThresholds::default();
-    let run = run_until_converged(
-        &bimodal,
-        &starts,
-        &settings,
-        &length,
-        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
-        &mut |_| Steer::Continue,
-    )
-    .unwrap();
+    let run = run_to_verdict(&bimodal, &starts, &settings, &length);
     assert!(!run.diagnostics.converged);
     assert_eq!(run.stop, StopReason::Budget);
     assert!(run.evaluations <= 400_000, "{}", run.evaluations);
@@ -494,15 +477,7 @@ fn run_until_converged_refuses_a_bimodal_target_and_accepts_a_gaussian() {
         log_density: |x: &[f64]| -0.5 * (x[0] * x[0] + x[1] * x[1]) / 0.25,
     };
     let starts = vec![ball(0.5, 1), ball(0.5, 2), ball(-0.5, 3), ball(-0.5, 4)];
-    let run = run_until_converged(
-        &gaussian,
-        &starts,
-        &settings,
-        &length,
-        &mut |e: &[&Chains]| diagnose_ensembles(e, &thresholds),
-        &mut |_| Steer::Continue,
-    )
-    .unwrap();
+    let run = run_to_verdict(&gaussian, &starts, &settings, &length);
     assert!(run.diagnostics.converged, "{}", run.diagnostics.verdict());
     assert_eq!(run.stop, StopReason::Converged);
 }
