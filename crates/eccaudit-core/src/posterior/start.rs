@@ -487,7 +487,7 @@ pub fn start_centres(
     }
     let layout = target.layout();
     let best = target.log_density(&target.sampled_point(&start.point));
-    let best_mass = target.laplace_log_mass(&start.point);
+    let best_mass = target.laplace_log_mass_given(&start.point, best);
     for optimum in &start.optima {
         if optimum.point.len() != start.point.len() {
             continue;
@@ -501,7 +501,7 @@ pub fn start_centres(
         }
         let value = target.log_density(&target.sampled_point(&point));
         let below = best - value;
-        let mass_below = best_mass - target.laplace_log_mass(&point);
+        let mass_below = best_mass - target.laplace_log_mass_given(&point, value);
         let used = value.is_finite()
             && if mass_below.is_finite() {
                 mass_below <= MASS_GAP

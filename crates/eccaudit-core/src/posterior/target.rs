@@ -321,7 +321,12 @@ impl<'a> RvPosterior<'a> {
     /// `full` (their volume is left out, the same for optima that share them). NaN where F is
     /// singular (e = 0 exactly) or outside the domain.
     pub fn laplace_log_mass(&self, full: &[f64]) -> f64 {
-        let value = self.log_density(&self.sampled_point(full));
+        self.laplace_log_mass_given(full, self.log_density(&self.sampled_point(full)))
+    }
+
+    /// [`Self::laplace_log_mass`] at `full` where the log-posterior there, `value` (=
+    /// `self.log_density(&self.sampled_point(full))`), is already known.
+    pub fn laplace_log_mass_given(&self, full: &[f64], value: f64) -> f64 {
         let p = self.n_orbit_params;
         let Some(mut fisher) = self.fisher_information(full) else {
             return f64::NAN;
